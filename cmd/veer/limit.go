@@ -1,0 +1,203 @@
+package main
+
+import (
+	"flag"
+	"fmt"
+	"math"
+
+	"veer/functions/chart"
+	"veer/functions/monitor"
+	"veer/functions/screening"
+	"veer/functions/serial"
+)
+
+// chartFlags are the chart options shared by limit, delay and screen.
+type chartFlags struct {
+	kind, side, serial, method string
+	allowance, lambda, unit    float64
+	headStart, gap             float64
+	restart                    bool
+	seed                       uint64
+	paths                      int
+}
+
+func (c *chartFlags) register(fs *flag.FlagSet) {
+	d := chart.DefaultSpec()
+	fs.StringVar(&c.kind, "chart", d.Kind, "chart: cusum or ewma")
+	fs.StringVar(&c.side, "side", d.Side, "direction of drift to detect: up, down or both")
+	fs.Float64Var(&c.allowance, "allowance", d.Allowance, "CUSUM allowance k, in SDs (half the shift to detect fastest)")
+	fs.Float64Var(&c.lambda, "lambda", d.Lambda, "EWMA smoothing weight per unit of time, in (0,1]")
+	fs.Float64Var(&c.unit, "unit", d.UnitOrDefault(), "EWMA time unit in years (the weight of an exam after a gap d is 1-(1-lambda)^(d/unit))")
+	fs.Float64Var(&c.headStart, "head-start", 0, "fast initial response: start the CUSUM at this fraction of the limit (0 to 1)")
+	fs.BoolVar(&c.restart, "restart", false, "restart the chart after a signal")
+	fs.StringVar(&c.serial, "serial", screening.SerialDirect, "serial correlation: direct (chart z, limit carries the correlation), whiten (chart Kalman innovations) or off (ignore it)")
+	fs.StringVar(&c.method, "method", string(monitor.Normal), "how the limit is computed: normal or bootstrap")
+	fs.Float64Var(&c.gap, "gap", 0, "planned years between exams (0: the reference workers' own gaps; needed without --model)")
+	fs.Uint64Var(&c.seed, "seed", screening.DefaultSeed, "seed of the Monte Carlo methods (the same seed gives the same limit)")
+	fs.IntVar(&c.paths, "paths", 0, "Monte Carlo paths (0: default, about 1.6% standard error)")
+}
+
+func (c *chartFlags) settings() (screening.Settings, error) {
+	s := screening.Settings{
+		Chart: chart.Spec{
+			Kind: c.kind, Side: c.side, Allowance: c.allowance, Lambda: c.lambda,
+			Unit: c.unit, HeadStart: c.headStart, Restart: c.restart,
+		},
+		Serial: c.serial,
+	}
+	if err := s.Chart.Validate(); err != nil {
+		return s, usageError{err.Error()}
+	}
+	switch c.method {
+	case string(monitor.Normal), string(monitor.Bootstrap):
+	default:
+		return s, usagef("--method must be normal or bootstrap, not %q", c.method)
+	}
+	if c.gap < 0 || math.IsNaN(c.gap) {
+		return s, usagef("--gap must be positive")
+	}
+	return s, nil
+}
+
+func (c *chartFlags) limitOptions(progress func(done, total int)) screening.LimitOptions {
+	return screening.LimitOptions{
+		Method: monitor.Method(c.method), Gap: c.gap, Seed: c.seed, Paths: c.paths, Progress: progress,
+	}
+}
+
+// calibrationWithoutModel is used when no model is given: i.i.d. N(0,1)
+// values at a fixed gap, method normal only.
+func (c *chartFlags) calibrationWithoutModel(s screening.Settings) (monitor.Calibration, error) {
+	if c.gap <= 0 {
+		return monitor.Calibration{}, usagef("without --model, give the planned years between exams with --gap")
+	}
+	if c.method != string(monitor.Normal) {
+		return monitor.Calibration{}, usagef("--method bootstrap needs --model (it resamples the reference workers)")
+	}
+	if c.serial == screening.SerialWhiten {
+		return monitor.Calibration{}, usagef("--serial whiten needs --model (it uses the fitted serial correlation)")
+	}
+	return monitor.Calibration{
+		Settings: monitor.Settings{Chart: s.Chart, Mode: monitor.Direct, Serial: serial.Params{}},
+		Method:   monitor.Normal, Gap: c.gap, Seed: c.seed, Paths: c.paths,
+	}, nil
+}
+
+func mcProgress(e *env) (func(done, total int), func()) {
+	p := newProgress(e)
+	return func(done, total int) {
+			if total > 0 {
+				p.report("simulating", float64(done)/float64(total))
+			}
+		}, p.finish
+}
+
+func runLimit(e *env, args []string) error {
+	fs := newFlags(e, "limit", "[--model M.json] --target YEARS [--chart cusum|ewma] [--allowance K] [--lambda L] [--side up|down|both] [--gap YEARS] [--method normal|bootstrap]")
+	var cf chartFlags
+	cf.register(fs)
+	model := fs.String("model", "", "model file written by veer fit (optional with --gap and method normal)")
+	target := fs.Float64("target", 0, "average years to a false signal for a healthy worker (required)")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if !(*target > 0) {
+		return usagef("--target must be a positive number of years, e.g. 20")
+	}
+	s, err := cf.settings()
+	if err != nil {
+		return err
+	}
+	prog, done := mcProgress(e)
+	var res monitor.LimitResult
+	if *model == "" {
+		c, err := cf.calibrationWithoutModel(s)
+		if err != nil {
+			return err
+		}
+		c.Progress = prog
+		res, err = monitor.Limit(c, *target)
+		done()
+		if err != nil {
+			return err
+		}
+	} else {
+		m, err := loadModel(*model)
+		if err != nil {
+			return err
+		}
+		res, err = m.Limit(s, cf.limitOptions(prog), *target)
+		done()
+		if err != nil {
+			return err
+		}
+	}
+	describeLimit(e, res, *target)
+	fmt.Fprintf(e.stdout, "%.4f\n", res.H)
+	return nil
+}
+
+func describeLimit(e *env, r monitor.LimitResult, target float64) {
+	how := "exact (i.i.d. normal values)"
+	if !r.Exact {
+		how = fmt.Sprintf("Monte Carlo, %d paths, standard error %.2f years (%.1f%% of target), limit ±%.3f", r.Paths, r.SE, 100*r.SE/target, r.SEH)
+	}
+	fmt.Fprintf(e.stderr, "limit %.4f: average time to a false signal %.2f years at a mean gap of %.2f years; %s\n", r.H, r.ATS, r.MeanGap, how)
+}
+
+func runDelay(e *env, args []string) error {
+	fs := newFlags(e, "delay", "[--model M.json] (--limit H | --target YEARS) --shift SDS [--onset YEARS] [chart flags]")
+	var cf chartFlags
+	cf.register(fs)
+	model := fs.String("model", "", "model file written by veer fit (optional with --gap)")
+	limitH := fs.Float64("limit", 0, "control limit h (or give --target)")
+	target := fs.Float64("target", 0, "average years to a false signal, to compute the limit")
+	shift := fs.Float64("shift", 1, "sustained shift of the readings, in reference SDs (negative for downward)")
+	onset := fs.Float64("onset", 0, "years after the first exam at which the shift starts")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if (*limitH > 0) == (*target > 0) {
+		return usagef("give exactly one of --limit and --target")
+	}
+	if *onset < 0 {
+		return usagef("--onset must not be negative")
+	}
+	s, err := cf.settings()
+	if err != nil {
+		return err
+	}
+	prog, done := mcProgress(e)
+	defer done()
+	var c monitor.Calibration
+	if *model == "" {
+		if c, err = cf.calibrationWithoutModel(s); err != nil {
+			return err
+		}
+		c.Progress = prog
+	} else {
+		m, err := loadModel(*model)
+		if err != nil {
+			return err
+		}
+		if c, err = m.Calibration(s, cf.limitOptions(prog)); err != nil {
+			return err
+		}
+	}
+	h := *limitH
+	if *target > 0 {
+		r, err := monitor.Limit(c, *target)
+		if err != nil {
+			return err
+		}
+		describeLimit(e, r, *target)
+		h = r.H
+	}
+	d, err := monitor.Delay(c, h, *shift, *onset)
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(e.stderr, "limit %.4f, shift %+g SD from %g years after the first exam: %d paths, standard error %.2f years\n", h, *shift, *onset, d.Paths, d.SE)
+	fmt.Fprintf(e.stdout, "%.4f\n", d.Years)
+	return nil
+}

@@ -1,0 +1,147 @@
+// Command veer screens workers' irregular medical exams against reference
+// curves from a healthy cohort. Its standard output is data, its standard
+// error is talk; it exits 0 on success, 1 when the work failed (bad data,
+// unreadable model) and 2 when the command line itself is wrong.
+//
+// A signal from veer is a prompt for review by a licensed clinician under
+// local occupational-health rules, not a diagnosis.
+package main
+
+import (
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"strings"
+)
+
+// command is one veer subcommand.
+type command struct {
+	name    string
+	summary string
+	run     func(env *env, args []string) error
+}
+
+// env carries the process streams so commands can be tested in-process.
+type env struct {
+	stdout io.Writer
+	stderr io.Writer
+	stdin  io.Reader
+}
+
+// usageError marks a wrong command line (exit code 2).
+type usageError struct{ msg string }
+
+func (e usageError) Error() string { return e.msg }
+
+func usagef(format string, a ...any) error { return usageError{fmt.Sprintf(format, a...)} }
+
+func commands() []command {
+	return []command{
+		{"fit", "fit a reference model from a CSV of healthy workers' exams", runFit},
+		{"curve", "print reference mean, sd and centiles at given ages", runCurve},
+		{"limit", "compute the control limit for a target time to a false signal", runLimit},
+		{"delay", "expected years from the start of a sustained shift to a signal", runDelay},
+		{"screen", "screen a CSV of exams against a model and write results", runScreen},
+		{"serve", "run the local function server for spreadsheet add-ins", runServe},
+		{"token", "print the write token that add-ins need (creating it if needed)", runToken},
+		{"demo", "run the whole screening job on the embedded demo data", runDemo},
+	}
+}
+
+const caution = "A signal is a prompt for review by a licensed clinician under local occupational-health rules, not a diagnosis."
+
+func mainUsage(w io.Writer) {
+	fmt.Fprintln(w, "veer — screening of workers' medical exams against healthy reference curves")
+	fmt.Fprintln(w)
+	fmt.Fprintln(w, "Usage: veer <command> [flags]   (veer <command> --help for the flags)")
+	fmt.Fprintln(w)
+	cmds := commands()
+	for _, c := range cmds {
+		fmt.Fprintf(w, "  %-8s %s\n", c.name, c.summary)
+	}
+	fmt.Fprintln(w)
+	fmt.Fprintln(w, caution)
+}
+
+func main() {
+	os.Exit(run(&env{stdout: os.Stdout, stderr: os.Stderr, stdin: os.Stdin}, os.Args[1:]))
+}
+
+// run executes one command line and returns the exit code.
+func run(e *env, args []string) int {
+	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
+		mainUsage(e.stderr)
+		if len(args) == 0 {
+			return 2
+		}
+		return 0
+	}
+	for _, c := range commands() {
+		if c.name != args[0] {
+			continue
+		}
+		err := c.run(e, args[1:])
+		if err == nil {
+			return 0
+		}
+		if errors.Is(err, flag.ErrHelp) {
+			return 0
+		}
+		var ue usageError
+		if errors.As(err, &ue) {
+			fmt.Fprintf(e.stderr, "veer %s: %v\n", c.name, err)
+			fmt.Fprintf(e.stderr, "Run 'veer %s --help' for the flags.\n", c.name)
+			return 2
+		}
+		fmt.Fprintf(e.stderr, "veer %s: %v\n", c.name, err)
+		return 1
+	}
+	fmt.Fprintf(e.stderr, "veer: unknown command %q; the commands are: %s\n", args[0], commandNames())
+	return 2
+}
+
+func commandNames() string {
+	var n []string
+	for _, c := range commands() {
+		n = append(n, c.name)
+	}
+	return strings.Join(n, ", ")
+}
+
+// newFlags makes a flag set whose errors are returned, not printed-and-exited,
+// with a usage text that lists the flags.
+func newFlags(e *env, name, synopsis string) *flag.FlagSet {
+	fs := flag.NewFlagSet("veer "+name, flag.ContinueOnError)
+	fs.SetOutput(e.stderr)
+	fs.Usage = func() {
+		fmt.Fprintf(e.stderr, "Usage: veer %s %s\n\nFlags:\n", name, synopsis)
+		fs.PrintDefaults()
+	}
+	return fs
+}
+
+// parseFlags parses and turns flag errors into usage errors.
+func parseFlags(fs *flag.FlagSet, args []string) error {
+	if err := fs.Parse(args); err != nil {
+		if errors.Is(err, flag.ErrHelp) {
+			return err
+		}
+		return usageError{err.Error()}
+	}
+	if fs.NArg() > 0 {
+		return usagef("unexpected argument %q", fs.Arg(0))
+	}
+	return nil
+}
+
+// required reports a usage error for any named flag left empty.
+func required(pairs ...string) error {
+	for i := 0; i+1 < len(pairs); i += 2 {
+		if pairs[i+1] == "" {
+			return usagef("--%s is required", pairs[i])
+		}
+	}
+	return nil
+}

@@ -1,0 +1,360 @@
+package scenario
+
+import (
+	"bytes"
+	"fmt"
+	"math"
+	"regexp"
+	"strings"
+	"testing"
+)
+
+func TestConfigValidate(t *testing.T) {
+	tests := []struct {
+		name   string
+		change func(*Config)
+		want   string // "" means valid
+	}{
+		{"default", func(*Config) {}, ""},
+		{"no reference", func(c *Config) { c.ReferenceWorkers = 0 }, "ReferenceWorkers is 0"},
+		{"too many workers", func(c *Config) { c.WorkforceWorkers = 100000 }, "WorkforceWorkers is 100000"},
+		{"share above 1", func(c *Config) { c.AffectedShare = 1.5 }, "AffectedShare is 1.5"},
+		{"share NaN", func(c *Config) { c.AffectedShare = math.NaN() }, "AffectedShare is NaN"},
+		{"phi 1", func(c *Config) { c.Phi = 1 }, "Phi is 1"},
+		{"phi 0", func(c *Config) { c.Phi = 0 }, "Phi is 0"},
+		{"c negative", func(c *Config) { c.Share = -0.1 }, "Share is -0.1"},
+		{"cross corr -1", func(c *Config) { c.CrossCorr = -1 }, "CrossCorr is -1"},
+		{"edge values", func(c *Config) { c.Share, c.AffectedShare, c.Phi = 1, 0, 0.01 }, ""},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			cfg := DefaultConfig()
+			tc.change(&cfg)
+			err := cfg.Validate()
+			_, genErr := Generate(cfg)
+			if tc.want == "" {
+				if err != nil || genErr != nil {
+					t.Fatalf("Validate() = %v, Generate error %v; want both nil", err, genErr)
+				}
+				return
+			}
+			if err == nil || !strings.Contains(err.Error(), tc.want) {
+				t.Fatalf("Validate() = %v; want an error mentioning %q", err, tc.want)
+			}
+			if genErr == nil {
+				t.Fatal("Generate accepted a config that Validate rejects")
+			}
+		})
+	}
+}
+
+func TestGenerateReproducible(t *testing.T) {
+	cfg := DefaultConfig()
+	cfg.ReferenceWorkers, cfg.WorkforceWorkers = 60, 40
+	a, err := Generate(cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, _ := Generate(cfg)
+	for _, f := range []struct {
+		name string
+		x, y []byte
+	}{
+		{"reference", a.ReferenceCSV(), b.ReferenceCSV()},
+		{"workforce", a.WorkforceCSV(), b.WorkforceCSV()},
+		{"truth", a.TruthCSV(), b.TruthCSV()},
+	} {
+		if !bytes.Equal(f.x, f.y) {
+			t.Errorf("%s: two runs with the same config differ", f.name)
+		}
+	}
+
+	other := cfg
+	other.Seed++
+	c, _ := Generate(other)
+	if bytes.Equal(a.ReferenceCSV(), c.ReferenceCSV()) || bytes.Equal(a.WorkforceCSV(), c.WorkforceCSV()) {
+		t.Error("a different seed gave the same exams")
+	}
+
+	// Each worker has its own stream: a larger cohort keeps the first workers.
+	bigger := cfg
+	bigger.ReferenceWorkers, bigger.WorkforceWorkers = 90, 55
+	d, _ := Generate(bigger)
+	if !bytes.HasPrefix(d.ReferenceCSV(), a.ReferenceCSV()) || !bytes.HasPrefix(d.WorkforceCSV(), a.WorkforceCSV()) ||
+		!bytes.HasPrefix(d.TruthCSV(), a.TruthCSV()) {
+		t.Error("growing a cohort changed the workers already generated")
+	}
+}
+
+// TestSchedule checks the exam schedule of the documented model on the
+// default scenario: ids, groups, ages in range and strictly increasing per
+// worker, at least three exams, gaps within the mixture's ranges, and
+// cohort sizes close to the documented ones.
+func TestSchedule(t *testing.T) {
+	s, err := Generate(DefaultConfig())
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		name     string
+		exams    []Exam
+		id       *regexp.Regexp
+		workers  int
+		minExams int // documented size: ~1,500 workers ~10k exams; ~800 workers ~5k exams
+		maxExams int
+	}{
+		{"reference", s.Reference, regexp.MustCompile(`^R\d{5}$`), 1500, 9000, 10500},
+		{"workforce", s.Workforce, regexp.MustCompile(`^W\d{5}$`), 800, 4700, 5600},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			if n := len(c.exams); n < c.minExams || n > c.maxExams {
+				t.Errorf("%d exams, want %d to %d", n, c.minExams, c.maxExams)
+			}
+			count := map[string]int{}
+			for i, e := range c.exams {
+				count[e.Worker]++
+				if !c.id.MatchString(e.Worker) {
+					t.Fatalf("row %d: worker id %q", i, e.Worker)
+				}
+				if e.Group != Tower && e.Group != Workshop {
+					t.Fatalf("row %d: group %q", i, e.Group)
+				}
+				if e.Age < MinAge || e.Age > MaxAge {
+					t.Fatalf("row %d: age %v outside %v..%v", i, e.Age, MinAge, MaxAge)
+				}
+				if e.SBP < 60 || e.SBP > 260 || e.FEV1 < 0.5 || e.FEV1 > 7 {
+					t.Fatalf("row %d: implausible readings SBP %v, FEV1 %v", i, e.SBP, e.FEV1)
+				}
+				if i == 0 || c.exams[i-1].Worker != e.Worker {
+					continue
+				}
+				prev := c.exams[i-1]
+				if prev.Worker > e.Worker {
+					t.Fatalf("row %d: workers out of order", i)
+				}
+				if prev.Group != e.Group {
+					t.Fatalf("row %d: worker %s changed group", i, e.Worker)
+				}
+				// Ages are rounded to 0.01, so a gap may move by up to 0.01.
+				gap := e.Age - prev.Age
+				inMix := (gap >= gapAdhocMin-0.01 && gap <= gapAdhocMax+0.01) ||
+					(gap >= gapPeriodicMin-0.01 && gap <= gapPeriodicMax+0.01) ||
+					(gap >= gapMissedMin-0.01 && gap <= gapMissedMax+0.01)
+				if !(gap > 0) || !inMix {
+					t.Fatalf("row %d: worker %s gap %v is not strictly positive or not in the gap mixture", i, e.Worker, gap)
+				}
+			}
+			if len(count) != c.workers {
+				t.Errorf("%d workers, want %d", len(count), c.workers)
+			}
+			for w, n := range count {
+				if n < minExams {
+					t.Errorf("worker %s has %d exams, want at least %d", w, n, minExams)
+				}
+			}
+		})
+	}
+}
+
+// TestReferenceMatchesCurves checks that the healthy reference cohort
+// follows the documented curves: in every group, marker and 5-year age
+// band the standardised readings z have mean 0 within 4 cluster-robust
+// standard errors (clusters are workers, because a worker's exams are
+// correlated) and mean square 1 within 5 of them. The mean square gets the
+// wider bound because its estimated SE shrinks together with it, so the
+// ratio has a heavy lower tail: over seeds 1-40, 1 of 1,440 mean-square
+// checks passed 4 SE and none passed 5. Two seeds, so a lucky draw cannot
+// pass.
+func TestReferenceMatchesCurves(t *testing.T) {
+	for _, seed := range []uint64{DefaultSeed, 99} {
+		cfg := DefaultConfig()
+		cfg.Seed = seed
+		s, err := Generate(cfg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		ex := standardiseAll(t, s.Reference)
+		for _, m := range []Marker{SBP, FEV1} {
+			for _, g := range Groups() {
+				for lo := 20.0; lo < 65; lo += 5 {
+					var z, z2 []float64
+					var w []string
+					for _, e := range ex {
+						if e.Group == g && e.Age >= lo && (e.Age < lo+5 || lo+5 == MaxAge) {
+							z = append(z, e.z[m])
+							z2 = append(z2, e.z[m]*e.z[m])
+							w = append(w, e.Worker)
+						}
+					}
+					if len(z) < 100 {
+						t.Errorf("seed %d %v %s %v-%v: only %d exams", seed, m, g, lo, lo+5, len(z))
+						continue
+					}
+					mean, se := clusterMean(z, w)
+					if math.Abs(mean) > 4*se {
+						t.Errorf("seed %d %v %s ages %v-%v: mean z %.3f, more than 4 SE (%.3f) from 0", seed, m, g, lo, lo+5, mean, se)
+					}
+					ms, se2 := clusterMean(z2, w)
+					if math.Abs(ms-1) > 5*se2 {
+						t.Errorf("seed %d %v %s ages %v-%v: mean z² %.3f, more than 5 SE (%.3f) from 1", seed, m, g, lo, lo+5, ms, se2)
+					}
+				}
+			}
+		}
+	}
+}
+
+// TestSerialCorrelation checks that the reference residuals carry the
+// documented serial correlation: the least-squares fit of
+// z_j z_{j+1} = c φ^d recovers φ and c, for the default and for other
+// settings, and the same-exam correlation of the markers is ρ.
+// Tolerances are about 3.5 standard errors of the fits (SE ≈ 0.045 for
+// both φ and c with ~8,000 pairs, from scipy.optimize.curve_fit in
+// testdata/fixtures.json).
+func TestSerialCorrelation(t *testing.T) {
+	tests := []struct {
+		phi, c, rho float64
+	}{
+		{0.6, 0.6, -0.2},
+		{0.3, 0.8, 0},
+		{0.8, 0.4, 0.3},
+	}
+	for _, tc := range tests {
+		t.Run(fmt.Sprintf("phi=%v c=%v rho=%v", tc.phi, tc.c, tc.rho), func(t *testing.T) {
+			cfg := DefaultConfig()
+			cfg.Phi, cfg.Share, cfg.CrossCorr = tc.phi, tc.c, tc.rho
+			s, err := Generate(cfg)
+			if err != nil {
+				t.Fatal(err)
+			}
+			ex := standardiseAll(t, s.Reference)
+			for _, m := range []Marker{SBP, FEV1} {
+				c, phi := fitSerial(lagPairs(ex, m))
+				if math.Abs(phi-tc.phi) > 0.16 || math.Abs(c-tc.c) > 0.16 {
+					t.Errorf("%v: fitted φ = %.3f, c = %.3f; want %v, %v", m, phi, c, tc.phi, tc.c)
+				}
+			}
+			zs, zf := make([]float64, len(ex)), make([]float64, len(ex))
+			for i, e := range ex {
+				zs[i], zf[i] = e.z[SBP], e.z[FEV1]
+			}
+			// SE of a correlation from ~9,500 exams in ~1,500 clusters is
+			// below 0.02; 0.07 allows for the clustering.
+			if r := correlation(zs, zf); math.Abs(r-tc.rho) > 0.07 {
+				t.Errorf("same-exam correlation of the markers = %.3f, want %v", r, tc.rho)
+			}
+		})
+	}
+}
+
+// TestTruth checks the affected workers: share near AffectedShare for each
+// marker, onset strictly inside the worker's exam span at the documented
+// fraction, slopes in the documented ranges with the documented sign, and
+// readings that really drift (mean z two or more years after onset beyond
+// 1 SD in the right direction, unaffected workers near 0).
+func TestTruth(t *testing.T) {
+	for _, share := range []float64{0.15, 0.4} {
+		cfg := DefaultConfig()
+		cfg.AffectedShare = share
+		s, err := Generate(cfg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(s.Truth) != cfg.WorkforceWorkers {
+			t.Fatalf("%d truth rows, want %d", len(s.Truth), cfg.WorkforceWorkers)
+		}
+		span := map[string][2]float64{}
+		for _, e := range s.Workforce {
+			sp, ok := span[e.Worker]
+			if !ok {
+				sp[0] = e.Age
+			}
+			sp[1] = e.Age
+			span[e.Worker] = sp
+		}
+		ex := standardiseAll(t, s.Workforce)
+		for _, m := range []Marker{SBP, FEV1} {
+			sign, slopeMin, slopeMax := 1.0, slopeSBPMin, slopeSBPMax
+			if m == FEV1 {
+				sign, slopeMin, slopeMax = -1, slopeFEV1Min, slopeFEV1Max
+			}
+			onsets := map[string]Onset{}
+			for _, tr := range s.Truth {
+				o := tr.SBP
+				if m == FEV1 {
+					o = tr.FEV1
+				}
+				if !o.Affected {
+					if o != (Onset{}) {
+						t.Errorf("%v %s: unaffected worker has onset %+v", m, tr.Worker, o)
+					}
+					continue
+				}
+				onsets[tr.Worker] = o
+				sp := span[tr.Worker]
+				frac := (o.Age - sp[0]) / (sp[1] - sp[0])
+				if !(o.Age > sp[0] && o.Age < sp[1]) || frac < onsetFracMin-0.01 || frac > onsetFracMax+0.01 {
+					t.Errorf("%v %s: onset %v not inside exams %v-%v at fraction %v-%v", m, tr.Worker, o.Age, sp[0], sp[1], onsetFracMin, onsetFracMax)
+				}
+				if b := sign * o.Slope; b < slopeMin || b > slopeMax {
+					t.Errorf("%v %s: slope %v, want sign %v and size %v-%v", m, tr.Worker, o.Slope, sign, slopeMin, slopeMax)
+				}
+			}
+			n := float64(len(s.Truth))
+			got := float64(len(onsets)) / n
+			if se := math.Sqrt(share * (1 - share) / n); math.Abs(got-share) > 4*se {
+				t.Errorf("%v: share affected %.3f, want %v within 4 binomial SE (%.3f)", m, got, share, se)
+			}
+			var late, healthy []float64
+			for _, e := range ex {
+				if o, ok := onsets[e.Worker]; ok {
+					if e.Age >= o.Age+2 {
+						late = append(late, e.z[m])
+					}
+				} else {
+					healthy = append(healthy, e.z[m])
+				}
+			}
+			lateMean, healthyMean := mean(late), mean(healthy)
+			if sign*lateMean < 1 || math.Abs(healthyMean) > 0.1 {
+				t.Errorf("%v: mean z 2+ years after onset %.2f (want beyond %v), unaffected %.3f (want near 0)", m, lateMean, sign, healthyMean)
+			}
+		}
+	}
+}
+
+func mean(x []float64) float64 {
+	var s float64
+	for _, v := range x {
+		s += v
+	}
+	return s / float64(len(x))
+}
+
+func TestNoneAffected(t *testing.T) {
+	cfg := DefaultConfig()
+	cfg.AffectedShare = 0
+	cfg.ReferenceWorkers, cfg.WorkforceWorkers = 10, 200
+	s, err := Generate(cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tr := range s.Truth {
+		if tr.SBP.Affected || tr.FEV1.Affected {
+			t.Fatalf("worker %s affected with AffectedShare 0", tr.Worker)
+		}
+	}
+}
+
+func BenchmarkGenerate(b *testing.B) {
+	cfg := DefaultConfig()
+	for b.Loop() {
+		s, err := Generate(cfg)
+		if err != nil {
+			b.Fatal(err)
+		}
+		_ = s.ReferenceCSV()
+		_ = s.WorkforceCSV()
+		_ = s.TruthCSV()
+	}
+}

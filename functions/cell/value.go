@@ -1,0 +1,516 @@
+package cell
+
+import (
+	"encoding/json"
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+	"unicode/utf8"
+)
+
+// Kind is the kind of a spreadsheet cell value.
+type Kind uint8
+
+// The kinds of cell values a spreadsheet sends.
+const (
+	KindBlank  Kind = iota // an empty cell or omitted argument (JSON null)
+	KindNumber             // a number (JSON number); dates arrive as serial numbers
+	KindText               // text (JSON string)
+	KindBool               // TRUE or FALSE (JSON true/false)
+	KindError              // an error value such as #N/A (JSON {"error": "#N/A"})
+)
+
+// String returns the kind's name as used in messages.
+func (k Kind) String() string {
+	switch k {
+	case KindBlank:
+		return "blank"
+	case KindNumber:
+		return "number"
+	case KindText:
+		return "text"
+	case KindBool:
+		return "boolean"
+	case KindError:
+		return "error"
+	}
+	return "Kind(" + strconv.Itoa(int(k)) + ")"
+}
+
+// Cell is one spreadsheet cell value. Num holds a number, B a boolean and Str
+// a text or, for KindError, the error code (#N/A, ...). The zero Cell is blank.
+type Cell struct {
+	Kind Kind
+	B    bool
+	Num  float64
+	Str  string
+}
+
+// NumberCell returns a number cell.
+func NumberCell(f float64) Cell { return Cell{Kind: KindNumber, Num: f} }
+
+// TextCell returns a text cell.
+func TextCell(s string) Cell { return Cell{Kind: KindText, Str: s} }
+
+// BoolCell returns a boolean cell.
+func BoolCell(b bool) Cell { return Cell{Kind: KindBool, B: b} }
+
+// ErrorCell returns an error cell with the code normalised by NormalizeCode.
+func ErrorCell(code string) Cell {
+	c, _ := NormalizeCode(code)
+	return Cell{Kind: KindError, Str: c}
+}
+
+// IsBlank reports whether c is blank.
+func (c Cell) IsBlank() bool { return c.Kind == KindBlank }
+
+// String describes the cell for messages, e.g. `text "abc"`, `the number 3`.
+func (c Cell) String() string {
+	switch c.Kind {
+	case KindBlank:
+		return "a blank cell"
+	case KindNumber:
+		return "the number " + FormatNumber(c.Num)
+	case KindText:
+		return "text " + quoteShort(c.Str)
+	case KindBool:
+		if c.B {
+			return "TRUE"
+		}
+		return "FALSE"
+	case KindError:
+		return "the error " + c.Str
+	}
+	return "a cell of unknown kind"
+}
+
+// FormatNumber formats a number the way it is shown in messages and when a
+// number is used as text (an id typed as 1001 becomes "1001").
+func FormatNumber(f float64) string {
+	if math.Abs(f) < 1e15 {
+		return strconv.FormatFloat(f, 'f', -1, 64)
+	}
+	return strconv.FormatFloat(f, 'g', -1, 64)
+}
+
+// quoteShort quotes s for a message, cutting it to 40 runes.
+func quoteShort(s string) string {
+	if utf8.RuneCountInString(s) > 40 {
+		r := []rune(s)
+		s = string(r[:40]) + "…"
+	}
+	return strconv.Quote(s)
+}
+
+type valueKind uint8
+
+const (
+	valueAbsent valueKind = iota
+	valueScalar
+	valueRange
+)
+
+// Value is one argument of a cell call: a single cell or a rectangular range
+// (rows of cells). The zero Value is an absent (omitted) argument.
+type Value struct {
+	kind valueKind
+	c    Cell
+	rows [][]Cell
+	cols int
+}
+
+// ScalarValue returns a single-cell argument.
+func ScalarValue(c Cell) Value { return Value{kind: valueScalar, c: c} }
+
+// ColumnValue returns a range with one column holding cells top to bottom.
+func ColumnValue(cells []Cell) Value {
+	rows := make([][]Cell, len(cells))
+	for i := range cells {
+		rows[i] = cells[i : i+1 : i+1]
+	}
+	cols := 1
+	if len(cells) == 0 {
+		cols = 0
+	}
+	return Value{kind: valueRange, rows: rows, cols: cols}
+}
+
+// RangeValue returns a range argument from rows of cells. Rows must all have
+// the same number of cells (spreadsheet ranges are rectangular); a range
+// whose rows are all empty is the empty range.
+func RangeValue(rows [][]Cell) (Value, error) {
+	if rows == nil {
+		rows = [][]Cell{}
+	}
+	cols := -1
+	empty := true
+	for i, r := range rows {
+		if cols < 0 {
+			cols = len(r)
+		} else if len(r) != cols {
+			return Value{}, ValueError("the range is not rectangular: row %d has %d cells but row 1 has %d", i+1, len(r), cols)
+		}
+		if len(r) > 0 {
+			empty = false
+		}
+	}
+	if empty {
+		return Value{kind: valueRange, rows: [][]Cell{}, cols: 0}, nil
+	}
+	return Value{kind: valueRange, rows: rows, cols: cols}, nil
+}
+
+// IsAbsent reports whether the argument was not given at all.
+func (v Value) IsAbsent() bool { return v.kind == valueAbsent }
+
+// IsScalar reports whether the argument is a single cell (not a range).
+func (v Value) IsScalar() bool { return v.kind == valueScalar }
+
+// IsRange reports whether the argument is a range (possibly 1x1 or empty).
+func (v Value) IsRange() bool { return v.kind == valueRange }
+
+// IsMissing reports whether the argument is absent or a single blank cell:
+// this is how spreadsheets pass an omitted optional argument.
+func (v Value) IsMissing() bool {
+	switch v.kind {
+	case valueAbsent:
+		return true
+	case valueScalar:
+		return v.c.Kind == KindBlank
+	}
+	return false
+}
+
+// Cell returns the single cell of a scalar argument or of a 1x1 range.
+func (v Value) Cell() (Cell, bool) {
+	switch v.kind {
+	case valueScalar:
+		return v.c, true
+	case valueRange:
+		if len(v.rows) == 1 && v.cols == 1 {
+			return v.rows[0][0], true
+		}
+	case valueAbsent:
+		return Cell{}, true
+	}
+	return Cell{}, false
+}
+
+// Dims returns the number of rows and columns (1x1 for a scalar, 0x0 when
+// absent or empty).
+func (v Value) Dims() (rows, cols int) {
+	switch v.kind {
+	case valueScalar:
+		return 1, 1
+	case valueRange:
+		return len(v.rows), v.cols
+	}
+	return 0, 0
+}
+
+// Rows returns the cells row by row; a scalar is one row of one cell. The
+// slices are shared with the Value: do not modify them.
+func (v Value) Rows() [][]Cell {
+	switch v.kind {
+	case valueScalar:
+		return [][]Cell{{v.c}}
+	case valueRange:
+		return v.rows
+	}
+	return nil
+}
+
+// at returns cell (r, c) of the value, 0-based.
+func (v Value) at(r, c int) Cell {
+	if v.kind == valueScalar {
+		return v.c
+	}
+	return v.rows[r][c]
+}
+
+// ValueOf converts a Go value to an argument: nil (absent), Cell, Value,
+// numbers, string, bool, *Error (an error cell), 1-D slices ([]float64,
+// []string, []bool, []Cell, []any: one column) and 2-D slices ([][]float64,
+// [][]string, [][]Cell, [][]any, []any of slices: rows). JSON-decoded values
+// (map[string]any{"error": "#N/A"}) are accepted too.
+func ValueOf(x any) (Value, error) {
+	switch t := x.(type) {
+	case nil:
+		return Value{}, nil
+	case Value:
+		return t, nil
+	case []float64:
+		cells := make([]Cell, len(t))
+		for i, f := range t {
+			cells[i] = NumberCell(f)
+		}
+		return ColumnValue(cells), nil
+	case []string:
+		cells := make([]Cell, len(t))
+		for i, s := range t {
+			cells[i] = TextCell(s)
+		}
+		return ColumnValue(cells), nil
+	case []bool:
+		cells := make([]Cell, len(t))
+		for i, b := range t {
+			cells[i] = BoolCell(b)
+		}
+		return ColumnValue(cells), nil
+	case []Cell:
+		return ColumnValue(append([]Cell(nil), t...)), nil
+	case [][]Cell:
+		rows := make([][]Cell, len(t))
+		for i, r := range t {
+			rows[i] = append([]Cell(nil), r...)
+		}
+		return RangeValue(rows)
+	case [][]float64:
+		rows := make([][]Cell, len(t))
+		for i, r := range t {
+			rows[i] = make([]Cell, len(r))
+			for j, f := range r {
+				rows[i][j] = NumberCell(f)
+			}
+		}
+		return RangeValue(rows)
+	case [][]string:
+		rows := make([][]Cell, len(t))
+		for i, r := range t {
+			rows[i] = make([]Cell, len(r))
+			for j, s := range r {
+				rows[i][j] = TextCell(s)
+			}
+		}
+		return RangeValue(rows)
+	case [][]any:
+		rows := make([][]Cell, len(t))
+		for i, r := range t {
+			rows[i] = make([]Cell, len(r))
+			for j, e := range r {
+				c, err := cellOf(e)
+				if err != nil {
+					return Value{}, ValueError("row %d, column %d: %s", i+1, j+1, err.Message)
+				}
+				rows[i][j] = c
+			}
+		}
+		return RangeValue(rows)
+	case []any:
+		return sliceValue(t)
+	}
+	c, err := cellOf(x)
+	if err != nil {
+		return Value{}, err
+	}
+	return ScalarValue(c), nil
+}
+
+// sliceValue converts a decoded JSON array: an array of arrays is rows, an
+// array of single cells is one column; mixing both is an error.
+func sliceValue(t []any) (Value, error) {
+	if len(t) == 0 {
+		return RangeValue(nil)
+	}
+	_, nested := t[0].([]any)
+	if !nested {
+		cells := make([]Cell, len(t))
+		for i, e := range t {
+			if _, ok := e.([]any); ok {
+				return Value{}, ValueError("the array mixes single cells and rows (element %d is a row, element 1 is a cell)", i+1)
+			}
+			c, err := cellOf(e)
+			if err != nil {
+				return Value{}, ValueError("row %d: %s", i+1, err.Message)
+			}
+			cells[i] = c
+		}
+		return ColumnValue(cells), nil
+	}
+	rows := make([][]Cell, len(t))
+	for i, e := range t {
+		r, ok := e.([]any)
+		if !ok {
+			return Value{}, ValueError("the array mixes rows and single cells (element %d is a cell, element 1 is a row)", i+1)
+		}
+		rows[i] = make([]Cell, len(r))
+		for j, x := range r {
+			if _, deep := x.([]any); deep {
+				return Value{}, ValueError("row %d, column %d: arrays nest at most two deep (rows of cells)", i+1, j+1)
+			}
+			c, err := cellOf(x)
+			if err != nil {
+				return Value{}, ValueError("row %d, column %d: %s", i+1, j+1, err.Message)
+			}
+			rows[i][j] = c
+		}
+	}
+	return RangeValue(rows)
+}
+
+// cellOf converts a single Go value to a cell.
+func cellOf(x any) (Cell, *Error) {
+	switch t := x.(type) {
+	case nil:
+		return Cell{}, nil
+	case Cell:
+		return t, nil
+	case float64:
+		return NumberCell(t), nil
+	case float32:
+		return NumberCell(float64(t)), nil
+	case int:
+		return NumberCell(float64(t)), nil
+	case int64:
+		return NumberCell(float64(t)), nil
+	case int32:
+		return NumberCell(float64(t)), nil
+	case uint:
+		return NumberCell(float64(t)), nil
+	case uint64:
+		return NumberCell(float64(t)), nil
+	case uint32:
+		return NumberCell(float64(t)), nil
+	case json.Number:
+		f, err := strconv.ParseFloat(string(t), 64)
+		if err != nil || math.IsInf(f, 0) {
+			return Cell{}, ValueError("%s is not a number a spreadsheet can hold", string(t))
+		}
+		return NumberCell(f), nil
+	case string:
+		return TextCell(t), nil
+	case bool:
+		return BoolCell(t), nil
+	case *Error:
+		if t == nil {
+			return Cell{}, nil
+		}
+		return ErrorCell(t.Code), nil
+	case Error:
+		return ErrorCell(t.Code), nil
+	case map[string]any:
+		return errorObjectCell(t)
+	}
+	return Cell{}, ValueError("a cell cannot hold a Go %T", x)
+}
+
+// errorObjectCell converts {"error": "#N/A"} (with an optional "message").
+func errorObjectCell(m map[string]any) (Cell, *Error) {
+	code, ok := m["error"].(string)
+	if !ok {
+		return Cell{}, ValueError(`an object in a cell must be an error value like {"error": "#N/A"}`)
+	}
+	for k, v := range m {
+		switch k {
+		case "error":
+		case "message":
+			if _, ok := v.(string); !ok {
+				return Cell{}, ValueError(`the "message" of an error value must be text`)
+			}
+		default:
+			return Cell{}, ValueError(`an error value has only "error" and "message" fields, not %q`, k)
+		}
+	}
+	return ErrorCell(code), nil
+}
+
+// MarshalJSON encodes the cell as a spreadsheet sends it: number, text,
+// boolean, null or {"error": code}. NaN and infinities encode as #NUM!.
+func (c Cell) MarshalJSON() ([]byte, error) {
+	return appendCell(nil, c), nil
+}
+
+// UnmarshalJSON decodes a cell from a number, text, boolean, null or an
+// error value {"error": "#N/A"}.
+func (c *Cell) UnmarshalJSON(data []byte) error {
+	var x any
+	if err := json.Unmarshal(data, &x); err != nil {
+		return err
+	}
+	if _, ok := x.([]any); ok {
+		return ValueError("a cell cannot hold an array")
+	}
+	v, err := cellOf(x)
+	if err != nil {
+		return err
+	}
+	*c = v
+	return nil
+}
+
+// MarshalJSON encodes the value: a scalar as a cell, a range as an array of
+// rows, an absent value as null.
+func (v Value) MarshalJSON() ([]byte, error) {
+	switch v.kind {
+	case valueScalar:
+		return appendCell(nil, v.c), nil
+	case valueRange:
+		b := []byte{'['}
+		for i, r := range v.rows {
+			if i > 0 {
+				b = append(b, ',')
+			}
+			b = append(b, '[')
+			for j, c := range r {
+				if j > 0 {
+					b = append(b, ',')
+				}
+				b = appendCell(b, c)
+			}
+			b = append(b, ']')
+		}
+		return append(b, ']'), nil
+	}
+	return []byte("null"), nil
+}
+
+// UnmarshalJSON decodes an argument: a cell, an array of rows of cells, or a
+// flat array of cells (taken as one column). This is the reference decoder;
+// the server has a faster one that must agree with it.
+func (v *Value) UnmarshalJSON(data []byte) error {
+	var x any
+	if err := json.Unmarshal(data, &x); err != nil {
+		return err
+	}
+	if x == nil {
+		*v = ScalarValue(Cell{})
+		return nil
+	}
+	nv, err := ValueOf(x)
+	if err != nil {
+		return err
+	}
+	*v = nv
+	return nil
+}
+
+// describeRange names the size of a range for messages, e.g. "a 3x2 range".
+func describeRange(rows, cols int) string {
+	if rows == 0 || cols == 0 {
+		return "an empty range"
+	}
+	return fmt.Sprintf("a %dx%d range", rows, cols)
+}
+
+// position names a cell inside an argument for messages: "row 5" in a
+// column, "column 3" in a row, "row 2, column 3" in a block.
+func position(rows, cols, r, c int) string {
+	switch {
+	case cols == 1:
+		return "row " + strconv.Itoa(r+1)
+	case rows == 1:
+		return "column " + strconv.Itoa(c+1)
+	}
+	return "row " + strconv.Itoa(r+1) + ", column " + strconv.Itoa(c+1)
+}
+
+// lowerASCII lower-cases ASCII letters.
+func lowerASCII(s string) string {
+	for i := 0; i < len(s); i++ {
+		if 'A' <= s[i] && s[i] <= 'Z' {
+			return strings.ToLower(s)
+		}
+	}
+	return s
+}

@@ -1,0 +1,251 @@
+package screening
+
+import (
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"hash/fnv"
+	"math"
+	"sort"
+	"strings"
+
+	"veer/functions/refcurve"
+	"veer/functions/serial"
+)
+
+// Format and FormatVersion identify a screening model document.
+const (
+	Format        = "veer.model"
+	FormatVersion = 1
+)
+
+// DefaultSampleWorkers is how many reference workers' residual sequences a
+// model keeps for bootstrap limits when FitOptions.SampleWorkers is 0.
+const DefaultSampleWorkers = 4000
+
+// FitOptions control Fit.
+type FitOptions struct {
+	// Name is the model's name, e.g. "sbp".
+	Name string
+	// Curves are the reference-curve options (transform, bandwidths, ...).
+	Curves refcurve.Options
+	// SampleWorkers caps the reference sequences kept in the model
+	// (0: DefaultSampleWorkers). The sample is chosen by a hash of the worker
+	// id, so it does not depend on row order.
+	SampleWorkers int
+}
+
+// Sequence is one reference worker's standardised residuals in time order.
+type Sequence struct {
+	Group string    `json:"group,omitempty"`
+	Time  []float64 `json:"time"`
+	Z     []float64 `json:"z"`
+}
+
+// Model is a fitted screening model. Build one with Fit or Decode.
+type Model struct {
+	Name   string
+	Curves *refcurve.Model
+	// Serial is the serial correlation of reference residuals within a worker.
+	Serial serial.Params
+	// SerialDiagnostics checks the whitened reference residuals.
+	SerialDiagnostics serial.Diagnostics
+	// MeanGap is the mean years between consecutive exams of reference workers.
+	MeanGap float64
+	// Sample holds reference workers' residual sequences (see DefaultSampleWorkers).
+	Sample []Sequence
+	// Hash identifies the content; it is the same for the same data and options.
+	Hash string
+}
+
+// Fit fits a screening model from the exams of healthy reference workers.
+func Fit(rows []refcurve.Row, opt FitOptions) (*Model, error) {
+	if strings.TrimSpace(opt.Name) == "" {
+		return nil, errors.New("the model needs a name")
+	}
+	curves, err := refcurve.Fit(rows, opt.Curves)
+	if err != nil {
+		return nil, err
+	}
+	res, err := curves.Residuals(rows)
+	if err != nil {
+		return nil, err
+	}
+	series := make([]serial.Series, 0, len(res))
+	var gapSum float64
+	var gapN int
+	for _, r := range res {
+		series = append(series, serial.Series{Time: r.Time, Z: r.Z})
+		for j := 1; j < len(r.Time); j++ {
+			gapSum += r.Time[j] - r.Time[j-1]
+			gapN++
+		}
+	}
+	if gapN == 0 {
+		return nil, errors.New("no reference worker has two or more exams, so the time between exams and the serial correlation cannot be estimated")
+	}
+	params, err := serial.Estimate(series)
+	if err != nil {
+		return nil, fmt.Errorf("serial correlation: %v", err)
+	}
+	m := &Model{
+		Name:    opt.Name,
+		Curves:  curves,
+		Serial:  params,
+		MeanGap: gapSum / float64(gapN),
+	}
+	if m.SerialDiagnostics, err = serial.Diagnose(params, series); err != nil {
+		return nil, fmt.Errorf("serial correlation: %v", err)
+	}
+	m.Sample = sample(res, opt.SampleWorkers)
+	if err := m.rehash(); err != nil {
+		return nil, err
+	}
+	return m, nil
+}
+
+// sample keeps up to n sequences (those with the smallest hash of the worker
+// id), in worker order, so the choice does not depend on row order.
+func sample(res []refcurve.WorkerSeries, n int) []Sequence {
+	if n <= 0 {
+		n = DefaultSampleWorkers
+	}
+	type keyed struct {
+		key uint64
+		i   int
+	}
+	ks := make([]keyed, len(res))
+	for i, r := range res {
+		h := fnv.New64a()
+		h.Write([]byte(r.Worker))
+		ks[i] = keyed{h.Sum64(), i}
+	}
+	if len(ks) > n {
+		sort.Slice(ks, func(a, b int) bool {
+			if ks[a].key != ks[b].key {
+				return ks[a].key < ks[b].key
+			}
+			return ks[a].i < ks[b].i
+		})
+		ks = ks[:n]
+		sort.Slice(ks, func(a, b int) bool { return ks[a].i < ks[b].i })
+	}
+	out := make([]Sequence, len(ks))
+	for j, k := range ks {
+		r := res[k.i]
+		out[j] = Sequence{Group: r.Group, Time: round(r.Time, 1e6), Z: round(r.Z, 1e9)}
+	}
+	return out
+}
+
+// round keeps a stored number to a fixed precision so documents are compact
+// and byte-stable.
+func round(v []float64, scale float64) []float64 {
+	out := make([]float64, len(v))
+	for i, x := range v {
+		out[i] = math.Round(x*scale) / scale
+	}
+	return out
+}
+
+// document is the JSON form of a Model.
+type document struct {
+	Format            string             `json:"format"`
+	Version           int                `json:"version"`
+	Name              string             `json:"name"`
+	Hash              string             `json:"hash"`
+	Curves            json.RawMessage    `json:"curves"`
+	Serial            serial.Params      `json:"serial"`
+	SerialDiagnostics serial.Diagnostics `json:"serial_diagnostics"`
+	MeanGap           float64            `json:"mean_gap"`
+	Sample            []Sequence         `json:"sample"`
+}
+
+func (m *Model) document() (document, error) {
+	curves, err := m.Curves.Encode()
+	if err != nil {
+		return document{}, err
+	}
+	return document{
+		Format: Format, Version: FormatVersion, Name: m.Name,
+		Curves: curves, Serial: m.Serial, SerialDiagnostics: m.SerialDiagnostics,
+		MeanGap: m.MeanGap, Sample: m.Sample,
+	}, nil
+}
+
+func contentHash(d document) (string, error) {
+	d.Hash = ""
+	b, err := json.Marshal(d)
+	if err != nil {
+		return "", err
+	}
+	s := sha256.Sum256(b)
+	return hex.EncodeToString(s[:]), nil
+}
+
+func (m *Model) rehash() error {
+	d, err := m.document()
+	if err != nil {
+		return err
+	}
+	m.Hash, err = contentHash(d)
+	return err
+}
+
+// Encode returns the model as a versioned JSON document carrying its hash.
+func (m *Model) Encode() ([]byte, error) {
+	d, err := m.document()
+	if err != nil {
+		return nil, err
+	}
+	if d.Hash, err = contentHash(d); err != nil {
+		return nil, err
+	}
+	return json.Marshal(d)
+}
+
+// Decode reads a document written by Encode, checking its format, version
+// and hash: a damaged or edited file is refused.
+func Decode(data []byte) (*Model, error) {
+	var d document
+	if err := json.Unmarshal(data, &d); err != nil {
+		return nil, fmt.Errorf("this is not a veer model file (%v)", err)
+	}
+	if d.Format != Format {
+		return nil, fmt.Errorf("this is not a veer model file (format %q, want %q)", d.Format, Format)
+	}
+	if d.Version != FormatVersion {
+		return nil, fmt.Errorf("this model file has version %d; this veer reads version %d", d.Version, FormatVersion)
+	}
+	want, err := contentHash(d)
+	if err != nil {
+		return nil, err
+	}
+	if d.Hash != want {
+		return nil, errors.New("the model file is damaged or was edited by hand (its checksum does not match); fit the model again")
+	}
+	curves, err := refcurve.Decode(d.Curves)
+	if err != nil {
+		return nil, err
+	}
+	if !(d.MeanGap > 0) {
+		return nil, errors.New("the model file has no valid mean gap between exams")
+	}
+	for i, s := range d.Sample {
+		if len(s.Time) != len(s.Z) {
+			return nil, fmt.Errorf("the model file's reference sequence %d is damaged", i+1)
+		}
+	}
+	return &Model{
+		Name: d.Name, Curves: curves, Serial: d.Serial, SerialDiagnostics: d.SerialDiagnostics,
+		MeanGap: d.MeanGap, Sample: d.Sample, Hash: d.Hash,
+	}, nil
+}
+
+// Summary is a one-line description for people.
+func (m *Model) Summary() string {
+	return fmt.Sprintf("groups %s; serial correlation phi %.3f per year, persistent share c %.3f; mean gap %.2f years",
+		strings.Join(m.Curves.Groups(), ", "), m.Serial.Phi, m.Serial.C, m.MeanGap)
+}

@@ -1,0 +1,288 @@
+package screening
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"runtime"
+	"sort"
+	"sync"
+
+	"gonum.org/v1/gonum/stat/distuv"
+	"veer/functions/chart"
+	"veer/functions/monitor"
+	"veer/functions/serial"
+)
+
+// Serial handling of a worker's correlated readings.
+const (
+	// SerialDirect charts z itself; limits are calibrated on correlated
+	// sequences from the fitted serial model (the default, see package monitor).
+	SerialDirect = "direct"
+	// SerialWhiten charts the Kalman innovations of z.
+	SerialWhiten = "whiten"
+	// SerialOff ignores serial correlation: z is treated as independent.
+	// Limits are then too tight for correlated markers; offered for
+	// comparison and for markers whose reference shows no correlation.
+	SerialOff = "off"
+)
+
+// Settings choose the chart and how serial correlation is handled.
+type Settings struct {
+	Chart chart.Spec
+	// Serial is SerialDirect (also "" or "on"), SerialWhiten or SerialOff.
+	Serial string
+	// Extrapolate allows exams at ages outside the reference range; the
+	// curves are then held at their ends (see refcurve). Without it such an
+	// exam is an error naming the row.
+	Extrapolate bool
+}
+
+// DefaultSettings are an upward CUSUM with allowance 0.5 on z, with the
+// limit carrying the serial correlation.
+func DefaultSettings() Settings {
+	return Settings{Chart: chart.DefaultSpec(), Serial: SerialDirect}
+}
+
+// monitorSettings turns Settings into the monitor's settings for model m.
+func (m *Model) monitorSettings(s Settings) (monitor.Settings, error) {
+	out := monitor.Settings{Chart: s.Chart, Serial: m.Serial, Mode: monitor.Direct}
+	switch s.Serial {
+	case "", "on", SerialDirect:
+	case SerialWhiten:
+		out.Mode = monitor.Whiten
+	case SerialOff:
+		out.Serial = serial.Params{}
+	default:
+		return out, fmt.Errorf("serial must be %s, %s or %s (on means %s), not %q",
+			SerialDirect, SerialWhiten, SerialOff, SerialDirect, s.Serial)
+	}
+	if err := out.Validate(); err != nil {
+		return out, err
+	}
+	return out, nil
+}
+
+// Exam is one row of a sheet to screen.
+type Exam struct {
+	Worker string
+	Group  string
+	// Time is the worker's age at the exam, in years.
+	Time float64
+	// Value is the marker's reading on the user's scale.
+	Value float64
+}
+
+// Result is the screening of one exam.
+type Result struct {
+	// Mean and SD are the reference curves at the exam's age (transformed
+	// scale); Z is the standardised reading and Centile its centile in the
+	// reference (0–100).
+	Mean, SD, Z, Centile float64
+	// Innovation is the Kalman innovation of Z (equal to Z when the serial
+	// model is off).
+	Innovation float64
+	// Up and Down are the chart statistics (the unused side is 0); Stat is
+	// the one compared with the limit.
+	Up, Down, Stat float64
+	// Signal is true when Stat crossed the limit at this exam.
+	Signal bool
+	// Exam is the exam's number for its worker (1 = first by age) and
+	// Exams how many exams the worker has in the sheet.
+	Exam, Exams int
+	// Gap is the years since the worker's previous exam (NaN on the first).
+	Gap float64
+	// FirstSignal is the age of the worker's first signal (NaN if none).
+	FirstSignal float64
+	// InRange says whether the age is inside the reference range.
+	InRange bool
+}
+
+// Screen screens a sheet of exams against limit h. Exams may come in any
+// order; each worker's exams are ordered by age inside, and results come
+// back in the input order. Two exams of one worker at the same age are an
+// error naming both rows (rows are counted from 1).
+func (m *Model) Screen(exams []Exam, set Settings, h float64) ([]Result, error) {
+	ms, err := m.monitorSettings(set)
+	if err != nil {
+		return nil, err
+	}
+	if err := chart.ValidateLimit(h); err != nil {
+		return nil, err
+	}
+	n := len(exams)
+	if n == 0 {
+		return nil, errors.New("there are no exams to screen")
+	}
+	groups := make([]string, n)
+	times := make([]float64, n)
+	values := make([]float64, n)
+	for i, e := range exams {
+		groups[i], times[i], values[i] = e.Group, e.Time, e.Value
+	}
+	out := make([]Result, n)
+	z := make([]float64, n)
+	if err := m.Curves.ZMany(groups, times, values, set.Extrapolate, z); err != nil {
+		return nil, err
+	}
+	workers := groupByWorker(exams)
+	// Check order and fill per-exam reference values.
+	for _, idx := range workers {
+		for j := 1; j < len(idx); j++ {
+			a, b := idx[j-1], idx[j]
+			if exams[a].Time == exams[b].Time {
+				return nil, fmt.Errorf("worker %q has two exams at the same age %g (rows %d and %d); remove or merge one",
+					exams[a].Worker, exams[a].Time, min(a, b)+1, max(a, b)+1)
+			}
+		}
+	}
+	var first error
+	var mu sync.Mutex
+	var wg sync.WaitGroup
+	next := make(chan []int, 64)
+	nw := runtime.GOMAXPROCS(0)
+	for w := 0; w < nw; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			var tt, zz []float64
+			var rows []monitor.Row
+			for idx := range next {
+				tt, zz = tt[:0], zz[:0]
+				for _, i := range idx {
+					tt = append(tt, times[i])
+					zz = append(zz, z[i])
+				}
+				var err error
+				rows, err = monitor.Run(ms, h, tt, zz, rows[:0])
+				if err != nil {
+					mu.Lock()
+					if first == nil {
+						first = fmt.Errorf("worker %q: %v", exams[idx[0]].Worker, err)
+					}
+					mu.Unlock()
+					continue
+				}
+				fs, ok := monitor.FirstSignal(rows)
+				if !ok {
+					fs = math.NaN()
+				}
+				for j, i := range idx {
+					r := rows[j]
+					res := &out[i]
+					res.Z, res.Innovation = r.Z, r.Innovation
+					res.Up, res.Down, res.Stat, res.Signal = r.Up, r.Down, r.Stat, r.Signal
+					res.Exam, res.Exams = j+1, len(idx)
+					res.Gap = math.NaN()
+					if j > 0 {
+						res.Gap = tt[j] - tt[j-1]
+					}
+					res.FirstSignal = fs
+				}
+			}
+		}()
+	}
+	for _, idx := range workers {
+		next <- idx
+	}
+	close(next)
+	wg.Wait()
+	if first != nil {
+		return nil, first
+	}
+	std := distuv.UnitNormal
+	for i := range out {
+		mean, sd, err := m.Curves.At(groups[i], times[i], true)
+		if err != nil {
+			return nil, fmt.Errorf("row %d: %v", i+1, err)
+		}
+		out[i].Mean, out[i].SD = mean, sd
+		out[i].Centile = 100 * std.CDF(out[i].Z)
+		lo, hi, _ := m.Curves.Range(groups[i])
+		out[i].InRange = times[i] >= lo && times[i] <= hi
+	}
+	return out, nil
+}
+
+// groupByWorker returns, per worker in order of first appearance, the row
+// indices of its exams sorted by age.
+func groupByWorker(exams []Exam) [][]int {
+	pos := make(map[string]int, len(exams)/4+1)
+	var workers [][]int
+	for i, e := range exams {
+		k, ok := pos[e.Worker]
+		if !ok {
+			k = len(workers)
+			pos[e.Worker] = k
+			workers = append(workers, nil)
+		}
+		workers[k] = append(workers[k], i)
+	}
+	for _, idx := range workers {
+		if !sort.SliceIsSorted(idx, func(a, b int) bool { return exams[idx[a]].Time < exams[idx[b]].Time }) {
+			sort.SliceStable(idx, func(a, b int) bool { return exams[idx[a]].Time < exams[idx[b]].Time })
+		}
+	}
+	return workers
+}
+
+// LimitOptions choose how a limit or a delay is computed.
+type LimitOptions struct {
+	// Method is monitor.Normal (default) or monitor.Bootstrap.
+	Method monitor.Method
+	// Gap, if positive, is the planned years between exams; otherwise gaps
+	// are resampled from the reference workers' own gaps.
+	Gap float64
+	// Seed and Paths steer Monte Carlo methods (0: defaults).
+	Seed  uint64
+	Paths int
+	// Progress, if not nil, reports Monte Carlo progress.
+	Progress func(done, total int)
+}
+
+// DefaultSeed is the seed of Monte Carlo limits when none is given, so the
+// same inputs always give the same limit.
+const DefaultSeed = 20261202
+
+// Calibration returns the monitor calibration for settings and options.
+func (m *Model) Calibration(set Settings, o LimitOptions) (monitor.Calibration, error) {
+	ms, err := m.monitorSettings(set)
+	if err != nil {
+		return monitor.Calibration{}, err
+	}
+	if o.Method == "" {
+		o.Method = monitor.Normal
+	}
+	if o.Seed == 0 {
+		o.Seed = DefaultSeed
+	}
+	ref := make([]serial.Series, len(m.Sample))
+	for i, s := range m.Sample {
+		ref[i] = serial.Series{Time: s.Time, Z: s.Z}
+	}
+	return monitor.Calibration{
+		Settings: ms, Method: o.Method, Gap: o.Gap, Reference: ref,
+		Seed: o.Seed, Paths: o.Paths, Progress: o.Progress,
+	}, nil
+}
+
+// Limit returns the control limit whose average time to a false signal for
+// a healthy worker is target years.
+func (m *Model) Limit(set Settings, o LimitOptions, target float64) (monitor.LimitResult, error) {
+	c, err := m.Calibration(set, o)
+	if err != nil {
+		return monitor.LimitResult{}, err
+	}
+	return monitor.Limit(c, target)
+}
+
+// Delay returns the expected years from the start of a sustained shift of
+// shift reference SDs in the readings to a signal at limit h, for a shift
+// starting onset years after the first exam.
+func (m *Model) Delay(set Settings, o LimitOptions, h, shift, onset float64) (monitor.DelayResult, error) {
+	c, err := m.Calibration(set, o)
+	if err != nil {
+		return monitor.DelayResult{}, err
+	}
+	return monitor.Delay(c, h, shift, onset)
+}

@@ -1,0 +1,158 @@
+package transform
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"strconv"
+)
+
+// Names of the transforms.
+const (
+	None   = "none"
+	Log    = "log"
+	BoxCox = "boxcox"
+)
+
+// LambdaLimit bounds the Box-Cox lambda: |λ| <= LambdaLimit. Powers beyond
+// ±5 are never a sensible model for a medical marker; a likelihood pushing
+// there means the values are nearly constant or extremely skewed.
+const LambdaLimit = 5
+
+// Transform is one of the transforms; Lambda is used by BoxCox only.
+type Transform struct {
+	Name   string
+	Lambda float64
+}
+
+// New returns the transform called name ("none", "log" or "boxcox"; "" means
+// "none") with the given Box-Cox lambda (ignored, and stored as 0, for the
+// other two).
+func New(name string, lambda float64) (Transform, error) {
+	switch name {
+	case "", None:
+		return Transform{Name: None}, nil
+	case Log:
+		return Transform{Name: Log}, nil
+	case BoxCox:
+		if math.IsNaN(lambda) || math.Abs(lambda) > LambdaLimit {
+			return Transform{}, fmt.Errorf("Box-Cox lambda must be a number between -%d and %d, got %g", LambdaLimit, LambdaLimit, lambda)
+		}
+		return Transform{Name: BoxCox, Lambda: lambda}, nil
+	}
+	return Transform{}, fmt.Errorf("unknown transform %q; use none, log or boxcox", name)
+}
+
+// NeedsPositive reports whether the transform accepts only values > 0.
+func (t Transform) NeedsPositive() bool { return t.Name == Log || t.Name == BoxCox }
+
+// String describes the transform, e.g. "boxcox(lambda=0.25)".
+func (t Transform) String() string {
+	if t.Name == BoxCox {
+		return "boxcox(lambda=" + strconv.FormatFloat(t.Lambda, 'g', 6, 64) + ")"
+	}
+	return t.Name
+}
+
+// ValueError reports a value a transform cannot take. Index is the
+// 0-based position in the slice given to ForwardAll (-1 for Forward).
+type ValueError struct {
+	Index     int
+	Value     float64
+	Transform string
+}
+
+func (e *ValueError) Error() string {
+	where := ""
+	if e.Index >= 0 {
+		where = " at position " + strconv.Itoa(e.Index+1)
+	}
+	if math.IsNaN(e.Value) || math.IsInf(e.Value, 0) {
+		return fmt.Sprintf("value%s is %g; expected a finite number", where, e.Value)
+	}
+	return fmt.Sprintf("value %g%s is not positive; the %s transform needs values > 0", e.Value, where, e.Transform)
+}
+
+// Forward maps y to the transformed scale. Log and Box-Cox fail on y <= 0;
+// every transform fails on NaN or ±Inf.
+func (t Transform) Forward(y float64) (float64, error) {
+	if math.IsNaN(y) || math.IsInf(y, 0) {
+		return 0, &ValueError{Index: -1, Value: y, Transform: t.Name}
+	}
+	switch t.Name {
+	case None, "":
+		return y, nil
+	case Log:
+		if !(y > 0) {
+			return 0, &ValueError{Index: -1, Value: y, Transform: t.Name}
+		}
+		return math.Log(y), nil
+	case BoxCox:
+		if !(y > 0) {
+			return 0, &ValueError{Index: -1, Value: y, Transform: t.Name}
+		}
+		return boxCox(math.Log(y), t.Lambda), nil
+	}
+	panic("transform: unknown transform " + strconv.Quote(t.Name))
+}
+
+// boxCox returns the Box-Cox transform of y = exp(ly). expm1 keeps full
+// precision for λ near 0, where (y^λ - 1)/λ → log y.
+func boxCox(ly, lambda float64) float64 {
+	if lambda == 0 {
+		return ly
+	}
+	return math.Expm1(lambda*ly) / lambda
+}
+
+// ForwardAll transforms y into out (which may be y itself; len(out) must
+// equal len(y)). A bad value gives a *ValueError with its index.
+func (t Transform) ForwardAll(y, out []float64) error {
+	if len(out) != len(y) {
+		panic("transform: ForwardAll needs len(out) == len(y)")
+	}
+	for i, v := range y {
+		z, err := t.Forward(v)
+		if err != nil {
+			var ve *ValueError
+			if errors.As(err, &ve) {
+				ve.Index = i
+			}
+			return err
+		}
+		out[i] = z
+	}
+	return nil
+}
+
+// Inverse maps z from the transformed scale back to the user's scale. It
+// fails where no value maps to z: for Box-Cox when 1 + λz <= 0, and when
+// the result would overflow.
+func (t Transform) Inverse(z float64) (float64, error) {
+	if math.IsNaN(z) || math.IsInf(z, 0) {
+		return 0, fmt.Errorf("cannot map %g back from the %s scale", z, t)
+	}
+	var y float64
+	switch t.Name {
+	case None, "":
+		return z, nil
+	case Log:
+		y = math.Exp(z)
+	case BoxCox:
+		if t.Lambda == 0 {
+			y = math.Exp(z)
+			break
+		}
+		a := t.Lambda * z
+		if !(a > -1) {
+			return 0, fmt.Errorf("%g on the %s scale has no value on the original scale (needs 1 + lambda·z > 0)", z, t)
+		}
+		y = math.Exp(math.Log1p(a) / t.Lambda)
+	default:
+		panic("transform: unknown transform " + strconv.Quote(t.Name))
+	}
+	if math.IsInf(y, 0) {
+		return 0, fmt.Errorf("%g on the %s scale is too large to map back", z, t)
+	}
+	return y, nil
+}

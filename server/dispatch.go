@@ -1,0 +1,494 @@
+package server
+
+import (
+	"context"
+	"crypto/sha256"
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"log/slog"
+	"math"
+	"runtime"
+	"strconv"
+	"strings"
+	"sync"
+	"time"
+
+	"veer/functions/cell"
+)
+
+// engine runs calls: validation, result cache, sharing of identical
+// computations, the concurrency limit and the time limit.
+type engine struct {
+	cat   *cell.Catalogue
+	reg   *Registry
+	lim   Limits
+	log   *slog.Logger
+	token string
+
+	base context.Context // cancelled when in-flight work must be abandoned
+	sem  chan struct{}
+
+	results *lru[*outcome]
+	onceVal *lru[any]
+
+	mu          sync.Mutex
+	flights     map[string]*flight
+	onceFlights map[string]*onceFlight
+}
+
+// dep is a model reference a result depends on: ref as the function named it
+// (lower case; bare name or handle) and the handle it resolved to ("" when it
+// did not exist). A result stays valid while every ref resolves the same.
+type dep struct {
+	ref    string
+	handle string
+}
+
+// outcome is the answer to one call.
+type outcome struct {
+	val   []byte      // encoded JSON value, when err is nil
+	err   *cell.Error // the error answer
+	deps  []dep
+	reads []string // bare model names read (for streaming)
+	fn    *cell.Func
+}
+
+// callOpts carry per-caller facts.
+type callOpts struct {
+	authorized bool          // a valid install token came with the call
+	progress   func(float64) // receives progress reports, or nil
+	source     string        // "http" or "ws", for logs
+}
+
+func newEngine(cat *cell.Catalogue, reg *Registry, lim Limits, log *slog.Logger, token string, base context.Context) *engine {
+	return &engine{
+		cat: cat, reg: reg, lim: lim, log: log, token: token, base: base,
+		sem:         make(chan struct{}, lim.MaxConcurrent),
+		results:     newLRU[*outcome](lim.CacheEntries, lim.CacheBytes),
+		onceVal:     newLRU[any](lim.OnceEntries, math.MaxInt64),
+		flights:     map[string]*flight{},
+		onceFlights: map[string]*onceFlight{},
+	}
+}
+
+func errOutcome(e *cell.Error) *outcome { return &outcome{err: e} }
+
+// call answers one decoded request.
+func (e *engine) call(ctx context.Context, req *request, opts callOpts) *outcome {
+	if req.fn == "" && req.shape == nil {
+		return errOutcome(cell.ValueError("the call has no \"fn\" (function name)"))
+	}
+	f, ok := e.cat.Lookup(req.fn)
+	if req.shape != nil {
+		msg := req.shape.msg
+		if req.shape.arg >= 0 {
+			arg := "argument " + strconv.Itoa(req.shape.arg+1)
+			if ok {
+				arg = "argument " + f.ArgName(req.shape.arg) + " of " + f.Name
+			}
+			msg = arg + ": " + msg
+		}
+		return errOutcome(cell.ValueError("%s", msg))
+	}
+	if !ok {
+		return errOutcome(cell.NameError("unknown function %s; GET /v1/functions lists the functions", quoteName(req.fn)))
+	}
+	for i, v := range req.args {
+		rows, cols := v.Dims()
+		if rows == 1 {
+			rows = cols
+		}
+		if rows > e.lim.MaxRows {
+			return errOutcome(cell.ValueError("argument %s of %s has %d rows; the limit is %d rows per argument", f.ArgName(i), f.Name, rows, e.lim.MaxRows))
+		}
+	}
+	args, err := cell.Bind(f, req.args)
+	if err != nil {
+		return errOutcome(cell.AsError(err))
+	}
+	if f.Writes && !opts.authorized {
+		msg := "%s saves models and needs the install token: run `veer token` and paste it into the add-in settings (HTTP: header " + TokenHeader + ")"
+		if req.token != "" {
+			msg = "%s saves models and the token sent is wrong: run `veer token` and paste it into the add-in settings"
+		}
+		return errOutcome(cell.ValueError(msg, f.Name))
+	}
+	key := cacheKey(f, args)
+	if o, ok := e.results.get(key); ok && e.valid(o.deps) {
+		return o
+	}
+	return e.shared(ctx, key, f, args, opts)
+}
+
+// valid reports whether every model a result depends on still resolves to
+// the same version.
+func (e *engine) valid(deps []dep) bool {
+	for _, d := range deps {
+		h, _ := e.reg.Resolve(d.ref)
+		if h != d.handle {
+			return false
+		}
+	}
+	return true
+}
+
+// flight is one computation shared by all identical concurrent calls.
+type flight struct {
+	done    chan struct{}
+	out     *outcome
+	cancel  context.CancelFunc
+	waiters int // guarded by engine.mu
+	pmu     sync.Mutex
+	plisten []func(float64)
+	last    float64
+}
+
+func (fl *flight) addListener(fn func(float64)) {
+	if fn == nil {
+		return
+	}
+	fl.pmu.Lock()
+	fl.plisten = append(fl.plisten, fn)
+	fl.pmu.Unlock()
+}
+
+func (fl *flight) progress(p float64) {
+	if math.IsNaN(p) {
+		return
+	}
+	p = min(max(p, 0), 1)
+	fl.pmu.Lock()
+	if p <= fl.last {
+		fl.pmu.Unlock()
+		return
+	}
+	fl.last = p
+	ls := make([]func(float64), len(fl.plisten))
+	copy(ls, fl.plisten)
+	fl.pmu.Unlock()
+	for _, fn := range ls {
+		fn(p)
+	}
+}
+
+// shared joins or starts the computation for key and waits for it or for
+// ctx. A computation is cancelled only when every caller waiting for it has
+// gone.
+func (e *engine) shared(ctx context.Context, key string, f *cell.Func, args cell.Args, opts callOpts) *outcome {
+	e.mu.Lock()
+	fl := e.flights[key]
+	if fl == nil {
+		timeout := e.lim.CallTimeout
+		if f.Slow {
+			timeout = e.lim.SlowCallTimeout
+		}
+		fctx, cancel := context.WithTimeout(e.base, timeout)
+		fl = &flight{done: make(chan struct{}), cancel: cancel}
+		e.flights[key] = fl
+		go e.run(fctx, fl, key, f, args, timeout)
+	}
+	fl.waiters++
+	fl.addListener(opts.progress)
+	e.mu.Unlock()
+
+	select {
+	case <-fl.done:
+		return fl.out
+	case <-ctx.Done():
+		e.mu.Lock()
+		fl.waiters--
+		if fl.waiters == 0 {
+			fl.cancel()
+			if e.flights[key] == fl {
+				delete(e.flights, key) // later callers start afresh
+			}
+		}
+		e.mu.Unlock()
+		return errOutcome(cell.BusyError("the call was cancelled"))
+	}
+}
+
+// run computes one flight.
+func (e *engine) run(ctx context.Context, fl *flight, key string, f *cell.Func, args cell.Args, timeout time.Duration) {
+	defer fl.cancel()
+	start := time.Now()
+	env := &callEnv{e: e, f: f, ctx: ctx, fl: fl}
+	out := &outcome{fn: f}
+	select {
+	case e.sem <- struct{}{}:
+		v, err, panicked := e.invoke(ctx, f, env, args)
+		<-e.sem
+		switch {
+		case panicked:
+			out.err = cell.ValueError("internal error in %s; please report it (the server log names the place)", f.Name)
+		case err != nil:
+			out.err = cell.AsError(err)
+			if ctx.Err() != nil && (errors.Is(err, ctx.Err()) || out.err.Code == cell.CodeBusy) {
+				out.err = ctxError(ctx, f, timeout)
+			}
+		default:
+			var enc []byte
+			enc, out.err = cell.EncodeResult(make([]byte, 0, 64), v)
+			if out.err == nil {
+				out.val = enc
+			}
+		}
+		env.mu.Lock()
+		out.deps, out.reads = env.deps, env.reads
+		env.mu.Unlock()
+		cacheable := !panicked && (out.err == nil || out.err.Code != cell.CodeBusy)
+		if cacheable {
+			e.results.put(key, out, int64(len(key)+len(out.val)+200+64*len(out.deps)))
+		}
+	case <-ctx.Done():
+		if errors.Is(ctx.Err(), context.DeadlineExceeded) {
+			out.err = cell.BusyError("all %d computation slots stayed busy for the whole %s time limit of %s; recalculate later", e.lim.MaxConcurrent, timeout, f.Name)
+		} else {
+			out.err = cell.BusyError("the call was cancelled")
+		}
+	}
+	e.mu.Lock()
+	fl.out = out
+	if e.flights[key] == fl {
+		delete(e.flights, key)
+	}
+	e.mu.Unlock()
+	close(fl.done)
+
+	el := time.Since(start)
+	code := ""
+	if out.err != nil {
+		code = out.err.Code
+	}
+	lvl := slog.LevelDebug
+	if el > time.Second || f.Slow {
+		lvl = slog.LevelInfo
+	}
+	e.log.Log(context.Background(), lvl, "call", "fn", f.Name, "ms", float64(el.Microseconds())/1000, "result_bytes", len(out.val), "code", code)
+}
+
+// ctxError explains why a computation's context ended.
+func ctxError(ctx context.Context, f *cell.Func, timeout time.Duration) *cell.Error {
+	if errors.Is(ctx.Err(), context.DeadlineExceeded) {
+		return cell.BusyError("%s took longer than its time limit of %s", f.Name, timeout)
+	}
+	return cell.BusyError("the call was cancelled")
+}
+
+// invoke runs f.Call, turning a panic into an error (logged with the code
+// location only, never values).
+func (e *engine) invoke(ctx context.Context, f *cell.Func, env cell.Env, args cell.Args) (v any, err error, panicked bool) {
+	defer func() {
+		if r := recover(); r != nil {
+			panicked = true
+			e.log.Error("cell function panicked", "fn", f.Name, "panic_type", fmt.Sprintf("%T", r), "at", panicFrames())
+		}
+	}()
+	v, err = f.Call(ctx, env, args)
+	return v, err, false
+}
+
+// panicFrames lists the code locations of a panic (no argument values).
+func panicFrames() string {
+	pcs := make([]uintptr, 16)
+	n := runtime.Callers(4, pcs)
+	frames := runtime.CallersFrames(pcs[:n])
+	var b strings.Builder
+	for {
+		fr, more := frames.Next()
+		if !strings.HasPrefix(fr.Function, "runtime.") {
+			if b.Len() > 0 {
+				b.WriteString(" < ")
+			}
+			fmt.Fprintf(&b, "%s:%d", fr.Function, fr.Line)
+		}
+		if !more || b.Len() > 600 {
+			break
+		}
+	}
+	return b.String()
+}
+
+// callEnv is the Env of one computation.
+type callEnv struct {
+	e   *engine
+	f   *cell.Func
+	ctx context.Context
+	fl  *flight
+
+	mu    sync.Mutex
+	deps  []dep
+	reads []string
+}
+
+func (c *callEnv) addDep(ref, h string, bare bool) {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	for _, d := range c.deps {
+		if d.ref == ref && d.handle == h {
+			return
+		}
+	}
+	c.deps = append(c.deps, dep{ref: ref, handle: h})
+	if bare {
+		for _, r := range c.reads {
+			if r == ref {
+				return
+			}
+		}
+		c.reads = append(c.reads, ref)
+	}
+}
+
+// Model implements cell.Env.
+func (c *callEnv) Model(ref string) (cell.ModelRef, error) {
+	ref = strings.TrimSpace(ref)
+	name, n, ok := cell.SplitHandle(ref)
+	m, err := c.e.reg.Get(ref)
+	if ok && CheckModelName(name) == nil {
+		h := ""
+		if err == nil {
+			h = m.Handle
+		}
+		c.addDep(strings.ToLower(ref), h, n == 0)
+	}
+	return m, err
+}
+
+// SaveModel implements cell.Env.
+func (c *callEnv) SaveModel(name string, doc []byte) (string, error) {
+	if !c.f.Writes {
+		return "", cell.ValueError("internal error: %s saves a model but is not declared as writing", c.f.Name)
+	}
+	if err := c.ctx.Err(); err != nil {
+		return "", err
+	}
+	h, _, err := c.e.reg.Save(name, doc)
+	if err != nil {
+		return "", err
+	}
+	// The result (the handle) stays valid while this version is the latest.
+	c.addDep(strings.ToLower(name), h, false)
+	return h, nil
+}
+
+// Progress implements cell.Env.
+func (c *callEnv) Progress(done float64) { c.fl.progress(done) }
+
+// onceFlight is one Env.Once computation shared by concurrent callers.
+type onceFlight struct {
+	done chan struct{}
+	val  any
+	err  error
+}
+
+// Once implements cell.Env.
+func (c *callEnv) Once(key string, fn func() (any, error)) (any, error) {
+	e := c.e
+	for {
+		if v, ok := e.onceVal.get(key); ok {
+			return v, nil
+		}
+		e.mu.Lock()
+		if of := e.onceFlights[key]; of != nil {
+			e.mu.Unlock()
+			select {
+			case <-of.done:
+			case <-c.ctx.Done():
+				return nil, c.ctx.Err()
+			}
+			if of.err == nil {
+				return of.val, nil
+			}
+			if isCtxErr(of.err) && c.ctx.Err() == nil {
+				continue // the first caller gave up; try ourselves
+			}
+			return nil, of.err
+		}
+		of := &onceFlight{done: make(chan struct{})}
+		e.onceFlights[key] = of
+		e.mu.Unlock()
+		func() {
+			defer func() {
+				if r := recover(); r != nil {
+					of.err = cell.ValueError("internal error in %s; please report it", c.f.Name)
+					e.mu.Lock()
+					delete(e.onceFlights, key)
+					e.mu.Unlock()
+					close(of.done)
+					panic(r)
+				}
+			}()
+			of.val, of.err = fn()
+		}()
+		if of.err == nil {
+			e.onceVal.put(key, of.val, 1)
+		}
+		e.mu.Lock()
+		delete(e.onceFlights, key)
+		e.mu.Unlock()
+		close(of.done)
+		return of.val, of.err
+	}
+}
+
+func isCtxErr(err error) bool {
+	if errors.Is(err, context.Canceled) || errors.Is(err, context.DeadlineExceeded) {
+		return true
+	}
+	var ce *cell.Error
+	return errors.As(err, &ce) && ce.Code == cell.CodeBusy
+}
+
+// cacheKey is the canonical form of (function, arguments): exact cell kinds
+// and values, so 1 and "1" differ. Long keys are replaced by their SHA-256.
+func cacheKey(f *cell.Func, args cell.Args) string {
+	b := make([]byte, 0, 128)
+	b = append(b, f.Name...)
+	for _, v := range args.Values() {
+		b = append(b, 0)
+		switch {
+		case v.IsAbsent():
+			b = append(b, 'a')
+			continue
+		case v.IsScalar():
+			b = append(b, 's')
+		default:
+			b = append(b, 'r')
+			r, c := v.Dims()
+			b = binary.AppendUvarint(b, uint64(r))
+			b = binary.AppendUvarint(b, uint64(c))
+		}
+		for _, row := range v.Rows() {
+			for _, c := range row {
+				b = append(b, byte(c.Kind))
+				switch c.Kind {
+				case cell.KindNumber:
+					b = binary.LittleEndian.AppendUint64(b, math.Float64bits(c.Num))
+				case cell.KindBool:
+					if c.B {
+						b = append(b, 1)
+					} else {
+						b = append(b, 0)
+					}
+				case cell.KindText, cell.KindError:
+					b = binary.AppendUvarint(b, uint64(len(c.Str)))
+					b = append(b, c.Str...)
+				}
+			}
+		}
+	}
+	if len(b) <= 96 {
+		return string(b)
+	}
+	sum := sha256.Sum256(b)
+	return "#" + string(sum[:])
+}
+
+func quoteName(s string) string {
+	if len(s) > 64 {
+		s = s[:64] + "…"
+	}
+	return strconv.Quote(s)
+}

@@ -1,0 +1,568 @@
+package server
+
+import (
+	"bytes"
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io/fs"
+	"log/slog"
+	"os"
+	"path/filepath"
+	"regexp"
+	"sort"
+	"strconv"
+	"strings"
+	"sync"
+	"time"
+
+	"veer/functions/cell"
+)
+
+// Registry keeps fitted models on disk, versioned and checksummed.
+//
+// Layout under its directory (one server per directory):
+//
+//	<key>@v<N>.model   one version: a JSON header line, then the document
+//	<key>.deleted      tombstone: all versions up to N are deleted
+//	.tmp-*             temporary files of a save in progress
+//
+// <key> is the model name in lower case (names are case-insensitive; the
+// spelling of the first save is kept for display). Each file is written
+// atomically (temporary file in the same directory, fsync, link or rename,
+// fsync of the directory), so a process killed at any moment leaves only
+// complete files, and a save that returned is on disk. The header carries the
+// SHA-256 and size of the document; a file that fails the check is skipped
+// with a logged warning.
+//
+// Saving bytes identical to the latest version returns the existing handle;
+// different bytes add version N+1. Handles are "name@vN"; a bare name means
+// the latest version. Version numbers are never reused, even after a delete.
+type Registry struct {
+	dir string
+	log *slog.Logger
+
+	saveMu sync.Mutex // serialises saves and deletes (disk writes)
+
+	mu       sync.RWMutex
+	models   map[string]*model
+	watchers map[int]func(name string)
+	nextW    int
+}
+
+type model struct {
+	name     string // display name
+	builtin  bool
+	versions []*version // ascending by n
+	deleted  int        // tombstone: versions <= deleted are gone
+}
+
+type version struct {
+	n     int
+	sha   string
+	size  int
+	saved time.Time
+	path  string // "" for built-in models
+	doc   []byte // nil until read
+}
+
+func (m *model) latest() *version {
+	if len(m.versions) == 0 {
+		return nil
+	}
+	return m.versions[len(m.versions)-1]
+}
+
+func (m *model) find(n int) *version {
+	i := sort.Search(len(m.versions), func(i int) bool { return m.versions[i].n >= n })
+	if i < len(m.versions) && m.versions[i].n == n {
+		return m.versions[i]
+	}
+	return nil
+}
+
+func (m *model) next() int {
+	n := m.deleted
+	if v := m.latest(); v != nil && v.n > n {
+		n = v.n
+	}
+	return n + 1
+}
+
+// handle returns "name@vN".
+func handle(name string, n int) string { return name + "@v" + strconv.Itoa(n) }
+
+// header is the first line of a model file.
+type header struct {
+	Format  string    `json:"format"`
+	Name    string    `json:"name"`
+	Version int       `json:"version"`
+	Size    int       `json:"size"`
+	SHA256  string    `json:"sha256"`
+	Saved   time.Time `json:"saved"`
+}
+
+type tombstone struct {
+	Format string `json:"format"`
+	Name   string `json:"name"`
+	UpTo   int    `json:"upTo"`
+}
+
+const (
+	modelFormat     = "veer-model/1"
+	tombstoneFormat = "veer-tombstone/1"
+	modelExt        = ".model"
+	tombstoneExt    = ".deleted"
+	// MaxModelBytes bounds one stored model document.
+	MaxModelBytes = 64 << 20
+)
+
+var modelNameRE = regexp.MustCompile(`^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$`)
+
+// CheckModelName reports whether name can name a model: 1 to 64 letters,
+// digits, '.', '_' or '-', starting with a letter or digit.
+func CheckModelName(name string) error {
+	if !modelNameRE.MatchString(name) {
+		return cell.ValueError("%q cannot name a model: use 1 to 64 letters, digits, '.', '_' or '-', starting with a letter or digit", name)
+	}
+	return nil
+}
+
+// OpenRegistry opens (creating it if needed, mode 0700) the registry in dir
+// and loads every valid model file. Damaged files are skipped with a warning;
+// temporary files older than an hour (left by a crash) are removed.
+func OpenRegistry(dir string, log *slog.Logger) (*Registry, error) {
+	if log == nil {
+		log = slog.New(slog.DiscardHandler)
+	}
+	if err := os.MkdirAll(dir, 0o700); err != nil {
+		return nil, fmt.Errorf("creating model directory: %w", err)
+	}
+	r := &Registry{dir: dir, log: log, models: map[string]*model{}, watchers: map[int]func(string){}}
+	entries, err := os.ReadDir(dir)
+	if err != nil {
+		return nil, fmt.Errorf("reading model directory: %w", err)
+	}
+	for _, e := range entries {
+		name := e.Name()
+		switch {
+		case strings.HasPrefix(name, ".tmp-"):
+			if info, err := e.Info(); err == nil && time.Since(info.ModTime()) > time.Hour {
+				os.Remove(filepath.Join(dir, name))
+			}
+		case strings.HasSuffix(name, tombstoneExt):
+			r.loadTombstone(name)
+		}
+	}
+	for _, e := range entries {
+		if strings.HasSuffix(e.Name(), modelExt) && !e.IsDir() {
+			r.loadVersion(e.Name())
+		}
+	}
+	for key, m := range r.models {
+		kept := m.versions[:0]
+		for _, v := range m.versions {
+			if v.n <= m.deleted {
+				os.Remove(v.path) // finish a delete interrupted by a crash
+				continue
+			}
+			kept = append(kept, v)
+		}
+		m.versions = kept
+		sort.Slice(m.versions, func(i, j int) bool { return m.versions[i].n < m.versions[j].n })
+		if len(m.versions) > 0 {
+			r.log.Debug("model loaded", "versions", len(m.versions), "key_len", len(key))
+		}
+	}
+	return r, nil
+}
+
+func (r *Registry) loadTombstone(file string) {
+	b, err := os.ReadFile(filepath.Join(r.dir, file))
+	var t tombstone
+	if err == nil {
+		err = json.Unmarshal(b, &t)
+	}
+	key := strings.TrimSuffix(file, tombstoneExt)
+	if err != nil || t.Format != tombstoneFormat || strings.ToLower(t.Name) != key || t.UpTo < 1 {
+		r.log.Warn("skipping damaged tombstone file", "file", file)
+		return
+	}
+	m := r.models[key]
+	if m == nil {
+		m = &model{name: t.Name}
+		r.models[key] = m
+	}
+	m.deleted = t.UpTo
+}
+
+func (r *Registry) loadVersion(file string) {
+	path := filepath.Join(r.dir, file)
+	h, doc, err := readModelFile(path)
+	if err == nil {
+		key, n, ok := parseFileName(file)
+		if !ok || strings.ToLower(h.Name) != key || h.Version != n {
+			err = errors.New("file name does not match its header")
+		}
+	}
+	if err != nil {
+		r.log.Warn("skipping damaged model file", "file", file, "err", err.Error())
+		return
+	}
+	key := strings.ToLower(h.Name)
+	m := r.models[key]
+	if m == nil {
+		m = &model{name: h.Name}
+		r.models[key] = m
+	}
+	v := &version{n: h.Version, sha: h.SHA256, size: h.Size, saved: h.Saved, path: path}
+	// Keep only the first version's spelling for display.
+	if len(m.versions) == 0 || h.Version < m.versions[0].n {
+		m.name = h.Name
+	}
+	v.doc = doc
+	m.versions = append(m.versions, v)
+	// Documents of older versions are dropped after loading (read again on
+	// demand); the latest stays in memory.
+	if len(m.versions) > 1 {
+		sort.Slice(m.versions, func(i, j int) bool { return m.versions[i].n < m.versions[j].n })
+		for _, o := range m.versions[:len(m.versions)-1] {
+			o.doc = nil
+		}
+	}
+}
+
+// parseFileName splits "key@vN.model".
+func parseFileName(file string) (string, int, bool) {
+	base := strings.TrimSuffix(file, modelExt)
+	key, n, ok := cell.SplitHandle(base)
+	if !ok || n == 0 {
+		return "", 0, false
+	}
+	return key, n, true
+}
+
+// readModelFile reads and verifies one model file.
+func readModelFile(path string) (header, []byte, error) {
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return header{}, nil, err
+	}
+	line, doc, ok := bytes.Cut(b, []byte{'\n'})
+	if !ok {
+		return header{}, nil, errors.New("no header line (file cut short?)")
+	}
+	var h header
+	if err := json.Unmarshal(line, &h); err != nil {
+		return header{}, nil, fmt.Errorf("bad header: %w", err)
+	}
+	if h.Format != modelFormat {
+		return header{}, nil, fmt.Errorf("unknown format %q", h.Format)
+	}
+	if len(doc) != h.Size {
+		return header{}, nil, fmt.Errorf("document has %d bytes, header says %d (file cut short?)", len(doc), h.Size)
+	}
+	sum := sha256.Sum256(doc)
+	if hex.EncodeToString(sum[:]) != h.SHA256 {
+		return header{}, nil, errors.New("checksum mismatch (file damaged)")
+	}
+	return h, doc, nil
+}
+
+// Watch calls fn with the lower-case model name after every save of a new
+// version and every delete. fn runs on the saving goroutine and must not
+// block. The returned function stops the calls.
+func (r *Registry) Watch(fn func(name string)) (stop func()) {
+	r.mu.Lock()
+	id := r.nextW
+	r.nextW++
+	r.watchers[id] = fn
+	r.mu.Unlock()
+	return func() {
+		r.mu.Lock()
+		delete(r.watchers, id)
+		r.mu.Unlock()
+	}
+}
+
+func (r *Registry) notify(key string) {
+	r.mu.RLock()
+	fns := make([]func(string), 0, len(r.watchers))
+	for _, fn := range r.watchers {
+		fns = append(fns, fn)
+	}
+	r.mu.RUnlock()
+	for _, fn := range fns {
+		fn(key)
+	}
+}
+
+// Save stores doc as the latest version of the named model and returns its
+// handle and whether a new version was added. Bytes identical to the latest
+// version return the latest handle unchanged. Built-in models are read-only.
+func (r *Registry) Save(name string, doc []byte) (string, bool, error) {
+	if err := CheckModelName(name); err != nil {
+		return "", false, err
+	}
+	if len(doc) > MaxModelBytes {
+		return "", false, cell.ValueError("the model document has %d bytes; the limit is %d", len(doc), MaxModelBytes)
+	}
+	key := strings.ToLower(name)
+	sum := sha256.Sum256(doc)
+	sha := hex.EncodeToString(sum[:])
+
+	r.saveMu.Lock()
+	defer r.saveMu.Unlock()
+
+	r.mu.RLock()
+	m := r.models[key]
+	var next int
+	disp := name
+	if m != nil {
+		if m.builtin {
+			r.mu.RUnlock()
+			return "", false, cell.RefError("model %q is built in and read-only; save under another name", m.name)
+		}
+		if v := m.latest(); v != nil {
+			if v.sha == sha {
+				h := handle(m.name, v.n)
+				r.mu.RUnlock()
+				return h, false, nil
+			}
+			disp = m.name
+		}
+		next = m.next()
+	} else {
+		next = 1
+	}
+	r.mu.RUnlock()
+
+	saved := time.Now().UTC().Truncate(time.Millisecond)
+	var path string
+	for {
+		h := header{Format: modelFormat, Name: disp, Version: next, Size: len(doc), SHA256: sha, Saved: saved}
+		line, err := json.Marshal(h)
+		if err != nil {
+			return "", false, err
+		}
+		buf := make([]byte, 0, len(line)+1+len(doc))
+		buf = append(append(append(buf, line...), '\n'), doc...)
+		file := key + "@v" + strconv.Itoa(next) + modelExt
+		err = createFileAtomic(r.dir, file, buf)
+		if errors.Is(err, fs.ErrExist) {
+			next++ // another writer took this number; never overwrite
+			continue
+		}
+		if err != nil {
+			r.log.Error("saving model failed", "err", err.Error())
+			return "", false, cell.ValueError("could not save the model: %v", err)
+		}
+		path = filepath.Join(r.dir, file)
+		break
+	}
+
+	r.mu.Lock()
+	m = r.models[key]
+	if m == nil {
+		m = &model{name: disp}
+		r.models[key] = m
+	}
+	if len(m.versions) == 0 {
+		m.name = disp
+	}
+	if old := m.latest(); old != nil && old.path != "" {
+		old.doc = nil
+	}
+	m.versions = append(m.versions, &version{n: next, sha: sha, size: len(doc), saved: saved, path: path, doc: append([]byte(nil), doc...)})
+	h := handle(m.name, next)
+	r.mu.Unlock()
+	r.log.Info("model saved", "bytes", len(doc), "version", next)
+	r.notify(key)
+	return h, true, nil
+}
+
+// Get returns a model by bare name (latest version) or handle ("name@v3").
+// Unknown names and versions are #REF! errors.
+func (r *Registry) Get(ref string) (cell.ModelRef, error) {
+	name, n, ok := cell.SplitHandle(strings.TrimSpace(ref))
+	if !ok || CheckModelName(name) != nil {
+		return cell.ModelRef{}, cell.RefError("%q is not a model name or handle (like bp or bp@v3)", ref)
+	}
+	key := strings.ToLower(name)
+	r.mu.RLock()
+	m := r.models[key]
+	var v *version
+	if m != nil {
+		if n == 0 {
+			v = m.latest()
+		} else {
+			v = m.find(n)
+		}
+	}
+	if v == nil {
+		r.mu.RUnlock()
+		if m != nil && len(m.versions) > 0 {
+			return cell.ModelRef{}, cell.RefError("model %q has no version %d (latest is %d)", m.name, n, m.latest().n)
+		}
+		return cell.ModelRef{}, cell.RefError("there is no model named %q; fit one or check the name", name)
+	}
+	ref2 := cell.ModelRef{Name: m.name, Version: v.n, Handle: handle(m.name, v.n), Doc: v.doc, SHA256: v.sha, Saved: v.saved, Builtin: m.builtin}
+	path := v.path
+	r.mu.RUnlock()
+	if ref2.Doc == nil {
+		h, doc, err := readModelFile(path)
+		if err != nil || h.SHA256 != ref2.SHA256 {
+			if err == nil {
+				err = errors.New("checksum changed")
+			}
+			r.log.Warn("stored model version unreadable", "err", err.Error())
+			return cell.ModelRef{}, cell.RefError("model %s cannot be read from disk (damaged file); refit it", ref2.Handle)
+		}
+		ref2.Doc = doc
+	}
+	return ref2, nil
+}
+
+// Resolve returns the handle a name or handle currently stands for, without
+// reading the document; ok is false when it does not exist.
+func (r *Registry) Resolve(ref string) (string, bool) {
+	name, n, ok := cell.SplitHandle(ref)
+	if !ok {
+		return "", false
+	}
+	r.mu.RLock()
+	defer r.mu.RUnlock()
+	m := r.models[strings.ToLower(name)]
+	if m == nil {
+		return "", false
+	}
+	var v *version
+	if n == 0 {
+		v = m.latest()
+	} else {
+		v = m.find(n)
+	}
+	if v == nil {
+		return "", false
+	}
+	return handle(m.name, v.n), true
+}
+
+// Delete removes all versions of a model. It first writes a tombstone (so
+// the delete is complete even if the process dies half way), then removes
+// the files. Version numbers of a deleted name are not reused.
+func (r *Registry) Delete(name string) error {
+	if _, n, ok := cell.SplitHandle(name); !ok || n != 0 {
+		return cell.ValueError("delete takes a model name, not a handle like %q: all versions are deleted", name)
+	}
+	if err := CheckModelName(name); err != nil {
+		return err
+	}
+	key := strings.ToLower(name)
+	r.saveMu.Lock()
+	defer r.saveMu.Unlock()
+	r.mu.RLock()
+	m := r.models[key]
+	if m == nil || len(m.versions) == 0 {
+		r.mu.RUnlock()
+		return cell.RefError("there is no model named %q", name)
+	}
+	if m.builtin {
+		r.mu.RUnlock()
+		return cell.RefError("model %q is built in and cannot be deleted", m.name)
+	}
+	upTo := m.latest().n
+	disp := m.name
+	paths := make([]string, 0, len(m.versions))
+	for _, v := range m.versions {
+		paths = append(paths, v.path)
+	}
+	r.mu.RUnlock()
+
+	tb, _ := json.Marshal(tombstone{Format: tombstoneFormat, Name: disp, UpTo: upTo})
+	if err := writeFileAtomic(r.dir, key+tombstoneExt, tb); err != nil {
+		return cell.ValueError("could not delete the model: %v", err)
+	}
+	for _, p := range paths {
+		if err := os.Remove(p); err != nil && !errors.Is(err, fs.ErrNotExist) {
+			r.log.Warn("removing model file failed", "err", err.Error())
+		}
+	}
+	syncDir(r.dir)
+
+	r.mu.Lock()
+	m.versions = nil
+	m.deleted = upTo
+	r.mu.Unlock()
+	r.log.Info("model deleted", "versions", len(paths))
+	r.notify(key)
+	return nil
+}
+
+// AddBuiltin registers a read-only model kept in memory (for example an
+// embedded demo model) as version 1 and returns its handle. A stored model of
+// the same name is hidden while the built-in one exists.
+func (r *Registry) AddBuiltin(name string, doc []byte) (string, error) {
+	if err := CheckModelName(name); err != nil {
+		return "", err
+	}
+	key := strings.ToLower(name)
+	sum := sha256.Sum256(doc)
+	r.mu.Lock()
+	if old := r.models[key]; old != nil {
+		if old.builtin {
+			r.mu.Unlock()
+			return "", fmt.Errorf("built-in model %q registered twice", name)
+		}
+		if len(old.versions) > 0 {
+			r.log.Warn("a stored model is hidden by a built-in model of the same name")
+		}
+	}
+	r.models[key] = &model{name: name, builtin: true, versions: []*version{{
+		n: 1, sha: hex.EncodeToString(sum[:]), size: len(doc), doc: append([]byte(nil), doc...),
+	}}}
+	r.mu.Unlock()
+	r.notify(key)
+	return handle(name, 1), nil
+}
+
+// VersionInfo describes one stored version.
+type VersionInfo struct {
+	Version int       `json:"version"`
+	Handle  string    `json:"handle"`
+	SHA256  string    `json:"sha256"`
+	Size    int       `json:"size"`
+	Saved   time.Time `json:"saved,omitzero"`
+}
+
+// ModelInfo describes one model and its versions (oldest first).
+type ModelInfo struct {
+	Name     string        `json:"name"`
+	Builtin  bool          `json:"builtin"`
+	Latest   string        `json:"latest"`
+	Versions []VersionInfo `json:"versions"`
+}
+
+// List returns all models sorted by name.
+func (r *Registry) List() []ModelInfo {
+	r.mu.RLock()
+	defer r.mu.RUnlock()
+	out := []ModelInfo{}
+	for _, m := range r.models {
+		if len(m.versions) == 0 {
+			continue
+		}
+		mi := ModelInfo{Name: m.name, Builtin: m.builtin, Latest: handle(m.name, m.latest().n)}
+		for _, v := range m.versions {
+			mi.Versions = append(mi.Versions, VersionInfo{Version: v.n, Handle: handle(m.name, v.n), SHA256: v.sha, Size: v.size, Saved: v.saved})
+		}
+		out = append(out, mi)
+	}
+	sort.Slice(out, func(i, j int) bool { return strings.ToLower(out[i].Name) < strings.ToLower(out[j].Name) })
+	return out
+}
+
+// Dir returns the registry's directory.
+func (r *Registry) Dir() string { return r.dir }

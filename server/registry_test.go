@@ -1,0 +1,323 @@
+package server
+
+import (
+	"bufio"
+	"bytes"
+	"encoding/json"
+	"fmt"
+	"log/slog"
+	"math/rand/v2"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"runtime"
+	"strconv"
+	"strings"
+	"testing"
+	"time"
+
+	"veer/functions/cell"
+)
+
+func openReg(t *testing.T, dir string) (*Registry, *syncBuffer) {
+	t.Helper()
+	logs := &syncBuffer{}
+	r, err := OpenRegistry(dir, slog.New(slog.NewTextHandler(logs, nil)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return r, logs
+}
+
+func TestRegistryVersions(t *testing.T) {
+	dir := t.TempDir()
+	r, _ := openReg(t, dir)
+	var events []string
+	r.Watch(func(name string) { events = append(events, name) })
+	steps := []struct {
+		name, doc  string
+		wantHandle string
+		created    bool
+	}{
+		{"BP", "a", "BP@v1", true},
+		{"bp", "a", "BP@v1", false}, // identical to latest: same handle
+		{"bp", "b", "BP@v2", true},
+		{"Bp", "a", "BP@v3", true}, // back to old content: new version, it is the latest now
+		{"fev1", "x", "fev1@v1", true},
+	}
+	for _, s := range steps {
+		h, created, err := r.Save(s.name, []byte(s.doc))
+		if err != nil || h != s.wantHandle || created != s.created {
+			t.Fatalf("Save(%s, %s) = %s, %v, %v; want %s, %v", s.name, s.doc, h, created, err, s.wantHandle, s.created)
+		}
+	}
+	if strings.Join(events, ",") != "bp,bp,bp,fev1" {
+		t.Errorf("watch events = %v", events)
+	}
+	for ref, want := range map[string]string{"bp": "a", "BP@v1": "a", "bp@v2": "b", "bp@V3": "a", "FEV1": "x"} {
+		m, err := r.Get(ref)
+		if err != nil || string(m.Doc) != want {
+			t.Errorf("Get(%s) = %q, %v; want %q", ref, m.Doc, err, want)
+		}
+	}
+	if h, ok := r.Resolve("bp"); !ok || h != "BP@v3" {
+		t.Errorf("Resolve(bp) = %s, %v", h, ok)
+	}
+	for _, ref := range []string{"bp@v4", "nope", "bad/name", "bp@x"} {
+		if _, err := r.Get(ref); cell.AsError(err).Code != cell.CodeRef {
+			t.Errorf("Get(%q) error = %v; want #REF!", ref, err)
+		}
+	}
+	for _, name := range []string{"", "a/b", "../x", ".hidden", "x@v1", strings.Repeat("a", 65), "a b"} {
+		if _, _, err := r.Save(name, []byte("z")); err == nil {
+			t.Errorf("Save(%q) accepted a bad name", name)
+		}
+	}
+
+	// A restart sees the same models, handles and documents.
+	r2, logs := openReg(t, dir)
+	if got, want := r2.List(), r.List(); !equalJSON(got, want) {
+		t.Errorf("after reopen List = %+v; want %+v", got, want)
+	}
+	if h, created, _ := r2.Save("bp", []byte("a")); h != "BP@v3" || created {
+		t.Errorf("after reopen, saving the latest content gave %s, %v", h, created)
+	}
+	if strings.Contains(logs.String(), "WARN") {
+		t.Errorf("clean reopen logged warnings: %s", logs)
+	}
+
+	// Delete: gone now and after a restart, and numbers are not reused.
+	if err := r2.Delete("BP"); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := r2.Get("bp"); cell.AsError(err).Code != cell.CodeRef {
+		t.Errorf("deleted model still readable: %v", err)
+	}
+	if err := r2.Delete("bp"); cell.AsError(err).Code != cell.CodeRef {
+		t.Errorf("second delete error = %v", err)
+	}
+	if err := r2.Delete("fev1@v1"); err == nil {
+		t.Error("delete by handle accepted")
+	}
+	r3, _ := openReg(t, dir)
+	if _, err := r3.Get("bp"); err == nil {
+		t.Error("deleted model came back after restart")
+	}
+	if h, _, _ := r3.Save("bp", []byte("new")); h != "bp@v4" {
+		t.Errorf("save after delete gave %s; want bp@v4 (numbers never reused)", h)
+	}
+}
+
+func equalJSON(a, b any) bool {
+	x, _ := json.Marshal(a)
+	y, _ := json.Marshal(b)
+	return bytes.Equal(x, y)
+}
+
+// TestRegistryDamagedFiles: damaged and partial files are skipped with a
+// warning; the rest loads.
+func TestRegistryDamagedFiles(t *testing.T) {
+	dir := t.TempDir()
+	r, _ := openReg(t, dir)
+	r.Save("good", []byte(`{"v":1}`))
+	r.Save("good", []byte(`{"v":2}`))
+	r.Save("flip", []byte(`{"v":1}`))
+	r.Save("cut", []byte(`{"v":1}`))
+	// A flipped byte in the document.
+	p := filepath.Join(dir, "flip@v1.model")
+	b, _ := os.ReadFile(p)
+	b[len(b)-2] ^= 0x20
+	os.WriteFile(p, b, 0o600)
+	// A file cut short.
+	p = filepath.Join(dir, "cut@v1.model")
+	b, _ = os.ReadFile(p)
+	os.WriteFile(p, b[:len(b)-3], 0o600)
+	// Garbage, a header only, a misnamed copy and an old temporary file.
+	os.WriteFile(filepath.Join(dir, "junk@v1.model"), []byte("not a model"), 0o600)
+	os.WriteFile(filepath.Join(dir, "hdr@v1.model"), []byte(`{"format":"veer-model/1","name":"hdr","version":1,"size":5,"sha256":"00"}`), 0o600)
+	good, _ := os.ReadFile(filepath.Join(dir, "good@v1.model"))
+	os.WriteFile(filepath.Join(dir, "other@v7.model"), good, 0o600)
+	tmp := filepath.Join(dir, ".tmp-123")
+	os.WriteFile(tmp, []byte("half"), 0o600)
+	old := time.Now().Add(-2 * time.Hour)
+	os.Chtimes(tmp, old, old)
+
+	r2, logs := openReg(t, dir)
+	list := r2.List()
+	if len(list) != 1 || list[0].Name != "good" || len(list[0].Versions) != 2 {
+		t.Fatalf("List after damage = %+v", list)
+	}
+	if m, err := r2.Get("good@v1"); err != nil || string(m.Doc) != `{"v":1}` {
+		t.Errorf("old version of a good model: %q, %v", m.Doc, err)
+	}
+	warn := strings.Count(logs.String(), "skipping damaged model file")
+	if warn != 5 {
+		t.Errorf("%d warnings; want 5 (flip, cut, junk, hdr, other): %s", warn, logs)
+	}
+	if _, err := os.Stat(tmp); !os.IsNotExist(err) {
+		t.Error("old temporary file was not removed")
+	}
+	// An old version damaged after loading is reported, not served.
+	p = filepath.Join(dir, "good@v1.model")
+	b, _ = os.ReadFile(p)
+	b[len(b)-2] ^= 0x20
+	os.WriteFile(p, b, 0o600)
+	if _, err := r2.Get("good@v1"); cell.AsError(err).Code != cell.CodeRef {
+		t.Errorf("damaged old version served: %v", err)
+	}
+}
+
+func TestRegistryBuiltin(t *testing.T) {
+	r, _ := openReg(t, t.TempDir())
+	h, err := r.AddBuiltin("demo", []byte(`{"demo":true}`))
+	if err != nil || h != "demo@v1" {
+		t.Fatalf("AddBuiltin = %s, %v", h, err)
+	}
+	if m, err := r.Get("DEMO"); err != nil || !m.Builtin || string(m.Doc) != `{"demo":true}` {
+		t.Errorf("Get(DEMO) = %+v, %v", m, err)
+	}
+	if _, _, err := r.Save("demo", []byte("x")); cell.AsError(err).Code != cell.CodeRef {
+		t.Errorf("saving over a built-in model: %v", err)
+	}
+	if err := r.Delete("demo"); cell.AsError(err).Code != cell.CodeRef {
+		t.Errorf("deleting a built-in model: %v", err)
+	}
+	if _, err := r.AddBuiltin("demo", nil); err == nil {
+		t.Error("second AddBuiltin of the same name accepted")
+	}
+	if l := r.List(); len(l) != 1 || !l[0].Builtin {
+		t.Errorf("List = %+v", l)
+	}
+}
+
+// helperEnv makes the test binary act as a process that saves models in a
+// loop until it is killed.
+const helperEnv = "VEER_TEST_SAVE_LOOP_DIR"
+
+// TestHelperSaveLoop is not a test: run by TestRegistrySurvivesKill in a
+// child process, it saves models as fast as it can and prints each handle
+// after Save returns.
+func TestHelperSaveLoop(t *testing.T) {
+	dir := os.Getenv(helperEnv)
+	if dir == "" {
+		t.Skip("helper process only")
+	}
+	r, err := OpenRegistry(dir, nil)
+	if err != nil {
+		fmt.Println("open failed:", err)
+		os.Exit(3)
+	}
+	round, _ := strconv.Atoi(os.Getenv(helperEnv + "_ROUND"))
+	rng := rand.New(rand.NewPCG(uint64(round), 7))
+	w := bufio.NewWriter(os.Stdout)
+	for i := 0; ; i++ {
+		name := fmt.Sprintf("m%d", i%3)
+		doc := killDoc(round, i, rng.IntN(300_000))
+		h, _, err := r.Save(name, doc)
+		if err != nil {
+			fmt.Fprintln(w, "error", err)
+			w.Flush()
+			os.Exit(4)
+		}
+		fmt.Fprintln(w, "saved", h)
+		w.Flush()
+	}
+}
+
+// killDoc is a self-checking document: its "pad" has the stated length.
+func killDoc(round, i, n int) []byte {
+	return []byte(fmt.Sprintf(`{"round":%d,"i":%d,"n":%d,"pad":"%s"}`, round, i, n, strings.Repeat("x", n)))
+}
+
+// TestRegistrySurvivesKill kills (SIGKILL) a process in the middle of saving
+// models, several times, and checks after each kill that the registry loads
+// without error, every version is intact, and every save the process had
+// completed (printed) is there.
+func TestRegistrySurvivesKill(t *testing.T) {
+	if runtime.GOOS == "js" || runtime.GOOS == "wasip1" {
+		t.Skip("no subprocesses")
+	}
+	dir := t.TempDir()
+	acked := map[string]bool{}
+	rng := rand.New(rand.NewPCG(42, 1))
+	for round := 1; round <= 4; round++ {
+		cmd := exec.Command(os.Args[0], "-test.run=^TestHelperSaveLoop$", "-test.count=1")
+		cmd.Env = append(os.Environ(), helperEnv+"="+dir, helperEnv+"_ROUND="+strconv.Itoa(round))
+		out, err := cmd.StdoutPipe()
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := cmd.Start(); err != nil {
+			t.Fatal(err)
+		}
+		lines := make(chan string, 1024)
+		go func() {
+			sc := bufio.NewScanner(out)
+			for sc.Scan() {
+				lines <- sc.Text()
+			}
+			close(lines)
+		}()
+		// Let it complete a few saves, then kill it at a random moment.
+		want := 5 + rng.IntN(10)
+		got := 0
+		timeout := time.After(15 * time.Second)
+		for got < want {
+			select {
+			case l, ok := <-lines:
+				if !ok {
+					t.Fatalf("helper ended early")
+				}
+				if h, ok := strings.CutPrefix(l, "saved "); ok {
+					acked[h] = true
+					got++
+				} else if strings.HasPrefix(l, "error") {
+					t.Fatalf("helper: %s", l)
+				}
+			case <-timeout:
+				t.Fatal("helper made no progress")
+			}
+		}
+		time.Sleep(time.Duration(rng.IntN(3000)) * time.Microsecond)
+		if err := cmd.Process.Kill(); err != nil {
+			t.Fatal(err)
+		}
+		for l := range lines {
+			if h, ok := strings.CutPrefix(l, "saved "); ok {
+				acked[h] = true
+			}
+		}
+		cmd.Wait()
+
+		r, logs := openReg(t, dir)
+		if strings.Contains(logs.String(), "damaged") {
+			t.Errorf("round %d: damaged files after kill: %s", round, logs)
+		}
+		versions := 0
+		for _, m := range r.List() {
+			for _, v := range m.Versions {
+				versions++
+				ref, err := r.Get(v.Handle)
+				if err != nil {
+					t.Fatalf("round %d: %s listed but unreadable: %v", round, v.Handle, err)
+				}
+				var d struct {
+					Round, I, N int
+					Pad         string
+				}
+				if err := json.Unmarshal(ref.Doc, &d); err != nil || len(d.Pad) != d.N {
+					t.Fatalf("round %d: %s holds a damaged document (%d bytes): %v", round, v.Handle, len(ref.Doc), err)
+				}
+			}
+		}
+		for h := range acked {
+			if _, err := r.Get(h); err != nil {
+				t.Errorf("round %d: save of %s completed before the kill but is lost: %v", round, h, err)
+			}
+		}
+		if versions < len(acked) {
+			t.Errorf("round %d: %d versions on disk but %d saves completed", round, versions, len(acked))
+		}
+		t.Logf("round %d: killed after %d acknowledged saves; %d versions on disk", round, got, versions)
+	}
+}
