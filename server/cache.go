@@ -1,37 +1,49 @@
 package server
 
-import (
-	"container/list"
-	"sync"
-)
+import "sync"
 
 // lru is a bounded least-recently-used map, limited by entry count and by an
-// approximate byte size. Safe for concurrent use.
+// approximate byte size. Safe for concurrent use. The recency list is
+// intrusive (one allocation per entry).
 type lru[V any] struct {
 	mu       sync.Mutex
 	maxN     int
 	maxBytes int64
 	bytes    int64
-	ll       list.List
-	m        map[string]*list.Element
+	m        map[string]*lruEntry[V]
+	head     lruEntry[V] // sentinel: head.next is the most recent
 }
 
 type lruEntry[V any] struct {
-	key  string
-	val  V
-	size int64
+	key        string
+	val        V
+	size       int64
+	prev, next *lruEntry[V]
 }
 
 func newLRU[V any](maxN int, maxBytes int64) *lru[V] {
-	return &lru[V]{maxN: maxN, maxBytes: maxBytes, m: map[string]*list.Element{}}
+	c := &lru[V]{maxN: maxN, maxBytes: maxBytes, m: map[string]*lruEntry[V]{}}
+	c.head.next, c.head.prev = &c.head, &c.head
+	return c
+}
+
+func (c *lru[V]) unlink(e *lruEntry[V]) {
+	e.prev.next, e.next.prev = e.next, e.prev
+}
+
+func (c *lru[V]) pushFront(e *lruEntry[V]) {
+	e.prev, e.next = &c.head, c.head.next
+	c.head.next.prev = e
+	c.head.next = e
 }
 
 func (c *lru[V]) get(key string) (V, bool) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
 	if e, ok := c.m[key]; ok {
-		c.ll.MoveToFront(e)
-		return e.Value.(*lruEntry[V]).val, true
+		c.unlink(e)
+		c.pushFront(e)
+		return e.val, true
 	}
 	var zero V
 	return zero, false
@@ -46,20 +58,21 @@ func (c *lru[V]) put(key string, val V, size int64) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
 	if e, ok := c.m[key]; ok {
-		old := e.Value.(*lruEntry[V])
-		c.bytes += size - old.size
-		old.val, old.size = val, size
-		c.ll.MoveToFront(e)
+		c.bytes += size - e.size
+		e.val, e.size = val, size
+		c.unlink(e)
+		c.pushFront(e)
 	} else {
-		c.m[key] = c.ll.PushFront(&lruEntry[V]{key: key, val: val, size: size})
+		e := &lruEntry[V]{key: key, val: val, size: size}
+		c.m[key] = e
+		c.pushFront(e)
 		c.bytes += size
 	}
-	for c.ll.Len() > c.maxN || c.bytes > c.maxBytes {
-		e := c.ll.Back()
-		ent := e.Value.(*lruEntry[V])
-		c.ll.Remove(e)
-		delete(c.m, ent.key)
-		c.bytes -= ent.size
+	for len(c.m) > c.maxN || c.bytes > c.maxBytes {
+		e := c.head.prev
+		c.unlink(e)
+		delete(c.m, e.key)
+		c.bytes -= e.size
 	}
 }
 
@@ -67,15 +80,14 @@ func (c *lru[V]) remove(key string) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
 	if e, ok := c.m[key]; ok {
-		ent := e.Value.(*lruEntry[V])
-		c.ll.Remove(e)
+		c.unlink(e)
 		delete(c.m, key)
-		c.bytes -= ent.size
+		c.bytes -= e.size
 	}
 }
 
 func (c *lru[V]) len() int {
 	c.mu.Lock()
 	defer c.mu.Unlock()
-	return c.ll.Len()
+	return len(c.m)
 }

@@ -56,9 +56,9 @@ type outcome struct {
 
 // callOpts carry per-caller facts.
 type callOpts struct {
-	authorized bool          // a valid install token came with the call
-	progress   func(float64) // receives progress reports, or nil
-	source     string        // "http" or "ws", for logs
+	authorized bool         // a valid install token came with the call
+	progress   progressSink // receives progress reports, or nil
+	source     string       // "http" or "ws", for logs
 }
 
 func newEngine(cat *cell.Catalogue, reg *Registry, lim Limits, log *slog.Logger, token string, base context.Context) *engine {
@@ -133,23 +133,39 @@ func (e *engine) valid(deps []dep) bool {
 	return true
 }
 
+// progressSink receives progress reports of a computation.
+type progressSink interface{ progress(done float64) }
+
+// leaveHook is implemented by contexts that can tell the engine directly
+// when their caller goes away (cheaper than context.AfterFunc).
+type leaveHook interface {
+	setLeave(f func())
+	clearLeave() bool // false if f has run or is running
+}
+
 // flight is one computation shared by all identical concurrent calls.
 type flight struct {
-	done    chan struct{}
+	ctx     flightCtx
+	env     callEnv
 	out     *outcome
-	cancel  context.CancelFunc
-	waiters int // guarded by engine.mu
+	done    chan struct{} // made when a second caller joins; guarded by engine.mu
+	waiters int           // guarded by engine.mu
 	pmu     sync.Mutex
-	plisten []func(float64)
+	p0      progressSink
+	plisten []progressSink
 	last    float64
 }
 
-func (fl *flight) addListener(fn func(float64)) {
-	if fn == nil {
+func (fl *flight) addListener(p progressSink) {
+	if p == nil {
 		return
 	}
 	fl.pmu.Lock()
-	fl.plisten = append(fl.plisten, fn)
+	if fl.p0 == nil {
+		fl.p0 = p
+	} else {
+		fl.plisten = append(fl.plisten, p)
+	}
 	fl.pmu.Unlock()
 }
 
@@ -164,59 +180,103 @@ func (fl *flight) progress(p float64) {
 		return
 	}
 	fl.last = p
-	ls := make([]func(float64), len(fl.plisten))
+	p0 := fl.p0
+	ls := make([]progressSink, len(fl.plisten))
 	copy(ls, fl.plisten)
 	fl.pmu.Unlock()
-	for _, fn := range ls {
-		fn(p)
+	if p0 != nil {
+		p0.progress(p)
+	}
+	for _, l := range ls {
+		l.progress(p)
 	}
 }
 
 // shared joins or starts the computation for key and waits for it or for
-// ctx. A computation is cancelled only when every caller waiting for it has
-// gone.
+// ctx. The first caller computes on its own goroutine; a computation is
+// cancelled only when every caller waiting for it has gone.
 func (e *engine) shared(ctx context.Context, key string, f *cell.Func, args cell.Args, opts callOpts) *outcome {
 	e.mu.Lock()
-	fl := e.flights[key]
-	if fl == nil {
-		timeout := e.lim.CallTimeout
-		if f.Slow {
-			timeout = e.lim.SlowCallTimeout
+	if fl := e.flights[key]; fl != nil {
+		fl.waiters++
+		if fl.done == nil {
+			fl.done = make(chan struct{})
 		}
-		fctx, cancel := context.WithTimeout(e.base, timeout)
-		fl = &flight{done: make(chan struct{}), cancel: cancel}
-		e.flights[key] = fl
-		go e.run(fctx, fl, key, f, args, timeout)
-	}
-	fl.waiters++
-	fl.addListener(opts.progress)
-	e.mu.Unlock()
-
-	select {
-	case <-fl.done:
-		return fl.out
-	case <-ctx.Done():
-		e.mu.Lock()
-		fl.waiters--
-		if fl.waiters == 0 {
-			fl.cancel()
-			if e.flights[key] == fl {
-				delete(e.flights, key) // later callers start afresh
-			}
-		}
+		done := fl.done
+		fl.addListener(opts.progress)
 		e.mu.Unlock()
+		select {
+		case <-done:
+			return fl.out
+		case <-ctx.Done():
+			e.leave(key, fl)
+			return errOutcome(cell.BusyError("the call was cancelled"))
+		}
+	}
+	timeout := e.lim.CallTimeout
+	if f.Slow {
+		timeout = e.lim.SlowCallTimeout
+	}
+	fl := &flight{waiters: 1}
+	fl.ctx.init(e.base, timeout)
+	fl.addListener(opts.progress)
+	e.flights[key] = fl
+	e.mu.Unlock()
+	// The first caller computes on its own goroutine. If it goes away, it
+	// leaves like any waiter.
+	leave := func() { e.leave(key, fl) }
+	left := false
+	if lh, ok := ctx.(leaveHook); ok {
+		lh.setLeave(leave)
+		e.run(&fl.ctx, fl, key, f, args, timeout)
+		left = !lh.clearLeave()
+	} else if ctx.Done() != nil {
+		stop := context.AfterFunc(ctx, leave)
+		e.run(&fl.ctx, fl, key, f, args, timeout)
+		left = !stop()
+	} else {
+		e.run(&fl.ctx, fl, key, f, args, timeout)
+	}
+	if left {
 		return errOutcome(cell.BusyError("the call was cancelled"))
+	}
+	return fl.out
+}
+
+// leave records that a caller stopped waiting for fl; the last one to leave
+// cancels the computation.
+func (e *engine) leave(key string, fl *flight) {
+	e.mu.Lock()
+	defer e.mu.Unlock()
+	fl.waiters--
+	if fl.waiters == 0 {
+		fl.ctx.cancel()
+		if e.flights[key] == fl {
+			delete(e.flights, key) // later callers start afresh
+		}
 	}
 }
 
 // run computes one flight.
-func (e *engine) run(ctx context.Context, fl *flight, key string, f *cell.Func, args cell.Args, timeout time.Duration) {
-	defer fl.cancel()
+func (e *engine) run(ctx *flightCtx, fl *flight, key string, f *cell.Func, args cell.Args, timeout time.Duration) {
+	defer ctx.release()
 	start := time.Now()
-	env := &callEnv{e: e, f: f, ctx: ctx, fl: fl}
+	env := &fl.env
+	env.e, env.f, env.ctx, env.fl = e, f, ctx, fl
 	out := &outcome{fn: f}
+	// Take a computation slot without arming the context when one is free.
+	acquired := false
 	select {
 	case e.sem <- struct{}{}:
+		acquired = true
+	default:
+		select {
+		case e.sem <- struct{}{}:
+			acquired = true
+		case <-ctx.Done():
+		}
+	}
+	if acquired {
 		v, err, panicked := e.invoke(ctx, f, env, args)
 		<-e.sem
 		switch {
@@ -224,7 +284,7 @@ func (e *engine) run(ctx context.Context, fl *flight, key string, f *cell.Func, 
 			out.err = cell.ValueError("internal error in %s; please report it (the server log names the place)", f.Name)
 		case err != nil:
 			out.err = cell.AsError(err)
-			if ctx.Err() != nil && (errors.Is(err, ctx.Err()) || out.err.Code == cell.CodeBusy) {
+			if cerr := ctx.Err(); cerr != nil && (errors.Is(err, cerr) || out.err.Code == cell.CodeBusy) {
 				out.err = ctxError(ctx, f, timeout)
 			}
 		default:
@@ -241,31 +301,33 @@ func (e *engine) run(ctx context.Context, fl *flight, key string, f *cell.Func, 
 		if cacheable {
 			e.results.put(key, out, int64(len(key)+len(out.val)+200+64*len(out.deps)))
 		}
-	case <-ctx.Done():
-		if errors.Is(ctx.Err(), context.DeadlineExceeded) {
-			out.err = cell.BusyError("all %d computation slots stayed busy for the whole %s time limit of %s; recalculate later", e.lim.MaxConcurrent, timeout, f.Name)
-		} else {
-			out.err = cell.BusyError("the call was cancelled")
-		}
+	} else if errors.Is(ctx.Err(), context.DeadlineExceeded) {
+		out.err = cell.BusyError("all %d computation slots stayed busy for the whole %s time limit of %s; recalculate later", e.lim.MaxConcurrent, timeout, f.Name)
+	} else {
+		out.err = cell.BusyError("the call was cancelled")
 	}
 	e.mu.Lock()
 	fl.out = out
 	if e.flights[key] == fl {
 		delete(e.flights, key)
 	}
+	if fl.done != nil {
+		close(fl.done)
+	}
 	e.mu.Unlock()
-	close(fl.done)
 
 	el := time.Since(start)
-	code := ""
-	if out.err != nil {
-		code = out.err.Code
-	}
 	lvl := slog.LevelDebug
 	if el > time.Second || f.Slow {
 		lvl = slog.LevelInfo
 	}
-	e.log.Log(context.Background(), lvl, "call", "fn", f.Name, "ms", float64(el.Microseconds())/1000, "result_bytes", len(out.val), "code", code)
+	if e.log.Enabled(context.Background(), lvl) {
+		code := ""
+		if out.err != nil {
+			code = out.err.Code
+		}
+		e.log.Log(context.Background(), lvl, "call", "fn", f.Name, "ms", float64(el.Microseconds())/1000, "result_bytes", len(out.val), "code", code)
+	}
 }
 
 // ctxError explains why a computation's context ended.

@@ -91,8 +91,8 @@ func TestOriginCheck(t *testing.T) {
 		{"https://addin.example.org.evil.example", false},
 		{"http://addin.example.org", false}, // wrong scheme
 		{"null", false},
-		{"http://127.0.0.1:1", false},                // another local web server
-		{"https://127.0.0.1:" + port, false},         // wrong scheme for this server
+		{"http://127.0.0.1:1", false},                 // another local web server
+		{"https://127.0.0.1:" + port, false},          // wrong scheme for this server
 		{"http://127.0.0.1:" + port + "/path", false}, // not an origin
 		{"file://", false},
 	}

@@ -81,6 +81,7 @@ func decodeRequests(data []byte, lim decodeLimits) (reqs []request, batch bool, 
 			if len(reqs) >= lim.maxBatch {
 				d.fail("the batch has more than " + strconv.Itoa(lim.maxBatch) + " calls, the limit per frame")
 			}
+			reqs = grow(reqs)
 			if d.peek() == '{' {
 				reqs = append(reqs, d.message())
 			} else {
@@ -104,12 +105,25 @@ func decodeRequests(data []byte, lim decodeLimits) (reqs []request, batch bool, 
 	return reqs, batch, nil
 }
 
+// grow makes room for one more element, doubling the capacity (append grows
+// large slices by only 1.25x, which copies big ranges many times over).
+func grow[T any](s []T) []T {
+	if len(s) < cap(s) {
+		return s
+	}
+	n := make([]T, len(s), max(2*cap(s), 8))
+	copy(n, s)
+	return n
+}
+
 type decoder struct {
 	data  []byte
 	pos   int
 	lim   decodeLimits
-	cells int         // cells in the current "args"
-	shape *shapeError // first problem in the current "args"
+	names map[string]string // function names seen in this frame
+	slab  []cell.Value      // arguments of the frame's messages
+	cells int               // cells in the current "args"
+	shape *shapeError       // first problem in the current "args"
 }
 
 func (d *decoder) fail(msg string) {
@@ -197,7 +211,7 @@ func (d *decoder) message() request {
 			fields[fFn] = nil
 			r.fn = ""
 			if d.peek() == '"' {
-				r.fn = d.str()
+				r.fn = d.name()
 			} else {
 				d.skip(0)
 				set(fFn, "\"fn\" must be the function name as text")
@@ -278,24 +292,35 @@ func (d *decoder) idValue(bad func(string), field string) []byte {
 		bad("\"" + field + "\" is longer than 256 bytes")
 		return nil
 	}
-	return append([]byte(nil), d.data[start:d.pos]...)
+	return d.data[start:d.pos:d.pos] // aliases the frame, which is not reused
 }
 
 // args decodes the argument array.
+// The arguments of the messages of a frame share chunks of Values (growing
+// to 256 per chunk: one allocation per 256 arguments of a batch rather than
+// one per message).
 func (d *decoder) args() []cell.Value {
 	d.expect('[')
-	var out []cell.Value
 	d.ws()
 	if d.peek() == ']' {
 		d.pos++
-		return out
+		return nil
 	}
+	start := len(d.slab)
 	for i := 0; ; i++ {
 		d.ws()
-		out = append(out, d.arg(i))
+		v := d.arg(i)
+		if len(d.slab) == cap(d.slab) {
+			// A new chunk; this message's arguments so far move with it.
+			n := len(d.slab) - start
+			chunk := make([]cell.Value, n, max(2*(n+1), min(256, max(4, 2*cap(d.slab)))))
+			copy(chunk, d.slab[start:])
+			d.slab, start = chunk, 0
+		}
+		d.slab = append(d.slab, v)
 		d.ws()
 		if d.next() == ']' {
-			return out
+			return d.slab[start:len(d.slab):len(d.slab)]
 		}
 		d.back()
 		d.expect(',')
@@ -353,7 +378,7 @@ func (d *decoder) arg(i int) cell.Value {
 					ok = false
 				}
 				if ok && d.countCells(1) {
-					cells = append(cells, c)
+					cells = append(grow(cells), c)
 				} else {
 					ok = false
 				}
@@ -400,7 +425,7 @@ func (d *decoder) arg(i int) cell.Value {
 							ok = false
 						}
 						if ok && d.countCells(1) {
-							flat = append(flat, c)
+							flat = append(grow(flat), c)
 							n++
 						} else {
 							ok = false
@@ -471,7 +496,7 @@ func (d *decoder) errorObject() (cell.Cell, string) {
 	d.pos++ // '{'
 	var code string
 	codeKind, msgKind := byte(0), byte(0) // 0 absent, 's' text, 'x' other
-	extra := ""
+	extra, hasExtra := "", false
 	d.ws()
 	if d.peek() != '}' {
 		for {
@@ -499,8 +524,8 @@ func (d *decoder) errorObject() (cell.Cell, string) {
 				}
 			default:
 				d.skip(1)
-				if extra == "" {
-					extra = key
+				if !hasExtra {
+					extra, hasExtra = key, true
 				}
 			}
 			d.ws()
@@ -516,7 +541,7 @@ func (d *decoder) errorObject() (cell.Cell, string) {
 	switch {
 	case codeKind != 's':
 		return cell.Cell{}, `an object in a cell must be an error value like {"error": "#N/A"}`
-	case extra != "":
+	case hasExtra:
 		return cell.Cell{}, `an error value has only "error" and "message" fields, not ` + strconv.Quote(extra)
 	case msgKind == 'x':
 		return cell.Cell{}, `the "message" of an error value must be text`
@@ -653,6 +678,39 @@ func (d *decoder) number() float64 {
 		d.fail("the number " + string(b) + " is out of range")
 	}
 	return f
+}
+
+// name parses a string that repeats across a batch (a function name),
+// reusing one copy per frame.
+func (d *decoder) name() string {
+	start := d.pos
+	if d.names != nil {
+		for p := start + 1; p < len(d.data); p++ {
+			c := d.data[p]
+			if c == '"' {
+				if n, ok := d.names[string(d.data[start:p+1])]; ok {
+					d.pos = p + 1
+					return n
+				}
+				break
+			}
+			if c == '\\' || c < 0x20 || c >= 0x80 {
+				break
+			}
+		}
+	}
+	s := d.str()
+	raw := d.data[start:d.pos]
+	if n, ok := d.names[string(raw)]; ok {
+		return n
+	}
+	if d.names == nil {
+		d.names = map[string]string{}
+	}
+	if len(d.names) < 64 {
+		d.names[string(raw)] = s
+	}
+	return s
 }
 
 // str parses a JSON string at the current position.

@@ -36,7 +36,7 @@ func TestDecodeRequests(t *testing.T) {
 		{`[` + strings.Repeat(`{},`, 10) + `{}]`, true, 0, "more than 10 calls", "", 0},
 		{`{"fn":"F"`, false, 0, "unexpected end", "", 0},
 		{`{"fn":"F"}x`, false, 0, "unexpected data", "", 0},
-		{`{"fn":"F","args":[01]}`, false, 0, "unexpected", "", 0},
+		{`{"fn":"F","args":[01]}`, false, 0, "expected ','", "", 0},
 		{`{"fn":"F","args":[1.]}`, false, 0, "invalid number", "", 0},
 		{`{"fn":"F","args":[tru]}`, false, 0, "invalid literal", "", 0},
 		{`{"fn":"F","args":["\q"]}`, false, 0, "invalid escape", "", 0},

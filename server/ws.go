@@ -1,6 +1,7 @@
 package server
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
@@ -45,7 +46,9 @@ type wsConn struct {
 	mu       sync.Mutex
 	closed   bool // no new handlers or updates
 	shutdown bool // the server is shutting down: finish calls, then close
+	dead     bool // calls are cancelled as they register
 	calls    map[string]*wsCall
+	anon     map[*wsCall]struct{} // live calls without an id
 	subs     int
 
 	msgs, bytesIn atomic.Int64
@@ -53,11 +56,10 @@ type wsConn struct {
 
 // wsCall is a call in progress or a live subscription, by id.
 type wsCall struct {
-	conn   *wsConn
-	id     []byte
-	req    request
-	ctx    context.Context
-	cancel context.CancelFunc
+	conn *wsConn
+	id   []byte
+	req  request
+	cctx callCtx
 
 	// guarded by conn.mu
 	subscribed bool
@@ -92,6 +94,7 @@ func (s *Server) handleWS(w http.ResponseWriter, r *http.Request) {
 		writerDone: make(chan struct{}),
 		slots:      make(chan struct{}, s.lim.MaxInflightPerConn),
 		calls:      map[string]*wsCall{},
+		anon:       map[*wsCall]struct{}{},
 	}
 	conn.ctx, conn.cancel = context.WithCancel(s.base)
 	s.mu.Lock()
@@ -179,8 +182,8 @@ func (conn *wsConn) reader() {
 			if batch {
 				conn.handleBatch(reqs)
 			} else {
-				ans, again := conn.handle(&reqs[0], false)
-				conn.send(ans)
+				res, again := conn.handle(&reqs[0], false)
+				conn.send(res.appendTo(nil))
 				if again != nil {
 					again.trigger()
 				}
@@ -223,15 +226,38 @@ func (conn *wsConn) finish() {
 	conn.mu.Unlock()
 	if !graceful {
 		conn.cancel()
+		conn.cancelAll()
 	}
 	conn.mu.Lock()
 	conn.closed = true
 	conn.mu.Unlock()
 	conn.wg.Wait()
 	conn.cancel()
+	conn.cancelAll()
 	close(conn.out)
 	<-conn.writerDone
 	conn.c.Close()
+}
+
+// cancelAll cancels every live call and subscription; calls registering
+// later are cancelled at once.
+func (conn *wsConn) cancelAll() {
+	conn.mu.Lock()
+	conn.dead = true
+	live := make([]*wsCall, 0, len(conn.calls)+len(conn.anon))
+	for _, c := range conn.calls {
+		live = append(live, c)
+	}
+	for c := range conn.anon {
+		live = append(live, c)
+	}
+	clear(conn.calls)
+	clear(conn.anon)
+	conn.subs = 0
+	conn.mu.Unlock()
+	for _, c := range live {
+		c.cctx.cancel()
+	}
 }
 
 // writer sends frames and pings; the only goroutine writing data frames.
@@ -339,36 +365,62 @@ func (conn *wsConn) cancelCall(id []byte) []byte {
 	if call == nil {
 		return appendCancelled(nil, id, false)
 	}
-	call.cancel()
+	call.cctx.cancel()
 	return appendCancelled(nil, id, true)
+}
+
+// wsResult is what a message is answered with.
+type wsResult struct {
+	raw       []byte   // a ready answer (cancel acks, token answers)
+	out       *outcome // or a call's outcome
+	id        []byte
+	cancelled bool // or "cancelled": true
+}
+
+func (r wsResult) appendTo(b []byte) []byte {
+	switch {
+	case r.raw != nil:
+		return append(b, r.raw...)
+	case r.cancelled:
+		return appendCancelled(b, r.id, true)
+	case r.out != nil:
+		return appendAnswer(b, r.id, r.out.val, r.out.err, false)
+	}
+	return b
 }
 
 // handleBatch answers a batch in one frame, in order.
 func (conn *wsConn) handleBatch(reqs []request) {
-	answers := make([][]byte, len(reqs))
+	results := make([]wsResult, len(reqs))
 	again := make([]*wsCall, len(reqs))
 	conn.s.runBatch(len(reqs), func(i int) {
 		req := &reqs[i]
 		switch {
 		case req.shape == nil && req.cancel != nil && req.fn == "":
-			answers[i] = conn.cancelCall(req.cancel)
+			results[i].raw = conn.cancelCall(req.cancel)
 		case req.shape == nil && req.fn == "" && req.token != "":
-			answers[i] = conn.tokenOnly(req)
+			results[i].raw = conn.tokenOnly(req)
 		default:
-			answers[i], again[i] = conn.handle(req, true)
+			results[i], again[i] = conn.handle(req, true)
 		}
 	})
 	n := 2
-	for _, a := range answers {
-		n += len(a) + 1
+	for _, r := range results {
+		n += len(r.id) + len(r.raw) + 16
+		if r.out != nil {
+			n += len(r.out.val) + 16
+			if r.out.err != nil {
+				n += len(r.out.err.Message) + 40
+			}
+		}
 	}
 	b := make([]byte, 0, n)
 	b = append(b, '[')
-	for i, a := range answers {
+	for i, r := range results {
 		if i > 0 {
 			b = append(b, ',')
 		}
-		b = append(b, a...)
+		b = r.appendTo(b)
 	}
 	conn.send(append(b, ']'))
 	for _, c := range again {
@@ -378,43 +430,47 @@ func (conn *wsConn) handleBatch(reqs []request) {
 	}
 }
 
-// handle runs one call and returns its answer frame. A call cancelled by the
+// handle runs one call and returns its answer. A call cancelled by the
 // client gets no answer (the cancel was acknowledged), except inside a batch
 // where every position is answered ({"id": ..., "cancelled": true}). again is
 // a new subscription to trigger once the answer is sent, because a model it
 // read changed meanwhile.
-func (conn *wsConn) handle(req *request, inBatch bool) (ans []byte, again *wsCall) {
+func (conn *wsConn) handle(req *request, inBatch bool) (res wsResult, again *wsCall) {
 	if req.token != "" && tokenOK(conn.s.token, req.token) {
 		conn.authorized.Store(true)
 	}
 	call := conn.register(req)
 	opts := callOpts{authorized: conn.authorized.Load(), source: "ws"}
 	if call.id != nil {
-		opts.progress = call.progress
+		opts.progress = call
 	}
-	out := conn.s.eng.call(call.ctx, req, opts)
+	out := conn.s.eng.call(&call.cctx, req, opts)
 
 	conn.mu.Lock()
-	cancelled := call.ctx.Err() != nil
+	cancelled := call.cctx.Err() != nil
 	call.answered = true
 	subscribe := !cancelled && call.id != nil && req.subscribe && out.fn != nil && out.fn.Streaming && len(out.reads) > 0 && conn.subs < conn.s.lim.MaxSubscriptionsPerConn && !conn.closed && conn.calls[string(call.id)] == call
 	if subscribe {
 		call.subscribed = true
 		call.reads = out.reads
+		call.id = bytes.Clone(call.id) // do not keep the whole frame alive
 		conn.subs++
-	} else if call.id != nil && conn.calls[string(call.id)] == call {
-		delete(conn.calls, string(call.id))
+	} else if call.id != nil {
+		if conn.calls[string(call.id)] == call {
+			delete(conn.calls, string(call.id))
+		}
+	} else {
+		delete(conn.anon, call)
 	}
 	conn.mu.Unlock()
 
+	res.id = req.id
 	if cancelled {
-		call.cancel()
-		if inBatch {
-			return appendCancelled(nil, req.id, true), nil
-		}
-		return nil, nil
+		call.cctx.cancel()
+		res.cancelled = inBatch
+		return res, nil
 	}
-	ans = appendAnswer(nil, req.id, out.val, out.err, false)
+	res.out = out
 	if subscribe {
 		// A model may have changed between the computation and the
 		// subscription: answer again at once if so.
@@ -425,28 +481,34 @@ func (conn *wsConn) handle(req *request, inBatch bool) (ans []byte, again *wsCal
 			}
 		}
 	} else {
-		call.cancel()
+		call.cctx.cancel()
 	}
-	return ans, again
+	return res, again
 }
 
 // register records a call by id so that it can be cancelled; a new call
 // with the id of an active one replaces (cancels) it.
 func (conn *wsConn) register(req *request) *wsCall {
 	call := &wsCall{conn: conn, id: req.id, req: *req}
-	call.ctx, call.cancel = context.WithCancel(conn.ctx)
-	if req.id == nil {
+	conn.mu.Lock()
+	if conn.dead {
+		conn.mu.Unlock()
+		call.cctx.cancel()
 		return call
 	}
-	conn.mu.Lock()
-	old := conn.calls[string(req.id)]
-	conn.calls[string(req.id)] = call
-	if old != nil && old.subscribed {
-		conn.subs--
+	var old *wsCall
+	if req.id == nil {
+		conn.anon[call] = struct{}{}
+	} else {
+		old = conn.calls[string(req.id)]
+		conn.calls[string(req.id)] = call
+		if old != nil && old.subscribed {
+			conn.subs--
+		}
 	}
 	conn.mu.Unlock()
 	if old != nil {
-		old.cancel()
+		old.cctx.cancel()
 	}
 	return call
 }
@@ -463,7 +525,7 @@ func (call *wsCall) progress(p float64) {
 	call.pmu.Unlock()
 	conn := call.conn
 	conn.mu.Lock()
-	live := !call.answered && call.ctx.Err() == nil
+	live := !call.answered && call.cctx.Err() == nil
 	conn.mu.Unlock()
 	if live {
 		conn.trySend(appendProgress(nil, call.id, p))
@@ -512,12 +574,12 @@ func (call *wsCall) trigger() {
 func (call *wsCall) updateLoop() {
 	conn := call.conn
 	for {
-		if call.ctx.Err() != nil {
+		if call.cctx.Err() != nil {
 			return
 		}
 		opts := callOpts{authorized: conn.authorized.Load(), source: "ws"}
-		out := conn.s.eng.call(call.ctx, &call.req, opts)
-		if call.ctx.Err() != nil {
+		out := conn.s.eng.call(&call.cctx, &call.req, opts)
+		if call.cctx.Err() != nil {
 			return
 		}
 		conn.mu.Lock()

@@ -53,4 +53,8 @@
 // A fitted Model is serialised by Encode to versioned JSON with a content
 // hash; Decode verifies format, version and hash. Same data (in any row
 // order) and settings give the same model and hash.
+//
+// Bibliographic details of the cited papers (journal, volume, pages) are
+// recalled from memory; the formulas are checked against the outside
+// fixtures in the tests.
 package refcurve

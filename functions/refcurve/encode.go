@@ -119,7 +119,7 @@ func (m *Model) validate() error {
 		if len(c.Time) != n || len(c.Mean) != n || len(c.SD) != n {
 			return fmt.Errorf("%s: curves must have %d grid times", groupLabel(c.Group), n)
 		}
-		if !finite(c.TimeMin) || !finite(c.TimeMax) || !(c.TimeMin < c.TimeMax) {
+		if !finite(c.TimeMin) || !finite(c.TimeMax) || !(c.TimeMin < c.TimeMax) || !wideEnough(c.TimeMin, c.TimeMax) {
 			return fmt.Errorf("%s: the time range is not valid", groupLabel(c.Group))
 		}
 		r := c.TimeMax - c.TimeMin

@@ -6,12 +6,11 @@ import (
 	"math"
 	"unicode/utf8"
 
+	"gonum.org/v1/gonum/stat/distuv"
+
 	"veer/functions/smooth"
 	"veer/functions/transform"
 )
-
-// z975 is Φ⁻¹(0.975), the half-width of the central 95% band in sd units.
-const z975 = 1.959963984540054
 
 // binsPerBandwidth: the final curves are binned on a grid at least this
 // fine relative to the bandwidth (a refinement of the model grid), so the
@@ -173,6 +172,9 @@ func fitGroup(rows []Row, vals []float64, blk []int32, ix *rowIndex, set Setting
 	if !(hi > lo) {
 		return nil, fmt.Errorf("all exams of %s are at time %s; a curve needs exams at different times", label, num(lo))
 	}
+	if !wideEnough(lo, hi) {
+		return nil, fmt.Errorf("the exams of %s span only %g years (%s to %s); a curve needs a wider range of times", label, hi-lo, num(lo), num(hi))
+	}
 	if ymin, ymax := minMax(d.Y); ymin == ymax {
 		return nil, fmt.Errorf("all values of %s are equal (%s on the transformed scale); the values do not vary, so there is no spread to describe", label, num(ymin))
 	}
@@ -243,7 +245,8 @@ func fitGroup(rows []Row, vals []float64, blk []int32, ix *rowIndex, set Setting
 	progress(label+": diagnostics", 0.92)
 
 	// Diagnostics on the standardised residuals.
-	z := resid // reuse
+	z := resid                                // reuse
+	z975 := distuv.UnitNormal.Quantile(0.975) // half-width of the central 95% band
 	inside := 0
 	for k := range z {
 		_, sd := c.interp(d.X[k])
@@ -261,6 +264,12 @@ func fitGroup(rows []Row, vals []float64, blk []int32, ix *rowIndex, set Setting
 	diag.Warnings = warnings(c, set)
 	progress(label+": done", 1)
 	return c, nil
+}
+
+// wideEnough reports whether [lo, hi] is wide enough to hold a grid: at
+// least a millionth of the magnitude of its ends (and of 1 year).
+func wideEnough(lo, hi float64) bool {
+	return hi-lo >= 1e-6*math.Max(1, math.Max(math.Abs(lo), math.Abs(hi)))
 }
 
 func minMax(v []float64) (lo, hi float64) {

@@ -4,8 +4,10 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"runtime"
 	"strconv"
 	"strings"
+	"sync"
 
 	"gonum.org/v1/gonum/stat/distuv"
 
@@ -150,7 +152,9 @@ const maxReportedEntries = 5
 // value y[i] at time t[i] in group groups[i] (or groups[0] for every entry
 // when len(groups) == 1). t, y and out must have equal lengths. Entries
 // that cannot be scored get NaN in out and are reported together in a
-// *ScoreErrors; the others are still computed.
+// *ScoreErrors (count and the first few by index); the others are still
+// computed. Large inputs are split over up to GOMAXPROCS goroutines; the
+// result does not depend on how many.
 func (m *Model) ZMany(groups []string, t, y []float64, extrapolate bool, out []float64) error {
 	n := len(t)
 	if len(y) != n || len(out) != n {
@@ -159,6 +163,48 @@ func (m *Model) ZMany(groups []string, t, y []float64, extrapolate bool, out []f
 	if len(groups) != n && len(groups) != 1 {
 		return fmt.Errorf("give one group per entry (%d) or a single group for all, not %d", n, len(groups))
 	}
+	const chunk = 1 << 16
+	parts := min((n+chunk-1)/chunk, runtime.GOMAXPROCS(0))
+	if parts <= 1 {
+		if e := m.zRange(groups, t, y, extrapolate, out, 0, n); e != nil {
+			return e
+		}
+		return nil
+	}
+	found := make([]*ScoreErrors, parts)
+	var wg sync.WaitGroup
+	for p := range parts {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			found[p] = m.zRange(groups, t, y, extrapolate, out, p*n/parts, (p+1)*n/parts)
+		}()
+	}
+	wg.Wait()
+	var errs *ScoreErrors
+	for _, e := range found {
+		if e == nil {
+			continue
+		}
+		if errs == nil {
+			errs = &ScoreErrors{Total: n}
+		}
+		errs.Count += e.Count
+		for _, f := range e.First {
+			if len(errs.First) < maxReportedEntries {
+				errs.First = append(errs.First, f)
+			}
+		}
+	}
+	if errs != nil {
+		return errs
+	}
+	return nil
+}
+
+// zRange is ZMany for entries from to to-1.
+func (m *Model) zRange(groups []string, t, y []float64, extrapolate bool, out []float64, from, to int) *ScoreErrors {
+	n := len(t)
 	tr := m.transform()
 	var errs *ScoreErrors
 	fail := func(i int, err error) {
@@ -185,7 +231,7 @@ func (m *Model) ZMany(groups []string, t, y []float64, extrapolate bool, out []f
 		kind = 2
 	}
 	lambda := tr.Lambda
-	for i := 0; i < n; i++ {
+	for i := from; i < to; i++ {
 		g := groups[0]
 		if len(groups) == n {
 			g = groups[i]
@@ -231,15 +277,15 @@ func (m *Model) ZMany(groups []string, t, y []float64, extrapolate bool, out []f
 		if k >= last {
 			k = last - 1
 		}
+		if k < 0 {
+			k = 0
+		}
 		f := pos - float64(k)
 		mean := cur.Mean[k] + f*(cur.Mean[k+1]-cur.Mean[k])
 		sd := cur.SD[k] + f*(cur.SD[k+1]-cur.SD[k])
 		out[i] = (yi - mean) / sd
 	}
-	if errs != nil {
-		return errs
-	}
-	return nil
+	return errs
 }
 
 // WorkerSeries is the standardised residual series of one worker in one

@@ -108,7 +108,7 @@ type Diagnostics struct {
 	MeanCVScore float64 `json:"mean_cv_score"`
 	SDCVScore   float64 `json:"sd_cv_score"`
 	// Coverage95 is the share of the group's reference exams inside the
-	// central 95% band μ ± 1.96σ (about 0.95 if the model fits).
+	// central 95% band μ ± Φ⁻¹(0.975)σ (about 0.95 if the model fits).
 	Coverage95 float64 `json:"coverage95"`
 	// Normality tests the standardised residuals; nil with fewer than 8
 	// exams.

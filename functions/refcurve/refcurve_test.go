@@ -2,6 +2,7 @@ package refcurve
 
 import (
 	"bytes"
+	"encoding/json"
 	"errors"
 	"math"
 	"math/rand/v2"
@@ -100,6 +101,13 @@ func TestFitErrors(t *testing.T) {
 			}
 			return r
 		}(), Options{}, []string{"all exams of the reference data are at time 40"}},
+		{"tiny time range", func() []Row {
+			var r []Row
+			for w := 0; w < 12; w++ {
+				r = append(r, Row{Worker: itoa(w), Time: 40 + 1e-9*float64(w), Value: float64(w)})
+			}
+			return r
+		}(), Options{}, []string{"span only", "wider range"}},
 		{"bad transform", base, Options{Transform: "sqrt"}, []string{`unknown transform "sqrt"`}},
 		{"negative bandwidth", base, Options{Bandwidth: -1}, []string{"mean bandwidth must be a positive number"}},
 		{"nan sd bandwidth", base, Options{SDBandwidth: math.NaN()}, []string{"sd bandwidth"}},
@@ -316,7 +324,27 @@ func TestZManyMatchesZ(t *testing.T) {
 			}
 		})
 	}
+	// Large inputs are split over goroutines: same numbers and the same
+	// report as one pass.
 	m := fitSmall(t, Options{})
+	big := 300_000
+	rng := rand.New(rand.NewPCG(4, 4))
+	gs, ts, ys := make([]string, big), make([]float64, big), make([]float64, big)
+	for i := range ts {
+		gs[i] = []string{"F", "M", "Z"}[rng.IntN(3)]
+		ts[i], ys[i] = 15+50*rng.Float64(), 100+50*rng.Float64()
+	}
+	par, one := make([]float64, big), make([]float64, big)
+	errPar := m.ZMany(gs, ts, ys, false, par)
+	errOne := m.zRange(gs, ts, ys, false, one, 0, big)
+	for i := range par {
+		if par[i] != one[i] && !(math.IsNaN(par[i]) && math.IsNaN(one[i])) {
+			t.Fatalf("entry %d: split %g, one pass %g", i, par[i], one[i])
+		}
+	}
+	if errPar == nil || errOne == nil || errPar.Error() != errOne.Error() {
+		t.Fatalf("split %v\none pass %v", errPar, errOne)
+	}
 	out := make([]float64, 2)
 	if err := m.ZMany([]string{"F"}, []float64{30, 40}, []float64{120, 130}, false, out); err != nil || math.IsNaN(out[1]) {
 		t.Errorf("single group for all: %v %v", out, err)
@@ -461,7 +489,10 @@ func TestEncodeDecode(t *testing.T) {
 }
 
 // FuzzDecode: Decode must never panic, and whatever it accepts must be
-// usable: lookups work and re-encoding round-trips.
+// usable: lookups work and re-encoding round-trips. Random bytes almost
+// never carry a valid content hash, so each input is also re-hashed and
+// decoded again, which sends arbitrary content through the consistency
+// checks behind the hash.
 func FuzzDecode(f *testing.F) {
 	rows := cohortRows(5, 12, 3, []string{"A", "B"})
 	m, err := Fit(rows, Options{GridPoints: 11, MinWorkers: 3, Bandwidth: 8, SDBandwidth: 12})
@@ -477,11 +508,7 @@ func FuzzDecode(f *testing.F) {
 	f.Add([]byte(`{"format":"veer.refcurve","version":1,"hash":"x","curves":[{"group":"A","time":[1,2]}]}`))
 	f.Add([]byte(`[]`))
 	f.Add([]byte(``))
-	f.Fuzz(func(t *testing.T, data []byte) {
-		m, err := Decode(data)
-		if err != nil {
-			return
-		}
+	use := func(t *testing.T, m *Model) {
 		for _, g := range m.Groups() {
 			lo, hi, err := m.Range(g)
 			if err != nil {
@@ -494,6 +521,8 @@ func FuzzDecode(f *testing.F) {
 				m.Centile(g, tt, 50, true)
 				m.Z(g, tt, 1, true)
 			}
+			out := make([]float64, 2)
+			m.ZMany([]string{g}, []float64{lo, hi}, []float64{1, 2}, false, out)
 		}
 		again, err := m.Encode()
 		if err != nil {
@@ -501,6 +530,27 @@ func FuzzDecode(f *testing.F) {
 		}
 		if _, err := Decode(again); err != nil {
 			t.Fatalf("re-encoded model does not decode: %v", err)
+		}
+	}
+	f.Fuzz(func(t *testing.T, data []byte) {
+		if m, err := Decode(data); err == nil {
+			use(t, m)
+		}
+		var raw Model
+		if json.Unmarshal(data, &raw) != nil {
+			return
+		}
+		h, err := raw.contentHash()
+		if err != nil {
+			return
+		}
+		raw.Hash = h
+		b, err := json.Marshal(&raw)
+		if err != nil {
+			return
+		}
+		if m, err := Decode(b); err == nil {
+			use(t, m)
 		}
 	})
 }

@@ -24,6 +24,11 @@ import (
 // history), runs on the guarded program with cel.CostLimit and the time
 // limit. The choice never changes a result, only the guards.
 
+// maxFastCost caps the worst case a rule may have to run unguarded, so
+// that the plain program is also quick (a few milliseconds at most) when
+// Limits.MaxCost is raised far above the default.
+const maxFastCost = DefaultMaxCost
+
 // maxStrFast is the longest text (in bytes, which bounds the CEL size in
 // characters) an exam or cell may carry to use the plain program.
 const maxStrFast = 4096
@@ -85,8 +90,10 @@ func (s sizeBound) EstimateCallCost(_, overloadID string, _ *checker.AstNode, ar
 }
 
 // fastBound finds the largest history length for which the rule's
-// worst-case cost stays within maxCost; ok is false when none does.
+// worst-case cost stays within maxCost (and maxFastCost); ok is false when
+// none does.
 func fastBound(env *cel.Env, a *cel.Ast, vars map[string]bool, maxCost uint64) (maxList uint64, ok bool) {
+	maxCost = min(maxCost, maxFastCost)
 	for _, n := range listBoundCandidates() {
 		est, err := env.EstimateCost(a, sizeBound{vars: vars, maxList: n, maxStr: maxStrFast})
 		if err == nil && est.Max <= maxCost && est.Max != math.MaxUint64 {

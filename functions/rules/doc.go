@@ -93,7 +93,7 @@
 // Each rule is bounded by Limits: its length (4,000 characters by
 // default), a CEL cost limit per evaluation (100,000 units: roughly one
 // per variable read, comparison or loop step) and a time limit per
-// evaluation (50 ms). A rule whose worst case provably fits the cost limit
+// evaluation (250 ms). A rule whose worst case provably fits the cost limit
 // for the exam at hand runs without tracking (see cost.go); any other runs
 // with cel.CostLimit and a context checked inside loops, so a runaway rule
 // (a loop inside a loop over a long history) stops with an error saying

@@ -22,7 +22,7 @@ type Problem struct {
 	Excerpt string // the rule's line and a caret (^) under the column; "" without a position
 }
 
-// Position formats the place of the mistake: "column 7" for a one-line
+// position formats the place of the mistake: "column 7" for a one-line
 // rule, "line 2, column 7" otherwise, "" when unknown.
 func (p Problem) position(multiline bool) string {
 	switch {
@@ -158,7 +158,8 @@ func evalErr(err error, lim Limits, ctx context.Context) *EvalError {
 }
 
 var (
-	reIndexRange = regexp.MustCompile(`^index '(-?\d+)' out of range in list size '(\d+)'$`)
+	reIndexRange  = regexp.MustCompile(`^index '(-?\d+)' out of range in list size '(\d+)'$`)
+	reIndexBounds = regexp.MustCompile(`^index out of bounds: (-?\d+)$`)
 )
 
 func runtimeMessage(msg string) string {
@@ -172,6 +173,10 @@ func runtimeMessage(msg string) string {
 		return "remainder (%) by zero"
 	case strings.Contains(msg, "overflow"):
 		return "a whole-number result is too large: " + msg
+	}
+	if m := reIndexBounds.FindStringSubmatch(msg); m != nil {
+		return fmt.Sprintf("position %s is outside the list here (positions start at 0); "+
+			"check size(...) or exam first, or use last(list, n)", m[1])
 	}
 	if m := reIndexRange.FindStringSubmatch(msg); m != nil {
 		return fmt.Sprintf("position %s is outside the list, which has %s item(s) here; "+
@@ -486,9 +491,8 @@ func quoteOr(names []string, describe func(string) string) string {
 }
 
 // suggest returns up to max known names closest to name: the same name up
-// to case and underscores first, then by edit distance (Levenshtein 1966,
-// "Binary codes capable of correcting deletions, insertions, and
-// reversals", Soviet Physics Doklady 10(8)), then names that start with it.
+// to case and underscores first, then by edit distance, then names that
+// start with it or contain all of its words.
 func suggest(name string, known []string, max int) []string {
 	norm := func(s string) string { return strings.ReplaceAll(strings.ToLower(s), "_", "") }
 	n := norm(name)
@@ -511,7 +515,7 @@ func suggest(name string, known []string, max int) []string {
 			cs = append(cs, cand{k, 0})
 		case d <= limit:
 			cs = append(cs, cand{k, d})
-		case len(n) >= 3 && strings.HasPrefix(kn, n):
+		case len(n) >= 3 && strings.HasPrefix(kn, n), containsWords(k, name):
 			cs = append(cs, cand{k, limit + 1})
 		}
 	}
@@ -533,10 +537,33 @@ func suggest(name string, known []string, max int) []string {
 	return out
 }
 
-// editDistance is the Levenshtein distance between a and b, in runes.
-// Hand-written: two rows of dynamic programming, nothing to import.
+// containsWords reports whether every word of name (split at "_") is a
+// word of known, for names with at least two words: years_since_signal
+// finds years_since_first_signal.
+func containsWords(known, name string) bool {
+	words := strings.FieldsFunc(strings.ToLower(name), func(r rune) bool { return r == '_' })
+	if len(words) < 2 {
+		return false
+	}
+	have := strings.Split(strings.ToLower(known), "_")
+	for _, w := range words {
+		if !slices.Contains(have, w) {
+			return false
+		}
+	}
+	return true
+}
+
+// editDistance is the optimal-string-alignment distance between a and b,
+// in runes: insertions, deletions, substitutions and swaps of neighbours
+// each count 1, so "maen" is 1 from "mean". Levenshtein (1966), "Binary
+// codes capable of correcting deletions, insertions, and reversals",
+// Soviet Physics Doklady 10(8); swaps as in Damerau (1964), "A technique
+// for computer detection and correction of spelling errors", CACM 7(3).
+// Hand-written: three rows of dynamic programming, nothing to import.
 func editDistance(a, b string) int {
 	ra, rb := []rune(a), []rune(b)
+	prev2 := make([]int, len(rb)+1)
 	prev := make([]int, len(rb)+1)
 	cur := make([]int, len(rb)+1)
 	for j := range prev {
@@ -550,8 +577,11 @@ func editDistance(a, b string) int {
 				cost = 0
 			}
 			cur[j] = min(prev[j]+1, cur[j-1]+1, prev[j-1]+cost)
+			if i > 1 && j > 1 && ra[i-1] == rb[j-2] && ra[i-2] == rb[j-1] {
+				cur[j] = min(cur[j], prev2[j-2]+1)
+			}
 		}
-		prev, cur = cur, prev
+		prev2, prev, cur = prev, cur, prev2
 	}
 	return prev[len(rb)]
 }

@@ -29,11 +29,13 @@ type Limits struct {
 }
 
 // Default limits: a 4,000-character rule, 100,000 cost units (a loop inside
-// a loop over a history of about 150 exams) and 50 ms per evaluation.
+// a loop over a history of about 150 exams; some 20 ms of work) and 250 ms
+// per evaluation, generous so that on a busy machine the cost limit, which
+// does not depend on load, is what normally stops a runaway rule.
 const (
 	DefaultMaxLength = 4000
 	DefaultMaxCost   = 100_000
-	DefaultMaxTime   = 50 * time.Millisecond
+	DefaultMaxTime   = 250 * time.Millisecond
 )
 
 // DefaultLimits returns the default limits.

@@ -181,9 +181,10 @@ func (d CVData) weight(i int) float64 {
 // local linear regression (Gaussian kernel) for every bandwidth in
 // bandwidths (Rice & Silverman 1991):
 //
-//	CV(h) = Σ_i w_i (y_i - m̂_{-s(i)}(x_i))² / Σ_i w_i
+//	CV(h) = Σ_i w_i L(y_i, m̂_{-s(i)}(x_i)) / Σ_i w_i
 //
-// where m̂_{-s} is the fit without subject s. A row is predicted only if the
+// where m̂_{-s} is the fit without subject s and L the loss of d.Loss
+// (squared error (y - m̂)² by default). A row is predicted only if the
 // other subjects give it kernel weight S0 ≥ 0.01 average row weights and a
 // spread of at least 0.01 h; see CVScore for eligibility.
 //

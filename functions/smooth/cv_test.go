@@ -32,41 +32,57 @@ func cohort(seed uint64, nsubj, per int, subjectSD, maxGap float64) CVData {
 // curvature term (δ = h/32), so scores agree to well under 1e-3 relative,
 // far finer than the differences between neighbouring candidates.
 func TestBinnedCVMatchesExact(t *testing.T) {
-	d := cohort(5, 260, 5, 2, 3)
-	if len(d.X) <= ExactLimit {
+	sq := cohort(5, 260, 5, 2, 3)
+	if len(sq.X) <= ExactLimit {
 		t.Fatalf("need more than %d rows to exercise the binned path", ExactLimit)
 	}
-	lo, hi := 18.0, 65.0
-	hs, err := CandidateBandwidths(lo, hi, 12)
-	if err != nil {
-		t.Fatal(err)
+	// The same rows scored by the variance deviance on squared deviations
+	// from a rough line (stand-ins for squared residuals).
+	dev := sq
+	dev.Y = make([]float64, len(sq.Y))
+	for i, y := range sq.Y {
+		e := y - (100 + 0.4*(sq.X[i]-40))
+		dev.Y[i] = e * e
 	}
-	got, err := CrossValidate(d, hs, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	xmin, xmax := d.X[0], d.X[0]
-	for _, x := range d.X {
-		xmin, xmax = math.Min(xmin, x), math.Max(xmax, x)
-	}
-	for k, h := range hs {
-		kern := newKernelTable()
-		want := d.exactCV(&kern, h, xmin, xmax, 1, nil)
-		g := got[k]
-		t.Logf("h=%.3f binned %.6f (%d excl, eligible %v) exact %.6f (%d excl, eligible %v)",
-			h, g.Score, g.Excluded, g.Eligible, want.Score, want.Excluded, want.Eligible)
-		if g.Bandwidth != h {
-			t.Fatalf("score %d is for bandwidth %g, want %g", k, g.Bandwidth, h)
-		}
-		if diff := g.Excluded - want.Excluded; diff > 2 || diff < -2 {
-			t.Errorf("h=%g: binned excluded %d rows, exact %d", h, g.Excluded, want.Excluded)
-		}
-		if g.Eligible != want.Eligible {
-			t.Errorf("h=%g: binned eligible %v, exact %v", h, g.Eligible, want.Eligible)
-		}
-		if g.Eligible && math.Abs(g.Score-want.Score) > 1e-3*want.Score {
-			t.Errorf("h=%g: binned score %g, exact %g", h, g.Score, want.Score)
-		}
+	dev.Loss, dev.Floor = VarianceDeviance, 0.1
+	for _, tc := range []struct {
+		name string
+		d    CVData
+	}{{"squared error", sq}, {"variance deviance", dev}} {
+		t.Run(tc.name, func(t *testing.T) {
+			d := tc.d
+			hs, err := CandidateBandwidths(18, 65, 12)
+			if err != nil {
+				t.Fatal(err)
+			}
+			got, err := CrossValidate(d, hs, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			xmin, xmax := d.X[0], d.X[0]
+			for _, x := range d.X {
+				xmin, xmax = math.Min(xmin, x), math.Max(xmax, x)
+			}
+			kern := newKernelTable()
+			for k, h := range hs {
+				want := d.exactCV(&kern, h, xmin, xmax, 1, nil)
+				g := got[k]
+				t.Logf("h=%.3f binned %.6f (%d excl, eligible %v) exact %.6f (%d excl, eligible %v)",
+					h, g.Score, g.Excluded, g.Eligible, want.Score, want.Excluded, want.Eligible)
+				if g.Bandwidth != h {
+					t.Fatalf("score %d is for bandwidth %g, want %g", k, g.Bandwidth, h)
+				}
+				if diff := g.Excluded - want.Excluded; diff > 2 || diff < -2 {
+					t.Errorf("h=%g: binned excluded %d rows, exact %d", h, g.Excluded, want.Excluded)
+				}
+				if g.Eligible != want.Eligible {
+					t.Errorf("h=%g: binned eligible %v, exact %v", h, g.Eligible, want.Eligible)
+				}
+				if g.Eligible && math.Abs(g.Score-want.Score) > 1e-3*math.Abs(want.Score) {
+					t.Errorf("h=%g: binned score %g, exact %g", h, g.Score, want.Score)
+				}
+			}
+		})
 	}
 }
 
@@ -189,6 +205,9 @@ func TestCrossValidateErrors(t *testing.T) {
 		{"no bandwidths", ok, nil, "no candidate"},
 		{"bad bandwidth", ok, []float64{1, -1}, "bandwidth"},
 		{"constant x", CVData{X: []float64{3, 3, 3, 3}, Y: ok.Y, Start: ok.Start}, []float64{1}, "all x values equal"},
+		{"deviance without floor", CVData{X: ok.X, Y: ok.Y, Start: ok.Start, Loss: VarianceDeviance}, []float64{1}, "positive floor"},
+		{"deviance of negative", CVData{X: ok.X, Y: []float64{1, -1, 1, 1}, Start: ok.Start, Loss: VarianceDeviance, Floor: 1}, []float64{1}, "y[1]"},
+		{"unknown loss", CVData{X: ok.X, Y: ok.Y, Start: ok.Start, Loss: 7}, []float64{1}, "unknown loss"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := CrossValidate(tc.d, tc.hs, nil)

@@ -37,5 +37,10 @@
 // nonparametrically when the data are curves", J. R. Statist. Soc. B
 // 53:233-243): every exam of a subject is predicted from all other
 // subjects, so the correlation between a subject's own exams does not pull
-// the bandwidth down. See CrossValidate for the fast binned algorithm.
+// the bandwidth down. See CrossValidate for the fast binned algorithm and
+// ChooseBandwidth for the search over bandwidths.
+//
+// Bibliographic details of the cited papers (journal, volume, pages) are
+// recalled from memory; the formulas are checked against the outside
+// fixtures in the tests.
 package smooth

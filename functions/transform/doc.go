@@ -12,4 +12,8 @@
 //
 //	z = (y^λ - 1)/λ  (λ ≠ 0),   z = log y  (λ = 0),   y > 0,
 //	y = (1 + λz)^(1/λ)  (λ ≠ 0, needs 1 + λz > 0),  y = exp z  (λ = 0).
+//
+// Bibliographic details of the cited papers (journal, volume, pages) are
+// recalled from memory; the formulas are checked against the outside
+// fixtures in the tests.
 package transform

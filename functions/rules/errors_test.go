@@ -1,0 +1,152 @@
+package rules
+
+import (
+	"errors"
+	"strings"
+	"testing"
+)
+
+func TestCompileErrorMessages(t *testing.T) {
+	tests := []struct {
+		name      string
+		rule      string
+		want      ResultKind
+		line, col int    // expected position of the first problem; 0 for none
+		msg       string // expected part of the first problem's message
+	}{
+		{"typo", "zz > 2.0", Bool, 1, 1, `unknown name "zz"; did you mean "z" or "zs"?`},
+		{"camel case", "prevZ > 1.0", Bool, 1, 1, `did you mean "prev_z"?`},
+		{"missing underscore", "chartlow > 1.0", Bool, 1, 1, `did you mean "chart_low" or "chart"?`},
+		{"capital", "Z > 2.0", Bool, 1, 1, `did you mean "z"`},
+		{"no close name", "qqqq > 1.0", Bool, 1, 1, `the names you can use are: value, time,`},
+		{"unknown function", "sqrt(z) > 1.0", Bool, 1, 1, `unknown function "sqrt"`},
+		{"function typo", "maen(zs) > 1.0", Bool, 1, 1, `unknown function "maen"; did you mean "mean"`},
+		{"macro as function", "exists(zs, v, v > 2.0)", Bool, 1, 1, `exists(...) is written after the list, as in zs.exists(v, v > 2.0)`},
+		{"single equals", "z = 2", Bool, 1, 3, `use "==" (two equals signs)`},
+		{"word and", "z > 2 and exam > 1", Bool, 1, 7, `write "&&" instead of "and"`},
+		{"word OR", "z > 2 OR exam > 1", Bool, 1, 7, `write "||" instead of "or"`},
+		{"single ampersand", "z > 2 & exam > 1", Bool, 1, 7, `write "&&" for and`},
+		{"unfinished", "z > 2 &&", Bool, 1, 9, "the rule ends too early"},
+		{"open bracket", "(z > 2", Bool, 1, 7, `a closing ")" is missing`},
+		{"open quote", `group == "F`, Bool, 1, 10, "text in quotes is not closed"},
+		{"decimal comma", "z >= 2,5", Bool, 1, 7, "decimals use a point (2.5, not 2,5)"},
+		{"if then else", "if z > 2.0 then 1 else 0", Number, 1, 4, "condition ? answer_if_true : answer_if_false"},
+		{"text vs number", "z > 'a'", Bool, 1, 3, `cannot use ">" on a number and text`},
+		{"whole and decimal", "value - 2 > 1.0", Bool, 1, 7, `write 2.0 instead of 2`},
+		{"choice kinds", `z > 2.0 ? "high" : 1`, Any, 1, 9, "both answers of a ? : choice must be the same kind, but one is text and the other a whole number"},
+		{"choice condition", "z ? 1 : 2", Number, 1, 3, "the part before ? must be true/false, but it is a number"},
+		{"not a condition", "z > 2.0 || exam", Bool, 1, 12, "expected true/false here, but found a whole number"},
+		{"helper misuse", "size(last(zs)) > 1", Bool, 1, 10, "use it as last(list, n)"},
+		{"field of number", "z.high", Bool, 1, 2, "a number has no parts to pick with a dot"},
+		{"wants bool gets number", "z", Bool, 0, 0, "this rule must give true/false, but it gives a number (compare it, for example z > 2.0)"},
+		{"wants text gets bool", "z > 2.0", String, 0, 0, `this rule must give text, but it gives true/false (choose labels with ? :`},
+		{"wants number gets text", `"high"`, Number, 0, 0, "this rule must give a number, but it gives text"},
+		{"list result", "zs", Any, 0, 0, "a rule must give true/false, a number or text, but this one gives a list of numbers"},
+		{"empty", "   ", Bool, 0, 0, "the rule is empty"},
+		{"too long", "z > 1.0" + strings.Repeat(" ", 4000), Bool, 0, 0, "the rule is 4,007 characters long; the longest allowed is 4,000"},
+		{"second line", "z > 2.0\n  && zs.exists(q, q > qq)", Bool, 2, 23, `unknown name "qq"`},
+		{"count needs a name", "zs.count(1, true) > 1", Bool, 1, 10, "the first argument of count must be a simple name"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			_, err := Compile(tc.rule, tc.want)
+			var ce *CompileError
+			if !errors.As(err, &ce) {
+				t.Fatalf("want *CompileError, got %v", err)
+			}
+			p := ce.Problems[0]
+			if p.Line != tc.line || p.Column != tc.col {
+				t.Errorf("position %d:%d, want %d:%d (%s)", p.Line, p.Column, tc.line, tc.col, p.Message)
+			}
+			if !strings.Contains(p.Message, tc.msg) {
+				t.Errorf("message %q\nwant it to contain %q", p.Message, tc.msg)
+			}
+			if !strings.Contains(ce.Short(), tc.msg) || strings.Contains(ce.Short(), "\n") {
+				t.Errorf("Short() = %q", ce.Short())
+			}
+			if tc.line > 0 {
+				// the caret sits under the named column of the named line
+				lines := strings.Split(p.Excerpt, "\n")
+				if len(lines) != 2 {
+					t.Fatalf("excerpt %q", p.Excerpt)
+				}
+				src := []rune(strings.Split(tc.rule, "\n")[tc.line-1])
+				caret := strings.IndexRune(lines[1], '^') - 2
+				text := []rune(lines[0][2:])
+				if caret < 0 || caret >= len(text)+1 || (caret < len(text) && caret < len(src) && text[caret] != src[tc.col-1]) {
+					t.Errorf("caret at %d under %q, want under column %d of %q", caret, lines[0], tc.col, string(src))
+				}
+				pos := "column "
+				if strings.Contains(tc.rule, "\n") {
+					pos = "line "
+				}
+				if !strings.HasPrefix(ce.Error(), pos) {
+					t.Errorf("Error() = %q should start with %q", ce.Error(), pos)
+				}
+			}
+		})
+	}
+}
+
+func TestExcerptWindow(t *testing.T) {
+	long := strings.Repeat("z > 1.0 && ", 20) + "zz > 1.0"
+	_, err := Compile(long, Bool)
+	var ce *CompileError
+	if !errors.As(err, &ce) {
+		t.Fatal(err)
+	}
+	p := ce.Problems[0]
+	lines := strings.Split(p.Excerpt, "\n")
+	if !strings.HasPrefix(lines[0], "  …") || len([]rune(lines[0])) > 80 {
+		t.Errorf("long line not cut around the mistake: %q", lines[0])
+	}
+	caret := []rune(lines[1])
+	text := []rune(lines[0])
+	if i := len(caret) - 1; text[i] != 'z' || text[i+1] != 'z' {
+		t.Errorf("caret not under the mistake:\n%s", p.Excerpt)
+	}
+}
+
+func TestSeveralProblems(t *testing.T) {
+	_, err := Compile("zz > 1.0 && qq > 2.0", Bool)
+	var ce *CompileError
+	if !errors.As(err, &ce) {
+		t.Fatal(err)
+	}
+	if len(ce.Problems) != 2 || !strings.Contains(ce.Short(), "(and 1 more problem)") {
+		t.Errorf("problems %+v, short %q", ce.Problems, ce.Short())
+	}
+	if !strings.Contains(ce.Error(), `"qq"`) {
+		t.Errorf("Error() should list every problem: %s", ce.Error())
+	}
+}
+
+func TestSuggest(t *testing.T) {
+	known := []string{"value", "values", "z", "zs", "prev_z", "prev_value", "chart", "chart_low", "years_since_first_signal"}
+	tests := []struct {
+		name string
+		want []string
+	}{
+		{"valu", []string{"value", "values"}},
+		{"PREV_Z", []string{"prev_z"}},
+		{"prev", []string{"prev_z", "prev_value"}},
+		{"years_since_signal", []string{"years_since_first_signal"}},
+		{"chrat", []string{"chart"}},
+		{"xyz", nil},
+	}
+	for _, tc := range tests {
+		got := suggest(tc.name, known, 3)
+		if strings.Join(got, ",") != strings.Join(tc.want, ",") {
+			t.Errorf("suggest(%q) = %v, want %v", tc.name, got, tc.want)
+		}
+	}
+	for _, c := range []struct {
+		a, b string
+		d    int
+	}{{"", "", 0}, {"kitten", "sitting", 3}, {"flaw", "lawn", 2}, {"z", "zs", 1}, {"é", "e", 1},
+		{"maen", "mean", 1}, {"ca", "abc", 3}, {"abc", "", 3}} {
+		if got := editDistance(c.a, c.b); got != c.d {
+			t.Errorf("editDistance(%q, %q) = %d, want %d", c.a, c.b, got, c.d)
+		}
+	}
+}

@@ -1,0 +1,665 @@
+package report
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"html/template"
+	"io"
+	"math"
+	"sort"
+	"strconv"
+	"strings"
+
+	"veer/functions/chart"
+	"veer/functions/monitor"
+	"veer/functions/screening"
+)
+
+// Caution is the screening-aid statement every report carries, at the top
+// and at the end.
+const Caution = "veer is a screening aid, not a diagnosis. A signal or a fired rule means only that a worker's " +
+	"readings are moving away from what is usual for healthy workers of the same age and group; it prompts " +
+	"review of the worker by a licensed clinician under local occupational-health rules. Do not use this report " +
+	"to make decisions about a worker's fitness, employment or treatment without that review."
+
+// DefaultMaxPanels is the number of flagged-worker panels shown per marker
+// when Data.MaxPanels is 0.
+const DefaultMaxPanels = 40
+
+// Data is everything a report shows.
+type Data struct {
+	// Title heads the report, e.g. "Health surveillance screening — Morvandel Offshore Rotorworks".
+	Title string
+	// Generated is the date text shown under the title. The caller gives it
+	// (rather than the report reading the clock) so the same inputs always
+	// give the same file.
+	Generated string
+	// Source optionally says where the exams came from, e.g. "workforce.csv".
+	Source string
+	// Sections holds one screened marker each.
+	Sections []Section
+	// MaxPanels caps the flagged-worker panels per section (0:
+	// DefaultMaxPanels; negative: no panels). The summary table always
+	// lists every flagged worker.
+	MaxPanels int
+	// ListAllWorkers makes the summary table list every worker, not only
+	// the flagged ones.
+	ListAllWorkers bool
+}
+
+// Section is one marker: its model, settings, limit and screening.
+type Section struct {
+	// Marker is the marker's name, e.g. "Systolic blood pressure"; Short an
+	// abbreviation for axis labels, e.g. "SBP" (Marker when empty); Unit its
+	// unit, e.g. "mmHg".
+	Marker, Short, Unit string
+	// Model is the fitted screening model; Settings the chart settings used.
+	Model    *screening.Model
+	Settings screening.Settings
+	// Limit is the limit used; Target the target years it was computed for
+	// (0 when the limit was given directly).
+	Limit  monitor.LimitResult
+	Target float64
+	// Exams and Results are the screened exams and their results, in the
+	// same order (as returned by Model.Screen).
+	Exams   []screening.Exam
+	Results []screening.Result
+	// Rules are alert rules evaluated on the same rows.
+	Rules []Rule
+}
+
+// Rule is one alert rule's outcome over the rows of a Section.
+type Rule struct {
+	// Name labels the rule; Expr is its text (shown in the report).
+	Name, Expr string
+	// Fired[i] is true when the rule flagged row i of Section.Exams.
+	Fired []bool
+}
+
+// Render writes the report as one self-contained HTML document.
+func Render(w io.Writer, d Data) error {
+	if err := d.validate(); err != nil {
+		return err
+	}
+	p, err := buildPage(d)
+	if err != nil {
+		return err
+	}
+	var buf bytes.Buffer
+	if err := pageTemplate.Execute(&buf, p); err != nil {
+		return fmt.Errorf("report: %v", err)
+	}
+	_, err = w.Write(buf.Bytes())
+	return err
+}
+
+func (d Data) validate() error {
+	if len(d.Sections) == 0 {
+		return errors.New("the report has no sections: give at least one screened marker")
+	}
+	for k, s := range d.Sections {
+		name := s.Marker
+		if name == "" {
+			name = "section " + strconv.Itoa(k+1)
+		}
+		switch {
+		case s.Model == nil || s.Model.Curves == nil:
+			return fmt.Errorf("%s: the report needs the fitted model", name)
+		case len(s.Exams) != len(s.Results):
+			return fmt.Errorf("%s: %d exams but %d results; give the results of screening these exams", name, len(s.Exams), len(s.Results))
+		case !(s.Limit.H > 0) || math.IsInf(s.Limit.H, 0):
+			return fmt.Errorf("%s: the control limit %g is not a positive number", name, s.Limit.H)
+		}
+		for _, r := range s.Rules {
+			if len(r.Fired) != len(s.Exams) {
+				return fmt.Errorf("%s: rule %q has %d results for %d exams", name, r.Name, len(r.Fired), len(s.Exams))
+			}
+		}
+	}
+	return nil
+}
+
+// kv is one labelled value in a table.
+type kv struct{ Label, Value string }
+
+type page struct {
+	Title, Generated, Source, Caution string
+	Sections                          []*sectionView
+}
+
+type figure struct {
+	SVG     template.HTML
+	Caption string
+}
+
+type groupDiag struct {
+	Group string
+	Rows  []kv
+}
+
+type panelView struct {
+	N          int
+	Anchor     string
+	Worker     string
+	Caption    string
+	Readings   template.HTML
+	Statistic  template.HTML
+	Signalled  bool
+	RulesFired string
+}
+
+type summaryRow struct {
+	Worker, Group, Exams, FirstExam, LastExam, FirstSignal, Rules string
+	Flagged                                                       bool
+	Panel                                                         string
+	Anchor                                                        string
+}
+
+type sectionView struct {
+	ID, Heading   string
+	Stats         []kv
+	ChartText     string
+	LimitText     []string
+	LimitRows     []kv
+	RuleRows      []kv
+	RefFigures    []figure
+	Diag          []groupDiag
+	ModelDiag     []kv
+	Warnings      []string
+	Legend        template.HTML
+	Panels        []panelView
+	PanelNote     string
+	Summary       []summaryRow
+	SummaryNote   string
+	FlaggedCount  int
+	WorkerCount   int
+	ExamCount     int
+	GroupsPresent []string
+}
+
+// workerView gathers one worker's rows.
+type workerView struct {
+	id, group   string
+	idx         []int // row indices sorted by age
+	firstSignal float64
+	firstRule   float64
+	rules       []string
+	flag        float64 // earliest of firstSignal and firstRule
+}
+
+func (w *workerView) flagged() bool { return !math.IsNaN(w.flag) }
+
+func groupWorkers(s *Section) []*workerView {
+	pos := map[string]int{}
+	var ws []*workerView
+	for i, e := range s.Exams {
+		k, ok := pos[e.Worker]
+		if !ok {
+			k = len(ws)
+			pos[e.Worker] = k
+			ws = append(ws, &workerView{id: e.Worker, group: e.Group, firstSignal: math.NaN(), firstRule: math.NaN(), flag: math.NaN()})
+		}
+		ws[k].idx = append(ws[k].idx, i)
+	}
+	for _, w := range ws {
+		sort.SliceStable(w.idx, func(a, b int) bool { return s.Exams[w.idx[a]].Time < s.Exams[w.idx[b]].Time })
+		for _, i := range w.idx {
+			if s.Results[i].Signal && math.IsNaN(w.firstSignal) {
+				w.firstSignal = s.Exams[i].Time
+			}
+		}
+		for _, r := range s.Rules {
+			first := math.NaN()
+			for _, i := range w.idx {
+				if r.Fired[i] {
+					first = s.Exams[i].Time
+					break
+				}
+			}
+			if !math.IsNaN(first) {
+				w.rules = append(w.rules, r.Name)
+				if math.IsNaN(w.firstRule) || first < w.firstRule {
+					w.firstRule = first
+				}
+			}
+		}
+		w.flag = w.firstSignal
+		if math.IsNaN(w.flag) || w.firstRule < w.flag {
+			w.flag = w.firstRule
+		}
+	}
+	return ws
+}
+
+func buildPage(d Data) (*page, error) {
+	p := &page{Title: d.Title, Generated: d.Generated, Source: d.Source, Caution: Caution}
+	if p.Title == "" {
+		p.Title = "veer screening report"
+	}
+	maxPanels := d.MaxPanels
+	if maxPanels == 0 {
+		maxPanels = DefaultMaxPanels
+	}
+	for k := range d.Sections {
+		sv, err := buildSection(&d.Sections[k], k, maxPanels, d.ListAllWorkers)
+		if err != nil {
+			return nil, err
+		}
+		p.Sections = append(p.Sections, sv)
+	}
+	return p, nil
+}
+
+func markerLabel(s *Section) (name, short, axis string) {
+	name = s.Marker
+	if name == "" {
+		name = s.Model.Name
+	}
+	short = s.Short
+	if short == "" {
+		short = name
+	}
+	axis = short
+	if s.Unit != "" {
+		axis += " (" + s.Unit + ")"
+	}
+	return name, short, axis
+}
+
+func buildSection(s *Section, k, maxPanels int, all bool) (*sectionView, error) {
+	name, _, _ := markerLabel(s)
+	sv := &sectionView{ID: "m" + strconv.Itoa(k+1), Heading: name}
+	if s.Unit != "" {
+		sv.Heading += " (" + s.Unit + ")"
+	}
+	ws := groupWorkers(s)
+	sv.WorkerCount, sv.ExamCount = len(ws), len(s.Exams)
+
+	// Headline figures.
+	var signalled, flagged, outside int
+	for _, w := range ws {
+		if !math.IsNaN(w.firstSignal) {
+			signalled++
+		}
+		if w.flagged() {
+			flagged++
+		}
+	}
+	for _, r := range s.Results {
+		if !r.InRange {
+			outside++
+		}
+	}
+	sv.FlaggedCount = flagged
+	sv.Stats = []kv{
+		{"Exams screened", thousands(len(s.Exams))},
+		{"Workers screened", thousands(len(ws))},
+		{"Workers with a chart signal", countShare(signalled, len(ws))},
+	}
+	for _, r := range s.Rules {
+		n := 0
+		for _, w := range ws {
+			for _, rn := range w.rules {
+				if rn == r.Name {
+					n++
+					break
+				}
+			}
+		}
+		sv.Stats = append(sv.Stats, kv{"Workers for whom rule “" + r.Name + "” fired", countShare(n, len(ws))})
+		sv.RuleRows = append(sv.RuleRows, kv{r.Name, r.Expr})
+	}
+	if len(s.Rules) > 0 {
+		sv.Stats = append(sv.Stats, kv{"Workers flagged by the chart or a rule", countShare(flagged, len(ws))})
+	}
+	if outside > 0 {
+		sv.Stats = append(sv.Stats, kv{"Exams outside the reference age range", thousands(outside) +
+			" (the curves are held at their end values there; read these with care)"})
+	}
+
+	sv.ChartText = describeChart(s.Settings, s.Model)
+	sv.LimitText, sv.LimitRows = describeLimit(s)
+
+	// Reference curves and diagnostics per group.
+	groups := s.Model.Curves.Groups()
+	for gi, g := range groups {
+		fig, err := referenceFigure(s, g, sv.ID+"-ref"+strconv.Itoa(gi+1))
+		if err != nil {
+			return nil, err
+		}
+		sv.RefFigures = append(sv.RefFigures, fig)
+	}
+	sv.Diag, sv.ModelDiag, sv.Warnings = diagnostics(s.Model)
+
+	// Panels, in order of first flag.
+	var fl []*workerView
+	for _, w := range ws {
+		if w.flagged() {
+			fl = append(fl, w)
+		}
+	}
+	sort.SliceStable(fl, func(a, b int) bool { return fl[a].flag < fl[b].flag })
+	shown := len(fl)
+	if maxPanels < 0 {
+		shown = 0
+	} else if shown > maxPanels {
+		shown = maxPanels
+	}
+	panelOf := map[string]int{}
+	sv.Legend = template.HTML(legendSVG(sv.ID + "-legend"))
+	for i := 0; i < shown; i++ {
+		pv, err := workerPanel(s, fl[i], i+1, sv.ID)
+		if err != nil {
+			return nil, err
+		}
+		panelOf[fl[i].id] = i + 1
+		sv.Panels = append(sv.Panels, pv)
+	}
+	switch {
+	case len(fl) == 0:
+		sv.PanelNote = "No worker was flagged by the chart or by a rule."
+	case shown < len(fl):
+		sv.PanelNote = fmt.Sprintf("Showing %d of %d flagged workers (the first %d in order of first signal, earliest age first); "+
+			"the summary table below lists all of them.", shown, len(fl), shown)
+	default:
+		sv.PanelNote = fmt.Sprintf("All %d flagged workers, in order of first signal (earliest age first).", len(fl))
+	}
+
+	for _, w := range ws {
+		if !all && !w.flagged() {
+			continue
+		}
+		first, last := s.Exams[w.idx[0]].Time, s.Exams[w.idx[len(w.idx)-1]].Time
+		row := summaryRow{
+			Worker: w.id, Group: groupName(w.group), Exams: strconv.Itoa(len(w.idx)),
+			FirstExam: age(first), LastExam: age(last), FirstSignal: "—", Rules: "—",
+			Flagged: w.flagged(), Panel: "—",
+		}
+		if !math.IsNaN(w.firstSignal) {
+			row.FirstSignal = age(w.firstSignal)
+		}
+		if len(w.rules) > 0 {
+			row.Rules = strings.Join(w.rules, ", ")
+		}
+		if n, ok := panelOf[w.id]; ok {
+			row.Panel = strconv.Itoa(n)
+			row.Anchor = panelAnchor(sv.ID, n)
+		}
+		sv.Summary = append(sv.Summary, row)
+	}
+	if !all && len(ws)-flagged > 0 {
+		sv.SummaryNote = fmt.Sprintf("%s other workers had no chart signal and no rule fired; they are not listed.", thousands(len(ws)-flagged))
+	}
+	return sv, nil
+}
+
+func panelAnchor(sectionID string, n int) string { return sectionID + "-w" + strconv.Itoa(n) }
+
+func groupName(g string) string {
+	if g == "" {
+		return "all"
+	}
+	return g
+}
+
+// describeChart says in words what is charted.
+func describeChart(set screening.Settings, m *screening.Model) string {
+	c := set.Chart
+	var dir string
+	switch c.Side {
+	case chart.Up:
+		dir = "upward"
+	case chart.Down:
+		dir = "downward"
+	default:
+		dir = "two-sided"
+	}
+	var what string
+	switch c.Kind {
+	case chart.EWMA:
+		unit := c.Unit
+		if unit <= 0 {
+			unit = 1
+		}
+		what = fmt.Sprintf("%s %s EWMA chart (Roberts 1959) with weight λ = %s for an exam %s after the previous one; "+
+			"it keeps a running, time-weighted average of the standardised readings and signals when it passes the limit",
+			article(dir), dir, num(c.Lambda, 3), years(unit))
+	default:
+		var sense string
+		switch c.Side {
+		case chart.Up:
+			sense = "above"
+		case chart.Down:
+			sense = "below"
+		default:
+			sense = "above or below"
+		}
+		what = fmt.Sprintf("%s %s CUSUM chart (Page 1954) with allowance k = %s SD; it adds up, exam after exam, how far each "+
+			"standardised reading lies %s the reference beyond k, and signals when the sum passes the limit",
+			article(dir), dir, num(c.Allowance, 3), sense)
+	}
+	var serial string
+	switch set.Serial {
+	case screening.SerialWhiten:
+		serial = fmt.Sprintf("Each worker's readings are first whitened with a Kalman filter of the fitted serial model "+
+			"(correlation φ = %s per year, persistent share c = %s), so the charted values of a healthy worker are independent.",
+			num(m.Serial.Phi, 3), num(m.Serial.C, 3))
+	case screening.SerialOff:
+		serial = "Readings of a worker are treated as independent (serial correlation off)."
+	default:
+		serial = fmt.Sprintf("The standardised readings are charted directly; the limit allows for the correlation between "+
+			"a worker's successive exams (φ = %s per year, persistent share c = %s).", num(m.Serial.Phi, 3), num(m.Serial.C, 3))
+	}
+	return "Each reading is standardised against the reference of the worker's group at the worker's age: " +
+		"z = (reading − reference mean) / reference SD" + transformNote(m) + ". The chart is " + what + ". " + serial
+}
+
+func article(word string) string {
+	if strings.ContainsRune("aeiou", rune(word[0])) {
+		return "an"
+	}
+	return "a"
+}
+
+func transformNote(m *screening.Model) string {
+	switch m.Curves.Transform {
+	case "log":
+		return ", on the log scale"
+	case "boxcox":
+		return fmt.Sprintf(", on the Box-Cox scale (λ = %s)", num(m.Curves.Lambda, 3))
+	}
+	return ""
+}
+
+// gapWords says how often workers are examined, e.g. "about yearly".
+func gapWords(g float64) string {
+	switch {
+	case !(g > 0):
+		return "at the usual interval"
+	case math.Abs(g-1) < 0.05:
+		return "about yearly"
+	case g < 1:
+		return fmt.Sprintf("about every %s months", num(g*12, 2))
+	default:
+		return "about every " + num(g, 2) + " years"
+	}
+}
+
+// describeLimit explains the limit in plain words.
+func describeLimit(s *Section) ([]string, []kv) {
+	l := s.Limit
+	target := s.Target
+	if !(target > 0) {
+		target = l.ATS
+	}
+	var text []string
+	if target > 0 {
+		text = append(text, fmt.Sprintf("The chart signals when its statistic passes the limit h = %s. With this limit, "+
+			"a healthy worker examined %s is flagged on average once in %s years.", num(l.H, 4), gapWords(l.MeanGap), num(target, 3)))
+		t10 := 10.0
+		text = append(text, fmt.Sprintf("This is an average: false flags happen. Roughly, treating them as random in time, "+
+			"about %s%% of healthy workers followed for %s years would be flagged at least once (1 − e^(−%s/%s)). "+
+			"A longer target gives fewer false flags but later signals for workers who really drift.",
+			num(100*(1-math.Exp(-t10/target)), 2), num(t10, 2), num(t10, 2), num(target, 3)))
+	} else {
+		text = append(text, fmt.Sprintf("The chart signals when its statistic passes the limit h = %s.", num(l.H, 4)))
+	}
+	rows := []kv{{"Limit h", num(l.H, 4)}}
+	if s.Target > 0 {
+		rows = append(rows, kv{"Target average time to a false signal", num(s.Target, 3) + " years"})
+	}
+	if l.ATS > 0 {
+		v := num(l.ATS, 4) + " years"
+		if l.SE > 0 {
+			v += " (Monte Carlo standard error " + num(l.SE, 2) + ")"
+		}
+		rows = append(rows, kv{"Average time to a false signal at h", v})
+	}
+	if l.MeanGap > 0 {
+		rows = append(rows, kv{"Mean time between exams used", num(l.MeanGap, 3) + " years"})
+	}
+	switch {
+	case l.Exact:
+		rows = append(rows, kv{"How h was computed", "exactly: the chart's average run length for independent standard-normal scores, times the mean gap"})
+	case l.Paths > 0:
+		rows = append(rows, kv{"How h was computed", fmt.Sprintf("by simulating %s healthy workers with the reference's serial correlation and exam gaps (fixed seed, so the same inputs give the same limit)", thousands(l.Paths))})
+	}
+	if l.Censored > 0 {
+		rows = append(rows, kv{"Simulated workers without a signal in the time simulated", thousands(l.Censored)})
+	}
+	return text, rows
+}
+
+// diagnostics builds the model diagnostics tables.
+func diagnostics(m *screening.Model) ([]groupDiag, []kv, []string) {
+	var gd []groupDiag
+	var warn []string
+	for _, c := range m.Curves.Curves {
+		d := c.Diagnostics
+		rows := []kv{
+			{"Reference workers", thousands(d.Workers)},
+			{"Reference exams", thousands(d.Exams)},
+			{"Age range", age(d.TimeMin) + "–" + age(d.TimeMax) + " years"},
+			{"Mean-curve bandwidth", num(d.MeanBandwidth, 3) + " years (" + d.MeanBandwidthSource + ")"},
+			{"SD-curve bandwidth", num(d.SDBandwidth, 3) + " years (" + d.SDBandwidthSource + ")"},
+			{"Share of reference exams inside the central 95% band", pct(d.Coverage95) + " (about 95% if the model fits)"},
+		}
+		if d.Normality != nil {
+			rows = append(rows, kv{"Normality of standardised readings (D'Agostino–Pearson K²)",
+				fmt.Sprintf("K² = %s, p = %s; skewness %s, excess kurtosis %s", num(d.Normality.Statistic, 3), pval(d.Normality.PValue),
+					num(d.Normality.Skewness, 2), num(d.Normality.ExcessKurtosis, 2))})
+		}
+		if d.FlooredPoints > 0 {
+			rows = append(rows, kv{"SD curve held at its floor", fmt.Sprintf("%d grid points", d.FlooredPoints)})
+		}
+		gd = append(gd, groupDiag{Group: groupName(c.Group), Rows: rows})
+		for _, w := range d.Warnings {
+			warn = append(warn, groupName(c.Group)+": "+w)
+		}
+	}
+	tr := m.Curves.Transform
+	switch tr {
+	case "", "none":
+		tr = "none"
+	case "boxcox":
+		tr = "Box-Cox, λ = " + num(m.Curves.Lambda, 4)
+	}
+	sd := m.SerialDiagnostics
+	model := []kv{
+		{"Model", m.Name},
+		{"Exams fitted", thousands(m.Curves.Rows)},
+		{"Transform of the readings", tr},
+		{"Serial correlation φ (per year)", num(m.Serial.Phi, 3) + seNote(m.Serial.SEPhi)},
+		{"Persistent share of variance c", num(m.Serial.C, 3) + seNote(m.Serial.SEC)},
+		{"Mean time between reference exams", num(m.MeanGap, 3) + " years"},
+		{"Innovations: mean and SD (expected 0 and 1)", num(sd.Mean, 3) + " and " + num(sd.SD, 3)},
+		{"Innovations: lag-1 correlation within workers", num(sd.Lag1, 3) + ", p = " + pval(sd.Lag1P) + " (" + thousands(sd.Pairs) + " pairs)"},
+		{"Innovations: normality (D'Agostino–Pearson K²)", num(sd.Normality, 3) + ", p = " + pval(sd.NormalityP)},
+	}
+	if len(m.Hash) >= 12 {
+		model = append(model, kv{"Model fingerprint", m.Hash[:12]})
+	}
+	return gd, model, warn
+}
+
+func seNote(se float64) string {
+	if se > 0 {
+		return " (standard error " + num(se, 2) + ")"
+	}
+	return ""
+}
+
+// num formats v with up to sig significant digits, no exponent for usual sizes.
+func num(v float64, sig int) string {
+	if math.IsNaN(v) {
+		return "n/a"
+	}
+	if math.IsInf(v, 0) {
+		return strconv.FormatFloat(v, 'g', -1, 64)
+	}
+	if v == 0 {
+		return "0"
+	}
+	mag := int(math.Floor(math.Log10(math.Abs(v))))
+	dec := sig - 1 - mag
+	if dec < 0 {
+		dec = 0
+	}
+	if dec > 8 {
+		return strconv.FormatFloat(v, 'g', sig, 64)
+	}
+	s := strconv.FormatFloat(v, 'f', dec, 64)
+	if strings.Contains(s, ".") {
+		s = strings.TrimRight(strings.TrimRight(s, "0"), ".")
+	}
+	return s
+}
+
+func age(v float64) string { return strconv.FormatFloat(v, 'f', 1, 64) }
+
+func years(v float64) string {
+	if v == 1 {
+		return "1 year"
+	}
+	return num(v, 3) + " years"
+}
+
+func pct(v float64) string { return strconv.FormatFloat(100*v, 'f', 1, 64) + "%" }
+
+func pval(p float64) string {
+	switch {
+	case math.IsNaN(p):
+		return "n/a"
+	case p < 0.001:
+		return "< 0.001"
+	}
+	return strconv.FormatFloat(p, 'f', 3, 64)
+}
+
+func countShare(n, of int) string {
+	if of == 0 {
+		return thousands(n)
+	}
+	return fmt.Sprintf("%s (%s%%)", thousands(n), strconv.FormatFloat(100*float64(n)/float64(of), 'f', 1, 64))
+}
+
+// thousands formats n with thin separators, e.g. 12,345.
+func thousands(n int) string {
+	s := strconv.Itoa(n)
+	neg := strings.HasPrefix(s, "-")
+	if neg {
+		s = s[1:]
+	}
+	var b strings.Builder
+	for i, c := range s {
+		if i > 0 && (len(s)-i)%3 == 0 {
+			b.WriteByte(',')
+		}
+		b.WriteRune(c)
+	}
+	if neg {
+		return "-" + b.String()
+	}
+	return b.String()
+}
