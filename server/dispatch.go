@@ -20,11 +20,10 @@ import (
 // engine runs calls: validation, result cache, sharing of identical
 // computations, the concurrency limit and the time limit.
 type engine struct {
-	cat   *cell.Catalogue
-	reg   *Registry
-	lim   Limits
-	log   *slog.Logger
-	token string
+	cat *cell.Catalogue
+	reg *Registry
+	lim Limits
+	log *slog.Logger
 
 	base context.Context // cancelled when in-flight work must be abandoned
 	sem  chan struct{}
@@ -58,12 +57,11 @@ type outcome struct {
 type callOpts struct {
 	authorized bool         // a valid install token came with the call
 	progress   progressSink // receives progress reports, or nil
-	source     string       // "http" or "ws", for logs
 }
 
-func newEngine(cat *cell.Catalogue, reg *Registry, lim Limits, log *slog.Logger, token string, base context.Context) *engine {
+func newEngine(cat *cell.Catalogue, reg *Registry, lim Limits, log *slog.Logger, base context.Context) *engine {
 	return &engine{
-		cat: cat, reg: reg, lim: lim, log: log, token: token, base: base,
+		cat: cat, reg: reg, lim: lim, log: log, base: base,
 		sem:         make(chan struct{}, lim.MaxConcurrent),
 		results:     newLRU[*outcome](lim.CacheEntries, lim.CacheBytes),
 		onceVal:     newLRU[any](lim.OnceEntries, math.MaxInt64),
@@ -522,22 +520,20 @@ func cacheKey(f *cell.Func, args cell.Args) string {
 			b = binary.AppendUvarint(b, uint64(r))
 			b = binary.AppendUvarint(b, uint64(c))
 		}
-		for _, row := range v.Rows() {
-			for _, c := range row {
-				b = append(b, byte(c.Kind))
-				switch c.Kind {
-				case cell.KindNumber:
-					b = binary.LittleEndian.AppendUint64(b, math.Float64bits(c.Num))
-				case cell.KindBool:
-					if c.B {
-						b = append(b, 1)
-					} else {
-						b = append(b, 0)
-					}
-				case cell.KindText, cell.KindError:
-					b = binary.AppendUvarint(b, uint64(len(c.Str)))
-					b = append(b, c.Str...)
+		for _, c := range v.Flat() {
+			b = append(b, byte(c.Kind))
+			switch c.Kind {
+			case cell.KindNumber:
+				b = binary.LittleEndian.AppendUint64(b, math.Float64bits(c.Num))
+			case cell.KindBool:
+				if c.B {
+					b = append(b, 1)
+				} else {
+					b = append(b, 0)
 				}
+			case cell.KindText, cell.KindError:
+				b = binary.AppendUvarint(b, uint64(len(c.Str)))
+				b = append(b, c.Str...)
 			}
 		}
 	}

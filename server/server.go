@@ -85,7 +85,7 @@ func New(cfg Config) (*Server, error) {
 		s.extraOrigins[normalizeOrigin(o)] = true
 	}
 	s.base, s.baseCancel = context.WithCancel(context.Background())
-	s.eng = newEngine(cfg.Catalogue, reg, s.lim, s.log, tok, s.base)
+	s.eng = newEngine(cfg.Catalogue, reg, s.lim, s.log, s.base)
 	s.upgrader = websocket.Upgrader{
 		ReadBufferSize:  16 << 10,
 		WriteBufferSize: 16 << 10,

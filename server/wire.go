@@ -451,13 +451,16 @@ func (d *decoder) arg(i int) cell.Value {
 	if !ok {
 		return cell.Value{}
 	}
-	rows := make([][]cell.Cell, len(lens))
-	off := 0
+	cols := -1
 	for k, n := range lens {
-		rows[k] = flat[off : off+n : off+n]
-		off += n
+		if cols < 0 {
+			cols = n
+		} else if n != cols {
+			d.setShape(i, "the range is not rectangular: row "+strconv.Itoa(k+1)+" has "+strconv.Itoa(n)+" cells but row 1 has "+strconv.Itoa(cols))
+			return cell.Value{}
+		}
 	}
-	v, err := cell.RangeValue(rows)
+	v, err := cell.BlockValue(flat, len(lens), cols)
 	if err != nil {
 		d.setShape(i, err.(*cell.Error).Message)
 		return cell.Value{}
@@ -609,29 +612,55 @@ func (d *decoder) skip(depth int) {
 	}
 }
 
+// pow10 holds the powers of ten that float64 represents exactly.
+var pow10 = [...]float64{1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10,
+	1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22}
+
 // number parses a JSON number; numbers a float64 cannot hold are rejected.
+//
+// Numbers with at most 15 significant digits and a decimal exponent within
+// ±22 are computed as mantissa × or ÷ 10^k: both operands are exact in
+// float64 and one correctly rounded operation gives the correctly rounded
+// result (Clinger 1990, "How to read floating point numbers accurately",
+// PLDI; the same fast path strconv uses). Everything else goes to
+// strconv.ParseFloat.
 func (d *decoder) number() float64 {
 	start := d.pos
 	p := d.pos
 	data := d.data
+	neg := false
 	if p < len(data) && data[p] == '-' {
+		neg = true
 		p++
 	}
 	if p >= len(data) {
 		d.pos = p
 		d.fail("invalid number")
 	}
-	simple := true
-	digits := 0
 	var mant uint64
+	digits := 0 // significant digits in mant
+	exp := 0    // decimal exponent to apply to mant
+	fast := true
+	addDigit := func(c byte) {
+		if digits == 0 && c == '0' {
+			return // leading zeros are not significant
+		}
+		if digits < 15 {
+			mant = mant*10 + uint64(c-'0')
+			digits++
+		} else {
+			fast = false
+		}
+	}
 	switch {
 	case data[p] == '0':
 		p++
-		digits = 1
 	case '1' <= data[p] && data[p] <= '9':
 		for p < len(data) && '0' <= data[p] && data[p] <= '9' {
-			mant = mant*10 + uint64(data[p]-'0')
-			digits++
+			addDigit(data[p])
+			if !fast {
+				exp++
+			}
 			p++
 		}
 	default:
@@ -639,37 +668,64 @@ func (d *decoder) number() float64 {
 		d.fail("invalid number")
 	}
 	if p < len(data) && data[p] == '.' {
-		simple = false
 		p++
 		if p >= len(data) || data[p] < '0' || data[p] > '9' {
 			d.pos = p
 			d.fail("invalid number")
 		}
 		for p < len(data) && '0' <= data[p] && data[p] <= '9' {
+			if fast {
+				addDigit(data[p])
+				if fast {
+					exp--
+				}
+			}
 			p++
 		}
 	}
 	if p < len(data) && (data[p] == 'e' || data[p] == 'E') {
-		simple = false
 		p++
+		eneg := false
 		if p < len(data) && (data[p] == '+' || data[p] == '-') {
+			eneg = data[p] == '-'
 			p++
 		}
 		if p >= len(data) || data[p] < '0' || data[p] > '9' {
 			d.pos = p
 			d.fail("invalid number")
 		}
+		e := 0
 		for p < len(data) && '0' <= data[p] && data[p] <= '9' {
+			if e < 10000 {
+				e = e*10 + int(data[p]-'0')
+			}
 			p++
 		}
+		if eneg {
+			e = -e
+		}
+		exp += e
 	}
 	d.pos = p
-	if simple && digits <= 15 {
-		f := float64(mant)
-		if data[start] == '-' {
-			f = -f
+	if fast {
+		if mant == 0 {
+			if neg {
+				return math.Copysign(0, -1)
+			}
+			return 0
 		}
-		return f
+		if -22 <= exp && exp <= 22 {
+			f := float64(mant)
+			if exp >= 0 {
+				f *= pow10[exp]
+			} else {
+				f /= pow10[-exp]
+			}
+			if neg {
+				f = -f
+			}
+			return f
+		}
 	}
 	b := data[start:p]
 	f, err := strconv.ParseFloat(unsafe.String(&b[0], len(b)), 64)

@@ -3,7 +3,10 @@ package server
 import (
 	"bytes"
 	"encoding/json"
+	"math"
+	"math/rand/v2"
 	"reflect"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -276,5 +279,37 @@ func TestAppendAnswer(t *testing.T) {
 	}
 	if !bytes.Contains(appendAnswer(nil, nil, nil, &cell.Error{Code: "#N/A", Message: "\x00"}, false), []byte(`\u0000`)) {
 		t.Error("control character not escaped")
+	}
+}
+
+// TestNumberParsing compares the decoder's number parsing with
+// strconv.ParseFloat (the outside reference) on hand-picked and random
+// numbers, bit for bit.
+func TestNumberParsing(t *testing.T) {
+	cases := []string{"0", "-0", "1", "-1", "0.1", "0.3", "123.456", "1e22", "1e23", "9007199254740993",
+		"123456789012345", "1234567890123456", "0.000001", "1.7976931348623157e308", "5e-324", "2.2250738585072014e-308",
+		"0.1e-22", "0.00000000000000000000001", "100000000000000000000000", "-2.5E+3", "1E0", "0e10", "-0.0e-5", "4.35", "12.3456789012345",
+		"1.0000000000000002", "0.30000000000000004", "8.589973e9"}
+	rng := rand.New(rand.NewPCG(3, 4))
+	for range 20000 {
+		switch rng.IntN(3) {
+		case 0:
+			cases = append(cases, strconv.FormatFloat(rng.NormFloat64()*math.Pow(10, float64(rng.IntN(40)-20)), 'g', -1, 64))
+		case 1:
+			cases = append(cases, strconv.FormatFloat(rng.Float64()*1000, 'f', rng.IntN(12), 64))
+		default:
+			cases = append(cases, strconv.Itoa(rng.IntN(1e9))+"."+strconv.Itoa(rng.IntN(1e9))+"e"+strconv.Itoa(rng.IntN(60)-30))
+		}
+	}
+	for _, c := range cases {
+		want, err := strconv.ParseFloat(c, 64)
+		if err != nil {
+			continue
+		}
+		d := &decoder{data: []byte(c)}
+		got := d.number()
+		if math.Float64bits(got) != math.Float64bits(want) || d.pos != len(c) {
+			t.Errorf("number(%s) = %v (%x); strconv gives %v (%x)", c, got, math.Float64bits(got), want, math.Float64bits(want))
+		}
 	}
 }

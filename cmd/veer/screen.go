@@ -22,6 +22,9 @@ func runScreen(e *env, args []string) error {
 	target := fs.Float64("target", 0, "average years to a false signal for a healthy worker; the limit is computed from the model")
 	limitH := fs.Float64("limit", 0, "control limit to use instead of --target")
 	extrap := fs.Bool("extrapolate", false, "allow exams at ages outside the reference range (curves held at their ends)")
+	var ruleFlags ruleList
+	fs.Var(&ruleFlags, "rule", "alert rule NAME=EXPRESSION in CEL, adds a column NAME (repeatable), e.g. --rule 'high=chart > limit || centile > 99.0'")
+	rulesFile := fs.String("rules", "", "file of alert rules, one 'name = expression' per line, each adds a column")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -36,6 +39,10 @@ func runScreen(e *env, args []string) error {
 		return err
 	}
 	s.Extrapolate = *extrap
+	rs, err := collectRules(ruleFlags, *rulesFile)
+	if err != nil {
+		return err
+	}
 	m, err := loadModel(*model)
 	if err != nil {
 		return err
@@ -67,12 +74,16 @@ func runScreen(e *env, args []string) error {
 	if err != nil {
 		return fmt.Errorf("%s: %v", *in, err)
 	}
+	ruleNames, ruleCols, err := evalRules(rs, exams, res, h)
+	if err != nil {
+		return err
+	}
 	var buf bytes.Buffer
 	var w io.Writer = e.stdout
 	if *out != "" {
 		w = &buf
 	}
-	if err := writeScreen(w, t, res, h); err != nil {
+	if err := writeScreen(w, t, res, h, ruleNames, ruleCols); err != nil {
 		return err
 	}
 	if *out != "" {
@@ -96,12 +107,15 @@ func runScreen(e *env, args []string) error {
 // screenColumns are the columns screen adds to the input's.
 var screenColumns = []string{"mean", "sd", "z", "centile", "innovation", "chart_up", "chart_down", "chart", "limit", "signal", "exam", "first_signal"}
 
-func writeScreen(out io.Writer, t *table.Table, res []screening.Result, h float64) error {
+func writeScreen(out io.Writer, t *table.Table, res []screening.Result, h float64, ruleNames []string, ruleCols [][]string) error {
 	w := table.NewWriter(out)
 	for i, hd := range t.Header {
 		w.Text(hd, i == 0)
 	}
 	for _, hd := range screenColumns {
+		w.Text(hd, false)
+	}
+	for _, hd := range ruleNames {
 		w.Text(hd, false)
 	}
 	if err := w.EndRow(); err != nil {
@@ -130,6 +144,9 @@ func writeScreen(out io.Writer, t *table.Table, res []screening.Result, h float6
 			w.Text("", false)
 		} else {
 			w.Float(r.FirstSignal, -1, false)
+		}
+		for _, col := range ruleCols {
+			w.Text(col[i], false)
 		}
 		if err := w.EndRow(); err != nil {
 			return err

@@ -218,7 +218,8 @@ func (a Args) OptBool(i int, def bool) (bool, error) {
 }
 
 // Range returns argument i as rows of cells (a single cell is a 1x1 range).
-// The rows are shared with the request: do not modify them.
+// The cells are shared with the request: do not modify them. For large
+// ranges Value(i).Flat or At avoid building the row slices.
 func (a Args) Range(i int) [][]Cell { return a.Value(i).Rows() }
 
 // Options parses argument i as options of the function (see ParseOptions).
@@ -264,14 +265,7 @@ func (a Args) column(i int) ([]Cell, int, int, error) {
 	if rows > 1 && cols > 1 {
 		return nil, rows, cols, ValueError("%s must be one column or one row; got %s", a.name(i), describeRange(rows, cols))
 	}
-	if v.IsScalar() {
-		return []Cell{v.c}, 1, 1, nil
-	}
-	out := make([]Cell, 0, rows*cols)
-	for _, r := range v.rows {
-		out = append(out, r...)
-	}
-	return out, rows, cols, nil
+	return v.Flat(), rows, cols, nil
 }
 
 // Numbers returns argument i, a column or row, as numbers under policy p.

@@ -112,53 +112,62 @@ const (
 )
 
 // Value is one argument of a cell call: a single cell or a rectangular range
-// (rows of cells). The zero Value is an absent (omitted) argument.
+// (rows of cells, stored row by row in one slice). The zero Value is an
+// absent (omitted) argument.
 type Value struct {
-	kind valueKind
-	c    Cell
-	rows [][]Cell
-	cols int
+	kind  valueKind
+	c     Cell
+	flat  []Cell // range cells, row by row
+	nrows int
+	cols  int
 }
 
 // ScalarValue returns a single-cell argument.
 func ScalarValue(c Cell) Value { return Value{kind: valueScalar, c: c} }
 
 // ColumnValue returns a range with one column holding cells top to bottom.
+// The Value keeps cells (no copy).
 func ColumnValue(cells []Cell) Value {
-	rows := make([][]Cell, len(cells))
-	for i := range cells {
-		rows[i] = cells[i : i+1 : i+1]
-	}
-	cols := 1
 	if len(cells) == 0 {
-		cols = 0
+		return Value{kind: valueRange}
 	}
-	return Value{kind: valueRange, rows: rows, cols: cols}
+	return Value{kind: valueRange, flat: cells, nrows: len(cells), cols: 1}
 }
 
-// RangeValue returns a range argument from rows of cells. Rows must all have
-// the same number of cells (spreadsheet ranges are rectangular); a range
-// whose rows are all empty is the empty range.
-func RangeValue(rows [][]Cell) (Value, error) {
-	if rows == nil {
-		rows = [][]Cell{}
+// BlockValue returns a range of rows x cols cells stored row by row in flat
+// (len(flat) must be rows*cols). The Value keeps flat (no copy).
+func BlockValue(flat []Cell, rows, cols int) (Value, error) {
+	if rows < 0 || cols < 0 || len(flat) != rows*cols {
+		return Value{}, ValueError("a %dx%d range needs %d cells; got %d", rows, cols, rows*cols, len(flat))
 	}
+	if rows == 0 || cols == 0 {
+		return Value{kind: valueRange}, nil
+	}
+	return Value{kind: valueRange, flat: flat, nrows: rows, cols: cols}, nil
+}
+
+// RangeValue returns a range argument from rows of cells (copied). Rows must
+// all have the same number of cells (spreadsheet ranges are rectangular); a
+// range whose rows are all empty is the empty range.
+func RangeValue(rows [][]Cell) (Value, error) {
 	cols := -1
-	empty := true
+	n := 0
 	for i, r := range rows {
 		if cols < 0 {
 			cols = len(r)
 		} else if len(r) != cols {
 			return Value{}, ValueError("the range is not rectangular: row %d has %d cells but row 1 has %d", i+1, len(r), cols)
 		}
-		if len(r) > 0 {
-			empty = false
-		}
+		n += len(r)
 	}
-	if empty {
-		return Value{kind: valueRange, rows: [][]Cell{}, cols: 0}, nil
+	if n == 0 {
+		return Value{kind: valueRange}, nil
 	}
-	return Value{kind: valueRange, rows: rows, cols: cols}, nil
+	flat := make([]Cell, 0, n)
+	for _, r := range rows {
+		flat = append(flat, r...)
+	}
+	return Value{kind: valueRange, flat: flat, nrows: len(rows), cols: cols}, nil
 }
 
 // IsAbsent reports whether the argument was not given at all.
@@ -188,8 +197,8 @@ func (v Value) Cell() (Cell, bool) {
 	case valueScalar:
 		return v.c, true
 	case valueRange:
-		if len(v.rows) == 1 && v.cols == 1 {
-			return v.rows[0][0], true
+		if len(v.flat) == 1 {
+			return v.flat[0], true
 		}
 	case valueAbsent:
 		return Cell{}, true
@@ -204,29 +213,55 @@ func (v Value) Dims() (rows, cols int) {
 	case valueScalar:
 		return 1, 1
 	case valueRange:
-		return len(v.rows), v.cols
+		return v.nrows, v.cols
 	}
 	return 0, 0
 }
 
-// Rows returns the cells row by row; a scalar is one row of one cell. The
-// slices are shared with the Value: do not modify them.
+// Len returns the number of cells.
+func (v Value) Len() int {
+	r, c := v.Dims()
+	return r * c
+}
+
+// At returns cell (r, c), 0-based; it panics when out of range.
+func (v Value) At(r, c int) Cell {
+	if v.kind == valueScalar && r == 0 && c == 0 {
+		return v.c
+	}
+	if r < 0 || r >= v.nrows || c < 0 || c >= v.cols {
+		panic("cell: Value.At out of range")
+	}
+	return v.flat[r*v.cols+c]
+}
+
+// Flat returns all cells row by row (a scalar is one cell). The slice is
+// shared with the Value: do not modify it.
+func (v Value) Flat() []Cell {
+	switch v.kind {
+	case valueScalar:
+		return []Cell{v.c}
+	case valueRange:
+		return v.flat
+	}
+	return nil
+}
+
+// Rows returns the cells row by row; a scalar is one row of one cell. Each
+// call builds the row slices (sharing the cells, which must not be
+// modified); prefer Flat, At or the Args helpers for large ranges.
 func (v Value) Rows() [][]Cell {
 	switch v.kind {
 	case valueScalar:
 		return [][]Cell{{v.c}}
 	case valueRange:
-		return v.rows
+		rows := make([][]Cell, v.nrows)
+		for i := range rows {
+			rows[i] = v.flat[i*v.cols : (i+1)*v.cols : (i+1)*v.cols]
+		}
+		return rows
 	}
 	return nil
-}
-
-// at returns cell (r, c) of the value, 0-based.
-func (v Value) at(r, c int) Cell {
-	if v.kind == valueScalar {
-		return v.c
-	}
-	return v.rows[r][c]
 }
 
 // ValueOf converts a Go value to an argument: nil (absent), Cell, Value,
@@ -261,11 +296,7 @@ func ValueOf(x any) (Value, error) {
 	case []Cell:
 		return ColumnValue(append([]Cell(nil), t...)), nil
 	case [][]Cell:
-		rows := make([][]Cell, len(t))
-		for i, r := range t {
-			rows[i] = append([]Cell(nil), r...)
-		}
-		return RangeValue(rows)
+		return RangeValue(t)
 	case [][]float64:
 		rows := make([][]Cell, len(t))
 		for i, r := range t {
@@ -446,18 +477,20 @@ func (v Value) MarshalJSON() ([]byte, error) {
 	case valueScalar:
 		return appendCell(nil, v.c), nil
 	case valueRange:
-		b := []byte{'['}
-		for i, r := range v.rows {
-			if i > 0 {
+		b := make([]byte, 0, 2+8*len(v.flat))
+		b = append(b, '[')
+		for i, c := range v.flat {
+			switch {
+			case i == 0:
+				b = append(b, '[')
+			case i%v.cols == 0:
+				b = append(b, ']', ',', '[')
+			default:
 				b = append(b, ',')
 			}
-			b = append(b, '[')
-			for j, c := range r {
-				if j > 0 {
-					b = append(b, ',')
-				}
-				b = appendCell(b, c)
-			}
+			b = appendCell(b, c)
+		}
+		if len(v.flat) > 0 {
 			b = append(b, ']')
 		}
 		return append(b, ']'), nil

@@ -94,9 +94,16 @@ func Fit(rows []Row, opt Options) (*Model, error) {
 				Reason: fmt.Sprintf("value %s is not positive; the %s transform needs values > 0", num(vals[i]), tr.Name)}
 		}
 	}
+	order, gstart := ix.byGroup()
 	if tr.Name == transform.BoxCox {
 		progress("choosing the Box-Cox lambda", 0.01)
-		lam, err := transform.BoxCoxLambda(vals)
+		// In canonical order, so the sums and the lambda do not depend on
+		// the order of the rows.
+		sorted := make([]float64, len(order))
+		for k, i := range order {
+			sorted[k] = vals[i]
+		}
+		lam, err := transform.BoxCoxLambda(sorted)
 		if err != nil {
 			return nil, fmt.Errorf("choosing the Box-Cox lambda: %w", err)
 		}
@@ -107,7 +114,6 @@ func Fit(rows []Row, opt Options) (*Model, error) {
 	if err := tr.ForwardAll(vals, vals); err != nil {
 		return nil, err // values were checked above; unreachable in practice
 	}
-	order, gstart := ix.byGroup()
 	m := &Model{
 		Format:    Format,
 		Version:   Version,
@@ -333,14 +339,14 @@ func curveOnGrid(x, y []float64, h, lo, hi float64, n int) ([]float64, error) {
 func warnings(c *Curve, set Settings) []string {
 	d := &c.Diagnostics
 	w := []string{}
-	edge := func(what string, pts []CVPoint, h float64) {
+	edge := func(what string, pts []CVPoint, h float64, warnLargest bool) {
 		if len(pts) == 0 {
 			return
 		}
-		switch h {
-		case pts[0].Bandwidth:
+		switch {
+		case h == pts[0].Bandwidth:
 			w = append(w, fmt.Sprintf("the %s bandwidth chosen by cross-validation (%s years) is the smallest tried; the curve may follow noise", what, num(h)))
-		case pts[len(pts)-1].Bandwidth:
+		case h == pts[len(pts)-1].Bandwidth && warnLargest:
 			w = append(w, fmt.Sprintf("the %s bandwidth chosen by cross-validation (%s years) is the largest tried; the curve is close to a straight line", what, num(h)))
 		}
 		for _, p := range pts {
@@ -349,8 +355,10 @@ func warnings(c *Curve, set Settings) []string {
 			}
 		}
 	}
-	edge("mean", c.MeanCV, d.MeanBandwidth)
-	edge("sd", c.SDCV, d.SDBandwidth)
+	edge("mean", c.MeanCV, d.MeanBandwidth, true)
+	// A straight sd curve is what the one-standard-error rule picks when
+	// the data show no clear change of spread with age: no warning.
+	edge("sd", c.SDCV, d.SDBandwidth, false)
 	if d.FlooredPoints > 0 {
 		w = append(w, fmt.Sprintf("the sd curve was raised to its floor %s at %d of %d grid times", num(d.SDFloor), d.FlooredPoints, len(c.Time)))
 	}

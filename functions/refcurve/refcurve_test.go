@@ -29,41 +29,45 @@ func fitSmall(t testing.TB, opt Options) *Model {
 // TestFitOrderInvariant: any order of the same rows gives the same model,
 // data hash and content hash; a changed value changes both hashes.
 func TestFitOrderInvariant(t *testing.T) {
-	rows := smallRows()
-	a, err := Fit(rows, Options{Transform: "log"})
-	if err != nil {
-		t.Fatal(err)
-	}
-	shuffled := slices.Clone(rows)
-	rng := rand.New(rand.NewPCG(8, 8))
-	rng.Shuffle(len(shuffled), func(i, j int) { shuffled[i], shuffled[j] = shuffled[j], shuffled[i] })
-	b, err := Fit(shuffled, Options{Transform: "log"})
-	if err != nil {
-		t.Fatal(err)
-	}
-	if a.Hash != b.Hash || a.DataHash != b.DataHash {
-		t.Fatalf("hashes differ after shuffling: %s/%s vs %s/%s", a.Hash, a.DataHash, b.Hash, b.DataHash)
-	}
-	ea, _ := a.Encode()
-	eb, _ := b.Encode()
-	if !bytes.Equal(ea, eb) {
-		t.Fatal("encoded models differ after shuffling")
-	}
-	changed := slices.Clone(rows)
-	changed[17].Value *= 1.0001
-	c, err := Fit(changed, Options{Transform: "log"})
-	if err != nil {
-		t.Fatal(err)
-	}
-	if c.DataHash == a.DataHash || c.Hash == a.Hash {
-		t.Error("a changed value kept the hashes")
-	}
-	d, err := Fit(rows, Options{Transform: "log", Bandwidth: 4})
-	if err != nil {
-		t.Fatal(err)
-	}
-	if d.DataHash != a.DataHash || d.Hash == a.Hash {
-		t.Error("other settings must keep the data hash and change the content hash")
+	for _, tr := range []string{"none", "log", "boxcox"} {
+		t.Run(tr, func(t *testing.T) {
+			rows := smallRows()
+			a, err := Fit(rows, Options{Transform: tr})
+			if err != nil {
+				t.Fatal(err)
+			}
+			shuffled := slices.Clone(rows)
+			rng := rand.New(rand.NewPCG(8, 8))
+			rng.Shuffle(len(shuffled), func(i, j int) { shuffled[i], shuffled[j] = shuffled[j], shuffled[i] })
+			b, err := Fit(shuffled, Options{Transform: tr})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if a.Hash != b.Hash || a.DataHash != b.DataHash {
+				t.Fatalf("hashes differ after shuffling: %s/%s vs %s/%s", a.Hash, a.DataHash, b.Hash, b.DataHash)
+			}
+			ea, _ := a.Encode()
+			eb, _ := b.Encode()
+			if !bytes.Equal(ea, eb) {
+				t.Fatal("encoded models differ after shuffling")
+			}
+			changed := slices.Clone(rows)
+			changed[17].Value *= 1.0001
+			c, err := Fit(changed, Options{Transform: tr})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if c.DataHash == a.DataHash || c.Hash == a.Hash {
+				t.Error("a changed value kept the hashes")
+			}
+			d, err := Fit(rows, Options{Transform: tr, Bandwidth: 4})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if d.DataHash != a.DataHash || d.Hash == a.Hash {
+				t.Error("other settings must keep the data hash and change the content hash")
+			}
+		})
 	}
 }
 
