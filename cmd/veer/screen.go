@@ -74,7 +74,7 @@ func runScreen(e *env, args []string) error {
 	if err != nil {
 		return fmt.Errorf("%s: %v", *in, err)
 	}
-	ruleNames, ruleCols, err := evalRules(rs, exams, res, h)
+	ruleNames, ruleCols, err := evalRules(rs, exams, res, s, h)
 	if err != nil {
 		return err
 	}

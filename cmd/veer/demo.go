@@ -1,0 +1,258 @@
+package main
+
+import (
+	"bytes"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"text/tabwriter"
+	"time"
+
+	"veer/examples"
+	"veer/examples/scenario"
+	"veer/functions/chart"
+	"veer/functions/monitor"
+	"veer/functions/refcurve"
+	"veer/functions/rules"
+	"veer/functions/screening"
+	"veer/internal/table"
+)
+
+// demoMarker describes one marker of the embedded demo scenario.
+type demoMarker struct {
+	name, column, unit, transform, side string
+	// cutoff is the reference centile of the fixed cut-off rule.
+	cutoff float64
+}
+
+func demoMarkers() []demoMarker {
+	return []demoMarker{
+		{name: "sbp", column: "sbp", unit: "mmHg", transform: "none", side: chart.Up, cutoff: 97.5},
+		{name: "fev1", column: "fev1", unit: "litres", transform: "log", side: chart.Down, cutoff: 2.5},
+	}
+}
+
+// demoRules are the alert rules the demo adds as columns.
+const demoRules = `# Rules the demo adds as columns (see examples/rules for more).
+chart_over_limit [high] = chart > limit
+three_of_last_four_beyond_2 [medium] = last(zs, 4).count(v, v > 2.0 || v < -2.0) >= 3
+`
+
+// demoResult is the screening of one marker in the demo.
+type demoResult struct {
+	marker   demoMarker
+	model    *screening.Model
+	settings screening.Settings
+	limit    monitor.LimitResult
+	exams    []screening.Exam
+	results  []screening.Result
+	ruleSet  rules.RuleSet
+	ruleCols [][]string
+	rows     []demoRow
+}
+
+// demoRow is one line of the demo's summary table.
+type demoRow struct {
+	method string
+	ev     screening.Evaluation
+}
+
+func tableFromBytes(b []byte, name string) (*table.Table, error) {
+	t, err := table.Read(bytes.NewReader(b))
+	if err != nil {
+		return nil, fmt.Errorf("embedded %s: %v", name, err)
+	}
+	return t, nil
+}
+
+func runDemo(e *env, args []string) error {
+	fs := newFlags(e, "demo", "[--out DIR] [--target YEARS]")
+	out := fs.String("out", "veer-demo", "folder to write the models, screened CSV files and the report to")
+	target := fs.Float64("target", 20, "average years to a false signal for a healthy worker")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if !(*target > 0) {
+		return usagef("--target must be a positive number of years")
+	}
+	start := time.Now()
+	if err := os.MkdirAll(*out, 0o755); err != nil {
+		return fmt.Errorf("cannot create the output folder: %v", err)
+	}
+	ref, err := tableFromBytes(examples.ReferenceCSV(), "reference.csv")
+	if err != nil {
+		return err
+	}
+	work, err := tableFromBytes(examples.WorkforceCSV(), "workforce.csv")
+	if err != nil {
+		return err
+	}
+	truthRows, err := scenario.ParseTruth(examples.TruthCSV())
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(e.stderr, "veer demo: a fictional workforce of %d exams screened against a healthy reference cohort of %d exams (synthetic data)\n", len(work.Rows), len(ref.Rows))
+	ruleSet, err := rules.ParseRuleSet([]byte(demoRules))
+	if err != nil {
+		return err
+	}
+	var all []*demoResult
+	for _, mk := range demoMarkers() {
+		truth := map[string]screening.Truth{}
+		for _, t := range truthRows {
+			o := t.SBP
+			if mk.name == "fev1" {
+				o = t.FEV1
+			}
+			truth[t.Worker] = screening.Truth{Affected: o.Affected, Onset: o.Age}
+		}
+		r, err := demoOne(e, mk, ref, work, truth, *target, ruleSet, *out)
+		if err != nil {
+			return fmt.Errorf("%s: %v", mk.name, err)
+		}
+		all = append(all, r)
+	}
+	printDemoSummary(e.stdout, all, *target)
+	if err := writeDemoExtras(e, *out, all, *target); err != nil {
+		return err
+	}
+	fmt.Fprintf(e.stderr, "\nwritten to %s/ in %.1f s\n", *out, time.Since(start).Seconds())
+	fmt.Fprintln(e.stderr, caution)
+	fmt.Fprintln(e.stderr, "Next: run 'veer serve' and open a workbook with the add-in, or screen your own CSV with 'veer fit' and 'veer screen' (see README).")
+	return nil
+}
+
+func demoOne(e *env, mk demoMarker, ref, work *table.Table, truth map[string]screening.Truth, target float64, rs rules.RuleSet, out string) (*demoResult, error) {
+	cols := examColumns{id: "worker", time: "age", value: mk.column, group: "group"}
+	refRows, err := readRows(ref, "reference.csv", cols)
+	if err != nil {
+		return nil, err
+	}
+	m, err := screening.Fit(refRows, screening.FitOptions{Name: mk.name, Curves: refcurve.Options{Transform: mk.transform}})
+	if err != nil {
+		return nil, err
+	}
+	doc, err := m.Encode()
+	if err != nil {
+		return nil, err
+	}
+	if err := writeFileAtomic(filepath.Join(out, mk.name+".model.json"), doc); err != nil {
+		return nil, err
+	}
+	set := screening.DefaultSettings()
+	set.Chart.Side = mk.side
+	set.Extrapolate = true
+	lim, err := m.Limit(set, screening.LimitOptions{}, target)
+	if err != nil {
+		return nil, err
+	}
+	workRows, err := readRows(work, "workforce.csv", cols)
+	if err != nil {
+		return nil, err
+	}
+	exams := make([]screening.Exam, len(workRows))
+	for i, r := range workRows {
+		exams[i] = screening.Exam{Worker: r.Worker, Group: r.Group, Time: r.Time, Value: r.Value}
+	}
+	res, err := m.Screen(exams, set, lim.H)
+	if err != nil {
+		return nil, err
+	}
+	ruleNames, ruleCols, err := evalRules(rs, exams, res, set, lim.H)
+	if err != nil {
+		return nil, err
+	}
+	var buf bytes.Buffer
+	if err := writeScreen(&buf, work, res, lim.H, ruleNames, ruleCols); err != nil {
+		return nil, err
+	}
+	if err := writeFileAtomic(filepath.Join(out, mk.name+".screened.csv"), buf.Bytes()); err != nil {
+		return nil, err
+	}
+	r := &demoResult{marker: mk, model: m, settings: set, limit: lim, exams: exams, results: res, ruleSet: rs, ruleCols: ruleCols}
+
+	sig := make([]bool, len(res))
+	for i, x := range res {
+		sig[i] = x.Signal
+	}
+	r.rows = append(r.rows, demoRow{fmt.Sprintf("veer, %g-year target", target), screening.Evaluate(exams, sig, truth)})
+
+	// The fixed cut-off rule: any reading beyond the reference centile.
+	cut := make([]bool, len(res))
+	for i, x := range res {
+		if mk.side == chart.Up {
+			cut[i] = x.Centile > mk.cutoff
+		} else {
+			cut[i] = x.Centile < mk.cutoff
+		}
+	}
+	cutEv := screening.Evaluate(exams, cut, truth)
+	r.rows = append(r.rows, demoRow{fmt.Sprintf("any reading beyond the %gth centile", mk.cutoff), cutEv})
+
+	// veer at the cut-off rule's own false-signal rate on the healthy
+	// reference cohort, for a like-for-like comparison.
+	refExams := make([]screening.Exam, len(refRows))
+	for i, rr := range refRows {
+		refExams[i] = screening.Exam{Worker: rr.Worker, Group: rr.Group, Time: rr.Time, Value: rr.Value}
+	}
+	refRes, err := m.Screen(refExams, set, lim.H)
+	if err != nil {
+		return nil, err
+	}
+	refCut := make([]bool, len(refRes))
+	for i, x := range refRes {
+		if mk.side == chart.Up {
+			refCut[i] = x.Centile > mk.cutoff
+		} else {
+			refCut[i] = x.Centile < mk.cutoff
+		}
+	}
+	refEv := screening.Evaluate(refExams, refCut, nil)
+	if refEv.FalseSignals > 0 {
+		matched := refEv.YearsAtRisk / float64(refEv.FalseSignals)
+		limM, err := m.Limit(set, screening.LimitOptions{}, matched)
+		if err == nil {
+			resM, err := m.Screen(exams, set, limM.H)
+			if err != nil {
+				return nil, err
+			}
+			for i, x := range resM {
+				sig[i] = x.Signal
+			}
+			r.rows = append(r.rows, demoRow{fmt.Sprintf("veer at the cut-off's false-signal rate (%.0f-year target)", matched), screening.Evaluate(exams, sig, truth)})
+		}
+	}
+	fmt.Fprintf(e.stderr, "  %s: %s; limit %.3f for %g years\n", mk.name, m.Summary(), lim.H, target)
+	return r, nil
+}
+
+func printDemoSummary(w io.Writer, all []*demoResult, target float64) {
+	tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
+	fmt.Fprintln(tw, "marker\tmethod\tworkers flagged\ttruly drifting\tcases detected\tmedian years onset→signal\tfalse signals per 100 worker-years")
+	for _, r := range all {
+		for _, row := range r.rows {
+			ev := row.ev
+			med := "—"
+			if !math.IsNaN(ev.MedianDelay) {
+				med = fmt.Sprintf("%.1f", ev.MedianDelay)
+			}
+			fmt.Fprintf(tw, "%s (%s)\t%s\t%d of %d\t%d\t%d of %d\t%s\t%.2f\n",
+				r.marker.name, r.marker.side, row.method, ev.Flagged, ev.Workers, ev.TrueFlagged, ev.Detected, ev.Cases, med, ev.FalsePer100)
+		}
+	}
+	tw.Flush()
+	fmt.Fprintf(w, "\nA %g-year target means a healthy worker is flagged on average once in %g years of exams.\n", target, target)
+}
+
+// writeDemoExtras writes the report and workbook of the demo.
+func writeDemoExtras(e *env, out string, all []*demoResult, target float64) error {
+	var names []string
+	for _, r := range all {
+		names = append(names, r.marker.name+".screened.csv")
+	}
+	fmt.Fprintf(e.stderr, "wrote %s\n", strings.Join(names, ", "))
+	return nil
+}
