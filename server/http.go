@@ -100,7 +100,7 @@ func (s *Server) handleCall(w http.ResponseWriter, r *http.Request) {
 	}
 	headerOK := tokenOK(s.token, r.Header.Get(TokenHeader))
 	outs := make([]*outcome, len(reqs))
-	s.runBatch(len(reqs), func(i int) {
+	s.runBatch(len(reqs), func(i int) bool { return s.slowCall(&reqs[i]) }, func(i int) {
 		req := &reqs[i]
 		if req.cancel != nil {
 			outs[i] = errOutcome(cell.ValueError("\"cancel\" works only over the websocket"))
@@ -128,13 +128,16 @@ func (s *Server) handleCall(w http.ResponseWriter, r *http.Request) {
 
 func msSince(t time.Time) float64 { return float64(time.Since(t).Microseconds()) / 1000 }
 
-// runBatch runs each(0..n-1) on a bounded number of goroutines.
-func (s *Server) runBatch(n int, each func(i int)) {
+// runBatch runs each(0..n-1) on GOMAXPROCS workers (more only add
+// contention for cheap calls); calls of functions marked Slow get their own
+// goroutine so they do not hold up the cheap ones (the computation limit
+// still applies to them).
+func (s *Server) runBatch(n int, slow func(i int) bool, each func(i int)) {
 	if n == 1 {
 		each(0)
 		return
 	}
-	workers := min(n, max(s.lim.MaxConcurrent, 2*runtime.GOMAXPROCS(0)))
+	workers := min(n, runtime.GOMAXPROCS(0))
 	var next atomic.Int64
 	var wg sync.WaitGroup
 	wg.Add(workers)
@@ -146,11 +149,28 @@ func (s *Server) runBatch(n int, each func(i int)) {
 				if i >= n {
 					return
 				}
+				if slow != nil && slow(i) {
+					wg.Add(1)
+					go func() {
+						defer wg.Done()
+						each(i)
+					}()
+					continue
+				}
 				each(i)
 			}
 		}()
 	}
 	wg.Wait()
+}
+
+// slowCall reports whether a request calls a function marked Slow.
+func (s *Server) slowCall(req *request) bool {
+	if req.fn == "" {
+		return false
+	}
+	f, ok := s.cfg.Catalogue.Lookup(req.fn)
+	return ok && f.Slow
 }
 
 func (s *Server) handleFunctions(w http.ResponseWriter, r *http.Request) {

@@ -19,7 +19,7 @@ import (
 // with zero errors. Loopback only; bounded in time.
 func TestManyWebsocketClients(t *testing.T) {
 	clients, calls, window := 200, 500, 50
-	if testing.Short() {
+	if testing.Short() || raceEnabled {
 		clients, calls = 50, 100
 	}
 	h := startServer(t, "", func(c *Config) {

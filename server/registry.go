@@ -50,6 +50,10 @@ type Registry struct {
 	models   map[string]*model
 	watchers map[int]func(name string)
 	nextW    int
+
+	// oldDocs keeps recently read documents of versions other than the
+	// latest (which stays in memory), verified, by file path.
+	oldDocs *lru[[]byte]
 }
 
 type model struct {
@@ -140,7 +144,7 @@ func OpenRegistry(dir string, log *slog.Logger) (*Registry, error) {
 	if err := os.MkdirAll(dir, 0o700); err != nil {
 		return nil, fmt.Errorf("creating model directory: %w", err)
 	}
-	r := &Registry{dir: dir, log: log, models: map[string]*model{}, watchers: map[int]func(string){}}
+	r := &Registry{dir: dir, log: log, models: map[string]*model{}, watchers: map[int]func(string){}, oldDocs: newLRU[[]byte](64, 128<<20)}
 	entries, err := os.ReadDir(dir)
 	if err != nil {
 		return nil, fmt.Errorf("reading model directory: %w", err)
@@ -412,6 +416,10 @@ func (r *Registry) Get(ref string) (cell.ModelRef, error) {
 	path := v.path
 	r.mu.RUnlock()
 	if ref2.Doc == nil {
+		if doc, ok := r.oldDocs.get(path); ok {
+			ref2.Doc = doc
+			return ref2, nil
+		}
 		h, doc, err := readModelFile(path)
 		if err != nil || h.SHA256 != ref2.SHA256 {
 			if err == nil {
@@ -420,6 +428,7 @@ func (r *Registry) Get(ref string) (cell.ModelRef, error) {
 			r.log.Warn("stored model version unreadable", "err", err.Error())
 			return cell.ModelRef{}, cell.RefError("model %s cannot be read from disk (damaged file); refit it", ref2.Handle)
 		}
+		r.oldDocs.put(path, doc, int64(len(doc)))
 		ref2.Doc = doc
 	}
 	return ref2, nil
@@ -486,6 +495,7 @@ func (r *Registry) Delete(name string) error {
 		return cell.ValueError("could not delete the model: %v", err)
 	}
 	for _, p := range paths {
+		r.oldDocs.remove(p)
 		if err := os.Remove(p); err != nil && !errors.Is(err, fs.ErrNotExist) {
 			r.log.Warn("removing model file failed", "err", err.Error())
 		}

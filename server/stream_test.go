@@ -2,7 +2,6 @@ package server
 
 import (
 	"encoding/json"
-	"fmt"
 	"net/http"
 	"strings"
 	"sync"
@@ -249,5 +248,3 @@ func TestGracefulShutdown(t *testing.T) {
 		t.Error("server still accepts connections after shutdown")
 	}
 }
-
-var _ = fmt.Sprint

@@ -4,7 +4,6 @@ import (
 	"context"
 	"encoding/json"
 	"errors"
-	"fmt"
 	"math"
 	"sort"
 	"sync/atomic"
@@ -258,5 +257,3 @@ func toyCusum(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	}
 	return out, nil
 }
-
-var _ = fmt.Sprint

@@ -393,7 +393,7 @@ func (r wsResult) appendTo(b []byte) []byte {
 func (conn *wsConn) handleBatch(reqs []request) {
 	results := make([]wsResult, len(reqs))
 	again := make([]*wsCall, len(reqs))
-	conn.s.runBatch(len(reqs), func(i int) {
+	conn.s.runBatch(len(reqs), func(i int) bool { return conn.s.slowCall(&reqs[i]) }, func(i int) {
 		req := &reqs[i]
 		switch {
 		case req.shape == nil && req.cancel != nil && req.fn == "":

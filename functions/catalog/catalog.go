@@ -11,6 +11,7 @@ import (
 	"veer/functions/chart"
 	"veer/functions/monitor"
 	"veer/functions/refcurve"
+	"veer/functions/rules"
 	"veer/functions/screening"
 )
 
@@ -29,6 +30,9 @@ var lookupOptions = []string{cell.OptionExtrapolate}
 func New() *cell.Catalogue {
 	c := cell.NewCatalogue()
 	for _, f := range funcs() {
+		c.Register(f)
+	}
+	for _, f := range ruleFuncs(rules.NewCache(rules.DefaultCacheSize, rules.DefaultLimits())) {
 		c.Register(f)
 	}
 	return c
@@ -55,13 +59,6 @@ func funcs() []cell.Func {
 			Options: []string{cell.OptionTransform, cell.OptionBandwidth, cell.OptionMinWorkers},
 			Result:  cell.ShapeValue, Writes: true, Slow: true,
 			Call: callFit,
-		},
-		{
-			Name:    "VEER.MODELS",
-			Summary: "Lists the models on the server.",
-			Help:    "One row per model version the cell can use: handle, name, version, groups, exams.",
-			Result:  cell.ShapeTable, Streaming: true,
-			Call: callModels,
 		},
 		{
 			Name:    "VEER.INFO",
@@ -387,7 +384,8 @@ func chartSettings(fn string, o cell.Options) (screening.Settings, screening.Lim
 			HeadStart: o.Number(cell.OptionHeadstart, 0),
 			Restart:   o.Bool(cell.OptionRestart, false),
 		},
-		Serial:      o.Text(cell.OptionSerial, screening.SerialDirect),
+		Serial: o.Text(cell.OptionSerial, screening.SerialDirect),
+
 		Extrapolate: o.Bool(cell.OptionExtrapolate, false),
 	}
 	if err := s.Chart.Validate(); err != nil {

@@ -19,21 +19,27 @@ const (
 // here so every function spells them the same way; a Func lists the ones it
 // accepts in Func.Options.
 const (
-	OptionAllowance = "allowance"
-	OptionSide      = "side"
-	OptionChart     = "chart"
-	OptionLambda    = "lambda"
-	OptionSerial    = "serial"
-	OptionTarget    = "target"
-	OptionMethod    = "method"
-	OptionLimit     = "limit"
-	OptionGap       = "gap"
-	OptionHeadstart = "headstart"
-	OptionShift     = "shift"
-	OptionSeed      = "seed"
-	OptionReps      = "reps"
-	OptionTransform = "transform"
-	OptionGroup     = "group"
+	OptionAllowance   = "allowance"
+	OptionSide        = "side"
+	OptionChart       = "chart"
+	OptionLambda      = "lambda"
+	OptionSerial      = "serial"
+	OptionTarget      = "target"
+	OptionMethod      = "method"
+	OptionLimit       = "limit"
+	OptionGap         = "gap"
+	OptionHeadstart   = "headstart"
+	OptionShift       = "shift"
+	OptionSeed        = "seed"
+	OptionReps        = "reps"
+	OptionTransform   = "transform"
+	OptionGroup       = "group"
+	OptionUnit        = "unit"
+	OptionRestart     = "restart"
+	OptionExtrapolate = "extrapolate"
+	OptionBandwidth   = "bandwidth"
+	OptionMinWorkers  = "minworkers"
+	OptionOnset       = "onset"
 )
 
 // Option declares one named option: its value type, allowed choices and help.
@@ -62,7 +68,7 @@ var sharedOptions = []Option{
 	{Name: OptionSide, Type: OptChoice, Choices: []string{"up", "down", "both"}, Help: "which drift to watch: up, down or both"},
 	{Name: OptionChart, Type: OptChoice, Choices: []string{"cusum", "ewma"}, Help: "chart statistic: cusum or ewma"},
 	{Name: OptionLambda, Type: OptNumber, Help: "EWMA weight per unit of time, in (0, 1]"},
-	{Name: OptionSerial, Type: OptBool, Help: "on: whiten each worker's readings with the serial-correlation model before charting; off: chart the standardised scores"},
+	{Name: OptionSerial, Type: OptChoice, Choices: []string{"direct", "whiten", "off", "on"}, Help: "how the correlation of a worker's readings is handled: direct (chart z, the limit carries the correlation; on means direct), whiten (chart Kalman-filter innovations) or off (ignore it)"},
 	{Name: OptionTarget, Type: OptNumber, Help: "target average time to a false signal for a healthy worker, in years"},
 	{Name: OptionMethod, Type: OptChoice, Choices: []string{"normal", "bootstrap"}, Help: "how limits are calibrated: normal (exact for independent N(0,1) scores) or bootstrap (resampled reference workers)"},
 	{Name: OptionLimit, Type: OptNumber, Help: "control limit h; a chart statistic beyond it signals"},
@@ -73,6 +79,12 @@ var sharedOptions = []Option{
 	{Name: OptionReps, Type: OptNumber, Help: "number of simulated or resampled sequences"},
 	{Name: OptionTransform, Type: OptChoice, Choices: []string{"none", "log", "boxcox"}, Help: "transform of the readings before fitting: none, log or boxcox"},
 	{Name: OptionGroup, Type: OptText, Help: "group (for example sex or job group) whose reference curve is used"},
+	{Name: OptionUnit, Type: OptNumber, Help: "time unit, in years, of the gap-aware EWMA weight 1-(1-lambda)^(gap/unit)"},
+	{Name: OptionRestart, Type: OptBool, Help: "on: the chart statistic starts again after a signal; off: it carries on"},
+	{Name: OptionExtrapolate, Type: OptBool, Help: "on: answer times outside the reference age range from the nearest end of the curves; off: #N/A there"},
+	{Name: OptionBandwidth, Type: OptNumber, Help: "smoothing bandwidth of the reference curves, in years; 0 or absent: chosen by cross-validation"},
+	{Name: OptionMinWorkers, Type: OptNumber, Help: "fewest reference workers a group needs to get its own curves"},
+	{Name: OptionOnset, Type: OptNumber, Help: "years after the first exam at which a sustained shift starts"},
 }
 
 // LookupOption returns the shared declaration of an option name

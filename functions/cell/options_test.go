@@ -6,11 +6,11 @@ import (
 )
 
 func TestParseOptions(t *testing.T) {
-	allowed := []string{OptionSide, OptionLambda, OptionSerial, OptionGroup}
+	allowed := []string{OptionSide, OptionLambda, OptionRestart, OptionGroup}
 	type want struct {
 		side   string
 		lambda float64
-		serial bool
+		restart bool
 		group  string
 	}
 	def := want{"both", 0.2, false, ""}
@@ -23,16 +23,16 @@ func TestParseOptions(t *testing.T) {
 	}{
 		{"absent", nil, def, "", ""},
 		{"text", "side=up; lambda=0.1", want{"up", 0.1, false, ""}, "", ""},
-		{"spaces case newlines", " SIDE = Down \n Serial = ON ;", want{"down", 0.2, true, ""}, "", ""},
-		{"two-column range", [][]any{{"side", "up"}, {nil, nil}, {"lambda", 0.3}, {"serial", true}}, want{"up", 0.3, true, ""}, "", ""},
+		{"spaces case newlines", " SIDE = Down \n Restart = ON ;", want{"down", 0.2, true, ""}, "", ""},
+		{"two-column range", [][]any{{"side", "up"}, {nil, nil}, {"lambda", 0.3}, {"restart", true}}, want{"up", 0.3, true, ""}, "", ""},
 		{"column of texts", []any{"side=up", nil, "lambda=0.05"}, want{"up", 0.05, false, ""}, "", ""},
 		{"group from number", "group=2", want{"both", 0.2, false, "2"}, "", ""},
-		{"unknown", "side=up; alowance=0.5", def, CodeValue, `unknown option "alowance"; known options: side, lambda, serial, group`},
+		{"unknown", "side=up; alowance=0.5", def, CodeValue, `unknown option "alowance"; known options: side, lambda, restart, group`},
 		{"twice", "side=up;side=down", def, CodeValue, `option "side" is given twice`},
 		{"bad choice", "side=upward", def, CodeValue, `option "side" must be one of up, down, both; got text "upward"`},
 		{"bad number", "lambda=abc", def, CodeValue, `option "lambda" must be a number`},
 		{"not finite", "lambda=NaN", def, CodeValue, `option "lambda" must be a number`},
-		{"bad bool", "serial=maybe", def, CodeValue, `option "serial" must be on or off`},
+		{"bad bool", "restart=maybe", def, CodeValue, `option "restart" must be on or off`},
 		{"no value", "side", def, CodeValue, `"side" has no value`},
 		{"empty value", "side=", def, CodeValue, `option "side" has no value`},
 		{"range name not text", [][]any{{1.0, "up"}}, def, CodeValue, "row 1: the first column must hold an option name"},
@@ -57,7 +57,7 @@ func TestParseOptions(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			got := want{o.Text(OptionSide, "both"), o.Number(OptionLambda, 0.2), o.Bool(OptionSerial, false), o.Text(OptionGroup, "")}
+			got := want{o.Text(OptionSide, "both"), o.Number(OptionLambda, 0.2), o.Bool(OptionRestart, false), o.Text(OptionGroup, "")}
 			if got != tt.want {
 				t.Errorf("got %+v; want %+v", got, tt.want)
 			}
