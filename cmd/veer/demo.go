@@ -13,25 +13,28 @@ import (
 
 	"veer/examples"
 	"veer/examples/scenario"
+	"veer/examples/workbooks"
 	"veer/functions/chart"
 	"veer/functions/monitor"
 	"veer/functions/refcurve"
 	"veer/functions/rules"
 	"veer/functions/screening"
+	"veer/internal/report"
 	"veer/internal/table"
+	"veer/internal/workbook"
 )
 
 // demoMarker describes one marker of the embedded demo scenario.
 type demoMarker struct {
-	name, column, unit, transform, side string
+	name, title, column, unit, transform, side string
 	// cutoff is the reference centile of the fixed cut-off rule.
 	cutoff float64
 }
 
 func demoMarkers() []demoMarker {
 	return []demoMarker{
-		{name: "sbp", column: "sbp", unit: "mmHg", transform: "none", side: chart.Up, cutoff: 97.5},
-		{name: "fev1", column: "fev1", unit: "litres", transform: "log", side: chart.Down, cutoff: 2.5},
+		{name: "sbp", title: "Systolic blood pressure", column: "sbp", unit: "mmHg", transform: "none", side: chart.Up, cutoff: 97.5},
+		{name: "fev1", title: "Forced expiratory volume in 1 second (FEV1)", column: "fev1", unit: "litres", transform: "log", side: chart.Down, cutoff: 2.5},
 	}
 }
 
@@ -247,12 +250,44 @@ func printDemoSummary(w io.Writer, all []*demoResult, target float64) {
 	fmt.Fprintf(w, "\nA %g-year target means a healthy worker is flagged on average once in %g years of exams.\n", target, target)
 }
 
-// writeDemoExtras writes the report and workbook of the demo.
+// writeDemoExtras writes the report and the screened example workbook.
 func writeDemoExtras(e *env, out string, all []*demoResult, target float64) error {
-	var names []string
+	var secs []report.Section
+	var markers []workbook.MarkerResults
 	for _, r := range all {
-		names = append(names, r.marker.name+".screened.csv")
+		sec := report.Section{
+			Marker: r.marker.title, Short: strings.ToUpper(r.marker.name), Unit: r.marker.unit,
+			Model: r.model, Settings: r.settings, Limit: r.limit, Target: target,
+			Exams: r.exams, Results: r.results,
+		}
+		mr := workbook.MarkerResults{Name: r.marker.name, Exams: r.exams, Results: r.results, Limit: r.limit.H}
+		for k, rule := range r.ruleSet.Rules {
+			f := fired(r.ruleCols[k])
+			sec.Rules = append(sec.Rules, report.Rule{Name: rule.Name, Expr: rule.Expr, Fired: f})
+			mr.Rules = append(mr.Rules, workbook.RuleColumn{Name: rule.Name, Fired: f})
+		}
+		secs = append(secs, sec)
+		markers = append(markers, mr)
 	}
-	fmt.Fprintf(e.stderr, "wrote %s\n", strings.Join(names, ", "))
+	rep := filepath.Join(out, "report.html")
+	if err := writeReport(rep, "workforce.csv (synthetic demo data)", secs); err != nil {
+		return err
+	}
+	wb := filepath.Join(out, "screening.xlsx")
+	if err := writeFileAtomic(wb, workbooks.XLSX()); err != nil {
+		return err
+	}
+	input, err := workbook.ReadSheet(wb, workbooks.ExamsSheet)
+	if err != nil {
+		return err
+	}
+	if len(input.Rows) != len(all[0].exams) {
+		return fmt.Errorf("the example workbook's exams sheet has %d rows but the demo data %d", len(input.Rows), len(all[0].exams))
+	}
+	if err := workbook.Refresh(wb, workbook.RefreshOptions{}, workbook.ResultsData{Input: input, Markers: markers}); err != nil {
+		return err
+	}
+	_ = os.Remove(workbook.BackupPath(wb))
+	fmt.Fprintf(e.stderr, "wrote sbp/fev1 models and screened CSV files, %s and %s\n", filepath.Base(rep), filepath.Base(wb))
 	return nil
 }

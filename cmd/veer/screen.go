@@ -2,106 +2,280 @@ package main
 
 import (
 	"bytes"
+	"flag"
 	"fmt"
 	"io"
 	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"time"
 
+	"veer/functions/monitor"
+	"veer/functions/rules"
 	"veer/functions/screening"
+	"veer/internal/report"
 	"veer/internal/table"
+	"veer/internal/workbook"
 )
 
+// screenFlags are the inputs of screen and report.
+type screenFlags struct {
+	cols      examColumns
+	chart     chartFlags
+	model     string
+	in, sheet string
+	target    float64
+	limit     float64
+	extrap    bool
+	rules     ruleList
+	rulesFile string
+}
+
+func (f *screenFlags) register(fs *flag.FlagSet) {
+	f.cols.register(fs.StringVar)
+	f.chart.register(fs)
+	fs.StringVar(&f.model, "model", "", "model file written by veer fit (required)")
+	fs.StringVar(&f.in, "in", "", "CSV file or .xlsx workbook of exams to screen, one row per exam, any order (required)")
+	fs.StringVar(&f.sheet, "sheet", "", "sheet of the .xlsx workbook holding the exams (default: the first sheet)")
+	fs.Float64Var(&f.target, "target", 0, "average years to a false signal for a healthy worker; the limit is computed from the model")
+	fs.Float64Var(&f.limit, "limit", 0, "control limit to use instead of --target")
+	fs.BoolVar(&f.extrap, "extrapolate", false, "allow exams at ages outside the reference range (curves held at their ends)")
+	fs.Var(&f.rules, "rule", "alert rule NAME=EXPRESSION in CEL, adds a column NAME (repeatable), e.g. --rule 'high=chart > limit || centile > 99.0'")
+	fs.StringVar(&f.rulesFile, "rules", "", "file of alert rules, one 'name = expression' per line, each adds a column")
+}
+
+// screenJob is a screened sheet with everything needed to write it out.
+type screenJob struct {
+	input     *table.Table
+	isXLSX    bool
+	model     *screening.Model
+	settings  screening.Settings
+	limit     monitor.LimitResult
+	target    float64
+	exams     []screening.Exam
+	results   []screening.Result
+	ruleSet   rules.RuleSet
+	ruleNames []string
+	ruleCols  [][]string
+}
+
+func isXLSX(path string) bool { return strings.EqualFold(filepath.Ext(path), ".xlsx") }
+
+// runScreenJob reads the exams, computes the limit, screens and evaluates
+// the rules.
+func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
+	if err := required("model", f.model, "in", f.in); err != nil {
+		return nil, err
+	}
+	if (f.limit > 0) == (f.target > 0) {
+		return nil, usagef("give exactly one of --target (years) and --limit")
+	}
+	s, err := f.chart.settings()
+	if err != nil {
+		return nil, err
+	}
+	s.Extrapolate = f.extrap
+	rs, err := collectRules(f.rules, f.rulesFile)
+	if err != nil {
+		return nil, err
+	}
+	m, err := loadModel(f.model)
+	if err != nil {
+		return nil, err
+	}
+	j := &screenJob{model: m, settings: s, ruleSet: rs, isXLSX: isXLSX(f.in), target: f.target}
+	if j.isXLSX {
+		if _, err := os.Stat(f.in); err != nil {
+			return nil, fmt.Errorf("cannot find the workbook %s", f.in)
+		}
+		if j.input, err = workbook.ReadSheet(f.in, f.sheet); err != nil {
+			return nil, fmt.Errorf("%s: %v", f.in, err)
+		}
+	} else {
+		if f.sheet != "" {
+			return nil, usagef("--sheet goes with an .xlsx workbook")
+		}
+		if j.input, err = loadTable(f.in); err != nil {
+			return nil, err
+		}
+	}
+	rows, err := readRows(j.input, f.in, f.cols)
+	if err != nil {
+		return nil, err
+	}
+	h := f.limit
+	j.limit = monitor.LimitResult{H: h}
+	if f.target > 0 {
+		prog, done := mcProgress(e)
+		j.limit, err = m.Limit(s, f.chart.limitOptions(prog), f.target)
+		done()
+		if err != nil {
+			return nil, err
+		}
+		describeLimit(e, j.limit, f.target)
+		h = j.limit.H
+	}
+	j.exams = make([]screening.Exam, len(rows))
+	for i, r := range rows {
+		j.exams[i] = screening.Exam{Worker: r.Worker, Group: r.Group, Time: r.Time, Value: r.Value}
+	}
+	if j.results, err = m.Screen(j.exams, s, h); err != nil {
+		return nil, fmt.Errorf("%s: %v", f.in, err)
+	}
+	if j.ruleNames, j.ruleCols, err = evalRules(rs, j.exams, j.results, s, h); err != nil {
+		return nil, err
+	}
+	return j, nil
+}
+
+// summary prints what was screened on stderr.
+func (j *screenJob) summary(e *env) {
+	flagged := map[string]bool{}
+	workers := map[string]bool{}
+	for i, r := range j.results {
+		workers[j.exams[i].Worker] = true
+		if r.Signal {
+			flagged[j.exams[i].Worker] = true
+		}
+	}
+	fmt.Fprintf(e.stderr, "screened %d exams of %d workers at limit %.4f: %d workers signalled\n", len(j.results), len(workers), j.limit.H, len(flagged))
+	fmt.Fprintln(e.stderr, caution)
+}
+
+// fired turns a rule column into true/false per row (a label counts as
+// fired unless it is empty, "none", "0" or "false").
+func fired(col []string) []bool {
+	out := make([]bool, len(col))
+	for i, v := range col {
+		switch strings.ToLower(strings.TrimSpace(v)) {
+		case "", "0", "false", "none", "#value!":
+		default:
+			out[i] = true
+		}
+	}
+	return out
+}
+
+func (j *screenJob) markerResults(name string) workbook.MarkerResults {
+	mr := workbook.MarkerResults{Name: name, Exams: j.exams, Results: j.results, Limit: j.limit.H}
+	for k, n := range j.ruleNames {
+		mr.Rules = append(mr.Rules, workbook.RuleColumn{Name: n, Fired: fired(j.ruleCols[k])})
+	}
+	return mr
+}
+
+func (j *screenJob) reportSection(marker, unit string) report.Section {
+	sec := report.Section{
+		Marker: marker, Unit: unit, Model: j.model, Settings: j.settings, Limit: j.limit,
+		Target: j.target, Exams: j.exams, Results: j.results,
+	}
+	for k, n := range j.ruleNames {
+		sec.Rules = append(sec.Rules, report.Rule{Name: n, Expr: j.ruleSet.Rules[k].Expr, Fired: fired(j.ruleCols[k])})
+	}
+	return sec
+}
+
 func runScreen(e *env, args []string) error {
-	fs := newFlags(e, "screen", "--model M.json --in F.csv --id C --time C --value C [--group C] (--target YEARS | --limit H) [--out O.csv]")
-	var cols examColumns
-	cols.register(fs.StringVar)
-	var cf chartFlags
-	cf.register(fs)
-	model := fs.String("model", "", "model file written by veer fit (required)")
-	in := fs.String("in", "", "CSV file of exams to screen, one row per exam, any order (required)")
-	out := fs.String("out", "", "file to write (default: standard output)")
-	target := fs.Float64("target", 0, "average years to a false signal for a healthy worker; the limit is computed from the model")
-	limitH := fs.Float64("limit", 0, "control limit to use instead of --target")
-	extrap := fs.Bool("extrapolate", false, "allow exams at ages outside the reference range (curves held at their ends)")
-	var ruleFlags ruleList
-	fs.Var(&ruleFlags, "rule", "alert rule NAME=EXPRESSION in CEL, adds a column NAME (repeatable), e.g. --rule 'high=chart > limit || centile > 99.0'")
-	rulesFile := fs.String("rules", "", "file of alert rules, one 'name = expression' per line, each adds a column")
+	fs := newFlags(e, "screen", "--model M.json --in F.csv|F.xlsx --id C --time C --value C [--group C] (--target YEARS | --limit H) [--out O.csv|O.xlsx] [--report R.html]")
+	var sf screenFlags
+	sf.register(fs)
+	out := fs.String("out", "", "file to write: a CSV file (default: standard output), or for an .xlsx input the workbook to write (default: the input workbook itself, with a backup)")
+	rep := fs.String("report", "", "also write an HTML report to this file")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
-	if err := required("model", *model, "in", *in); err != nil {
-		return err
-	}
-	if (*limitH > 0) == (*target > 0) {
-		return usagef("give exactly one of --target (years) and --limit")
-	}
-	s, err := cf.settings()
+	j, err := runScreenJob(e, &sf)
 	if err != nil {
 		return err
 	}
-	s.Extrapolate = *extrap
-	rs, err := collectRules(ruleFlags, *rulesFile)
-	if err != nil {
-		return err
-	}
-	m, err := loadModel(*model)
-	if err != nil {
-		return err
-	}
-	t, err := loadTable(*in)
-	if err != nil {
-		return err
-	}
-	rows, err := readRows(t, *in, cols)
-	if err != nil {
-		return err
-	}
-	h := *limitH
-	if *target > 0 {
-		prog, done := mcProgress(e)
-		r, err := m.Limit(s, cf.limitOptions(prog), *target)
-		done()
-		if err != nil {
+	switch {
+	case j.isXLSX:
+		dst := sf.in
+		if *out != "" && *out != sf.in {
+			if !isXLSX(*out) {
+				return usagef("with an .xlsx input, --out must name an .xlsx workbook")
+			}
+			b, err := os.ReadFile(sf.in)
+			if err != nil {
+				return err
+			}
+			if err := writeFileAtomic(*out, b); err != nil {
+				return err
+			}
+			dst = *out
+		}
+		data := workbook.ResultsData{Input: j.input, Markers: []workbook.MarkerResults{j.markerResults(j.model.Name)}}
+		if err := workbook.Refresh(dst, workbook.RefreshOptions{}, data); err != nil {
+			return fmt.Errorf("%s: %v", dst, err)
+		}
+		fmt.Fprintf(e.stderr, "wrote the sheets %q and %q into %s (previous file kept as %s)\n", workbook.DefaultResultsSheet, workbook.DefaultSummarySheet, dst, workbook.BackupPath(dst))
+	default:
+		var buf bytes.Buffer
+		var w io.Writer = e.stdout
+		if *out != "" {
+			w = &buf
+		}
+		if err := writeScreen(w, j.input, j.results, j.limit.H, j.ruleNames, j.ruleCols); err != nil {
 			return err
 		}
-		describeLimit(e, r, *target)
-		h = r.H
+		if *out != "" {
+			if err := writeFileAtomic(*out, buf.Bytes()); err != nil {
+				return err
+			}
+		}
 	}
-	exams := make([]screening.Exam, len(rows))
-	for i, r := range rows {
-		exams[i] = screening.Exam{Worker: r.Worker, Group: r.Group, Time: r.Time, Value: r.Value}
-	}
-	res, err := m.Screen(exams, s, h)
-	if err != nil {
-		return fmt.Errorf("%s: %v", *in, err)
-	}
-	ruleNames, ruleCols, err := evalRules(rs, exams, res, s, h)
-	if err != nil {
-		return err
-	}
-	var buf bytes.Buffer
-	var w io.Writer = e.stdout
-	if *out != "" {
-		w = &buf
-	}
-	if err := writeScreen(w, t, res, h, ruleNames, ruleCols); err != nil {
-		return err
-	}
-	if *out != "" {
-		if err := writeFileAtomic(*out, buf.Bytes()); err != nil {
+	if *rep != "" {
+		if err := writeReport(*rep, sf.in, []report.Section{j.reportSection(j.model.Name, "")}); err != nil {
 			return err
 		}
+		fmt.Fprintf(e.stderr, "report written to %s\n", *rep)
 	}
-	flagged := map[string]bool{}
-	workers := map[string]bool{}
-	for i, r := range res {
-		workers[rows[i].Worker] = true
-		if r.Signal {
-			flagged[rows[i].Worker] = true
-		}
-	}
-	fmt.Fprintf(e.stderr, "screened %d exams of %d workers at limit %.4f: %d workers signalled\n", len(res), len(workers), h, len(flagged))
-	fmt.Fprintln(e.stderr, caution)
+	j.summary(e)
 	return nil
+}
+
+func runReport(e *env, args []string) error {
+	fs := newFlags(e, "report", "--model M.json --in F.csv|F.xlsx --id C --time C --value C [--group C] (--target YEARS | --limit H) --out R.html [--marker NAME] [--unit U]")
+	var sf screenFlags
+	sf.register(fs)
+	out := fs.String("out", "", "HTML file to write (required)")
+	marker := fs.String("marker", "", "name of the marker shown in the report (default: the model's name)")
+	unit := fs.String("unit", "", "unit of the readings, e.g. mmHg")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if err := required("out", *out); err != nil {
+		return err
+	}
+	j, err := runScreenJob(e, &sf)
+	if err != nil {
+		return err
+	}
+	name := *marker
+	if name == "" {
+		name = j.model.Name
+	}
+	if err := writeReport(*out, sf.in, []report.Section{j.reportSection(name, *unit)}); err != nil {
+		return err
+	}
+	fmt.Fprintf(e.stderr, "report written to %s\n", *out)
+	j.summary(e)
+	return nil
+}
+
+func writeReport(path, source string, secs []report.Section) error {
+	var buf bytes.Buffer
+	d := report.Data{
+		Title:     "Health surveillance screening",
+		Generated: time.Now().Format("2 January 2006"),
+		Source:    filepath.Base(source),
+		Sections:  secs,
+	}
+	if err := report.Render(&buf, d); err != nil {
+		return err
+	}
+	return writeFileAtomic(path, buf.Bytes())
 }
 
 // screenColumns are the columns screen adds to the input's.

@@ -215,7 +215,13 @@ func workerPanel(s *Section, w *workerView, n int, sectionID string) (panelView,
 		XLabel: "age (years)", YLabel: "chart statistic (SD)", XTicks: 6, YTicks: 5, Class: "chart panel-stat",
 	})
 	right.hline(h, colVermilion, 1.6, dashLimit)
-	right.text(right.plotLeft+4, right.y.at(h)-4, "limit h = "+num(h, 3), colVermilion, "start", 10)
+	// The label sits at the right end, where a rising statistic has
+	// usually left the limit behind, and flips below the line near the top.
+	ly := right.y.at(h) - 4
+	if ly < right.plotTop+12 {
+		ly = right.y.at(h) + 12
+	}
+	right.text(right.plotRight-4, ly, "limit h = "+num(h, 3), colVermilion, "end", 10)
 	right.line(ts, st, colBlue, 1.6, "")
 	for j := range ts {
 		if sig[j] {

@@ -3,7 +3,6 @@ package report
 import (
 	"bytes"
 	"fmt"
-	"math"
 	"sync"
 	"testing"
 
@@ -114,7 +113,7 @@ func screenMarker(ref, wf *table.Table, mk demoMarker) (Section, error) {
 	if err != nil {
 		return Section{}, err
 	}
-	fired, err := evalRule(mk.rule, exams, res, lim.H)
+	fired, err := evalRule(mk.rule, exams, res, set, lim.H)
 	if err != nil {
 		return Section{}, err
 	}
@@ -124,20 +123,15 @@ func screenMarker(ref, wf *table.Table, mk demoMarker) (Section, error) {
 	}, nil
 }
 
-// evalRule evaluates a true/false alert rule on screened exams.
-func evalRule(expr string, exams []screening.Exam, res []screening.Result, h float64) ([]bool, error) {
+// evalRule evaluates a true/false alert rule on screened exams, with the
+// variables the engine gives rules (screening.RuleExams).
+func evalRule(expr string, exams []screening.Exam, res []screening.Result, set screening.Settings, h float64) ([]bool, error) {
 	r, err := rules.Compile(expr, rules.Bool)
 	if err != nil {
 		return nil, err
 	}
-	re := make([]rules.Exam, len(exams))
-	for i, e := range exams {
-		x := res[i]
-		re[i] = rules.Exam{Worker: e.Worker, Group: e.Group, Time: e.Time, Value: e.Value,
-			Mean: x.Mean, SD: x.SD, Z: x.Z, Centile: x.Centile, Innovation: x.Innovation,
-			Chart: x.Stat, ChartLow: math.NaN(), Limit: h, Signal: x.Signal, InRange: x.InRange}
-	}
-	if err := rules.Link(re); err != nil {
+	re, err := screening.RuleExams(exams, res, set, h)
+	if err != nil {
 		return nil, err
 	}
 	out := make([]rules.Value, len(re))

@@ -2,7 +2,6 @@ package workbook
 
 import (
 	"bytes"
-	"math"
 	"path/filepath"
 	"strconv"
 	"sync"
@@ -121,13 +120,8 @@ func evalRule(t testing.TB, expr string, exams []screening.Exam, res []screening
 	if err != nil {
 		t.Fatal(err)
 	}
-	re := make([]rules.Exam, len(exams))
-	for i, e := range exams {
-		x := res[i]
-		re[i] = rules.Exam{Worker: e.Worker, Group: e.Group, Time: e.Time, Value: e.Value, Mean: x.Mean, SD: x.SD, Z: x.Z,
-			Centile: x.Centile, Innovation: x.Innovation, Chart: x.Stat, ChartLow: math.NaN(), Limit: h, Signal: x.Signal, InRange: x.InRange}
-	}
-	if err := rules.Link(re); err != nil {
+	re, err := screening.RuleExams(exams, res, settings(), h)
+	if err != nil {
 		t.Fatal(err)
 	}
 	out := make([]rules.Value, len(re))

@@ -1,6 +1,7 @@
 package workbook
 
 import (
+	"archive/zip"
 	"bytes"
 	"errors"
 	"fmt"
@@ -20,7 +21,12 @@ import (
 // memory or disk.
 const (
 	// MaxUnzippedBytes bounds the total unzipped size of a workbook.
-	MaxUnzippedBytes = 2 << 30
+	MaxUnzippedBytes = 1 << 30
+	// maxRatio bounds the declared unzipped size of a part against its
+	// zipped size: deflate cannot compress better than about 1032:1, so a
+	// larger claim is a damaged or hostile file (which would otherwise make
+	// the reader reserve memory for the claimed size).
+	maxRatio = 1100
 	// maxXMLInMemory is the worksheet size above which excelize streams the
 	// sheet through a temporary file instead of memory.
 	maxXMLInMemory = 64 << 20
@@ -62,6 +68,30 @@ func checkFile(path string) error {
 		return fmt.Errorf("%s is a text file; read it as CSV, not as a workbook", path)
 	case !bytes.HasPrefix(head, []byte("PK")):
 		return fmt.Errorf("%s is not an .xlsx workbook (it is not a zip package)", path)
+	}
+	return checkZip(f, path)
+}
+
+// checkZip checks the zip directory's declared sizes before the workbook
+// reader trusts them.
+func checkZip(f *os.File, path string) error {
+	fi, err := f.Stat()
+	if err != nil {
+		return fmt.Errorf("cannot read the workbook %s: %v", path, err)
+	}
+	zr, err := zip.NewReader(f, fi.Size())
+	if err != nil {
+		return fmt.Errorf("the workbook %s cannot be read: it is not a valid zip package (%v)", path, err)
+	}
+	var total uint64
+	for _, e := range zr.File {
+		total += e.UncompressedSize64
+		if total > MaxUnzippedBytes {
+			return fmt.Errorf("the workbook %s is too large: it unpacks to more than %d MiB", path, MaxUnzippedBytes>>20)
+		}
+		if e.UncompressedSize64 > 1<<20 && e.UncompressedSize64/maxRatio > e.CompressedSize64 {
+			return fmt.Errorf("the workbook %s is damaged: part %q claims an impossible size", path, e.Name)
+		}
 	}
 	return nil
 }

@@ -1,6 +1,7 @@
 package workbook
 
 import (
+	"bytes"
 	"errors"
 	"fmt"
 	"io"
@@ -153,7 +154,18 @@ func Refresh(path string, opt RefreshOptions, out ResultsData) (err error) {
 	if err := wr.build(); err != nil {
 		return fmt.Errorf("%s: %v; nothing was written", path, err)
 	}
-	return replaceAtomic(path, mode, func(w io.Writer) error { return f.Write(w) })
+	return replaceAtomic(path, mode, func(w io.Writer) error {
+		var buf bytes.Buffer
+		if err := f.Write(&buf); err != nil {
+			return err
+		}
+		b, err := prunePackage(buf.Bytes())
+		if err != nil {
+			return err
+		}
+		_, err = w.Write(b)
+		return err
+	})
 }
 
 // writer builds the two sheets in an open workbook.

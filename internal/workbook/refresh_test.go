@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"reflect"
+	"regexp"
 	"strconv"
 	"strings"
 	"testing"
@@ -137,7 +138,7 @@ func TestRefreshKeepsOtherSheets(t *testing.T) {
 		t.Fatal(err)
 	}
 	data := screenTable(t, in)
-	for round := 1; round <= 2; round++ {
+	for round := 1; round <= 3; round++ {
 		prev := readAll(t, path)
 		if err := Refresh(path, RefreshOptions{}, data); err != nil {
 			t.Fatalf("refresh %d: %v", round, err)
@@ -182,6 +183,22 @@ func TestRefreshKeepsOtherSheets(t *testing.T) {
 			t.Errorf("refresh %d: defined names %+v, want %+v", round, namesAfter, namesBefore)
 		}
 		partsAfter := zipParts(t, path)
+		// One chart, however often the workbook is refreshed, and every
+		// content-type override names a part that exists.
+		charts := 0
+		for p := range partsAfter {
+			if strings.HasPrefix(p, "xl/charts/") || strings.HasPrefix(p, "xl/drawings/drawing") {
+				charts++
+			}
+		}
+		if charts != 2 {
+			t.Errorf("refresh %d: %d chart and drawing parts, want 1 of each", round, charts)
+		}
+		for _, m := range regexp.MustCompile(`PartName="/([^"]+)"`).FindAllSubmatch(partsAfter["[Content_Types].xml"], -1) {
+			if _, ok := partsAfter[string(m[1])]; !ok {
+				t.Errorf("refresh %d: content types list the missing part %s", round, m[1])
+			}
+		}
 		for _, p := range []string{"xl/worksheets/sheet1.xml", "xl/worksheets/sheet2.xml", "xl/worksheets/sheet3.xml", "xl/theme/theme1.xml"} {
 			if !bytes.Equal(partsAfter[p], partsBefore[p]) {
 				t.Errorf("refresh %d: stored part %s of an untouched sheet changed", round, p)
