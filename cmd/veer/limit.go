@@ -14,6 +14,7 @@ import (
 // chartFlags are the chart options shared by limit, delay and screen.
 type chartFlags struct {
 	kind, side, serial, method string
+	horizon                    string
 	allowance, lambda, unit    float64
 	headStart, gap             float64
 	restart                    bool
@@ -30,8 +31,9 @@ func (c *chartFlags) register(fs *flag.FlagSet) {
 	fs.Float64Var(&c.unit, "unit", d.UnitOrDefault(), "EWMA time unit in years (the weight of an exam after a gap d is 1-(1-lambda)^(d/unit))")
 	fs.Float64Var(&c.headStart, "head-start", 0, "fast initial response: start the CUSUM at this fraction of the limit (0 to 1)")
 	fs.BoolVar(&c.restart, "restart", false, "restart the chart after a signal")
-	fs.StringVar(&c.serial, "serial", screening.SerialDirect, "serial correlation: direct (chart z, limit carries the correlation), whiten (chart Kalman innovations) or off (ignore it)")
+	fs.StringVar(&c.serial, "serial", screening.SerialWhiten, "serial correlation: whiten (chart each reading against the worker's own predicted level, the Kalman innovation), direct (chart z; the limit carries the correlation) or off (ignore it)")
 	fs.StringVar(&c.method, "method", string(monitor.Normal), "how the limit is computed: normal or bootstrap")
+	fs.StringVar(&c.horizon, "horizon", string(monitor.HorizonFollowUp), "what the target counts: followup (worker-years of exams per false signal, workers followed as long as the reference workers; needs --model) or long (one worker with an unending exam history, the textbook average time to signal)")
 	fs.Float64Var(&c.gap, "gap", 0, "planned years between exams (0: the reference workers' own gaps; needed without --model)")
 	fs.Uint64Var(&c.seed, "seed", screening.DefaultSeed, "seed of the Monte Carlo methods (the same seed gives the same limit)")
 	fs.IntVar(&c.paths, "paths", 0, "Monte Carlo paths (0: default, about 1.6% standard error)")
@@ -53,6 +55,11 @@ func (c *chartFlags) settings() (screening.Settings, error) {
 	default:
 		return s, usagef("--method must be normal or bootstrap, not %q", c.method)
 	}
+	switch monitor.Horizon(c.horizon) {
+	case monitor.HorizonFollowUp, monitor.HorizonLong:
+	default:
+		return s, usagef("--horizon must be followup or long, not %q", c.horizon)
+	}
 	if c.gap < 0 || math.IsNaN(c.gap) {
 		return s, usagef("--gap must be positive")
 	}
@@ -62,6 +69,7 @@ func (c *chartFlags) settings() (screening.Settings, error) {
 func (c *chartFlags) limitOptions(progress func(done, total int)) screening.LimitOptions {
 	return screening.LimitOptions{
 		Method: monitor.Method(c.method), Gap: c.gap, Seed: c.seed, Paths: c.paths, Progress: progress,
+		Horizon: monitor.Horizon(c.horizon),
 	}
 }
 
@@ -86,10 +94,10 @@ func (c *chartFlags) calibrationWithoutModel(s screening.Settings) (monitor.Cali
 func mcProgress(e *env) (func(done, total int), func()) {
 	p := newProgress(e)
 	return func(done, total int) {
-			if total > 0 {
-				p.report("simulating", float64(done)/float64(total))
-			}
-		}, p.finish
+		if total > 0 {
+			p.report("simulating", float64(done)/float64(total))
+		}
+	}, p.finish
 }
 
 func runLimit(e *env, args []string) error {

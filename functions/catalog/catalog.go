@@ -61,6 +61,13 @@ func funcs() []cell.Func {
 			Call: callFit,
 		},
 		{
+			Name:    "VEER.MODELS",
+			Summary: "Lists the stored models and rule sets.",
+			Help:    "A header row, then one row per name: name, latest handle, number of versions, groups (\"rule set\" for a rule set saved with VEER.SAVERULES) and exams fitted.",
+			Result:  cell.ShapeTable, Streaming: true,
+			Call: callModels,
+		},
+		{
 			Name:    "VEER.INFO",
 			Summary: "Diagnostics of a reference model as item and value rows.",
 			Help:    "Workers and exams per group, age range, bandwidths, band coverage, normality check, serial correlation and its checks, mean gap between exams.",
@@ -159,6 +166,9 @@ func loadModel(env cell.Env, name string) (*screening.Model, cell.ModelRef, erro
 	if err != nil {
 		return nil, ref, err
 	}
+	if isRuleSet(ref.Doc) {
+		return nil, ref, cell.RefError("%s is a rule set saved with VEER.SAVERULES, not a model; give a model fitted with VEER.FIT", ref.Handle)
+	}
 	v, err := env.Once("veer.model:"+ref.Handle+":"+ref.SHA256, func() (any, error) {
 		m, err := screening.Decode(ref.Doc)
 		if err != nil {
@@ -220,6 +230,38 @@ func groupsArg(a cell.Args, i, n int) ([]string, error) {
 	return nil, cell.ValueError("%s: %s has %d cells but there are %d rows; give one group per row or a single group", a.Func().Name, a.Func().ArgName(i), len(g), n)
 }
 
+// rowCheck reports why the reading y (NaN: no reading) of group at age t
+// cannot be scored against m, or nil: an age outside the group's reference
+// range without extrapolation is #NUM!, a group the model does not know
+// #N/A, a reading the model's transform cannot take (log of a non-positive
+// number) #NUM!. row is the 1-based row for the message (0: none).
+func rowCheck(fn string, m *screening.Model, group string, t, y float64, ext bool, row int) *cell.Error {
+	where := fn + ": "
+	if row > 0 {
+		where = fmt.Sprintf("%s: row %d: ", fn, row)
+	}
+	lo, hi, err := m.Curves.Range(group)
+	if err != nil {
+		return cell.AsError(cellError(strings.TrimSuffix(where, ": "), err))
+	}
+	if !ext && (t < lo || t > hi) {
+		g := "the reference data"
+		if group != "" {
+			g = "group " + strconv.Quote(group)
+		}
+		return cell.NumError(`%sage %s is outside the reference range %s to %s of %s; add "extrapolate=true" to the options to hold the curves at their ends`,
+			where, cell.FormatNumber(t), cell.FormatNumber(round2(lo)), cell.FormatNumber(round2(hi)), g)
+	}
+	if !math.IsNaN(y) {
+		if _, err := m.Curves.Z(group, t, y, ext); err != nil {
+			return cell.NumError("%s%v", where, err)
+		}
+	}
+	return nil
+}
+
+func round2(x float64) float64 { return math.Round(x*100) / 100 }
+
 // cellError turns an engine error into a spreadsheet error: a value outside
 // what the model covers is #NUM!, anything else #VALUE!.
 func cellError(fn string, err error) error {
@@ -262,6 +304,10 @@ func lookup(what string) func(ctx context.Context, env cell.Env, a cell.Args) (a
 				out[i] = cell.NAError("row %d: the age is blank", i+1)
 				continue
 			}
+			if e := rowCheck(a.Func().Name, m, groups[i], t, math.NaN(), ext, rowLabel(len(ages), i)); e != nil {
+				out[i] = e
+				continue
+			}
 			mean, sd, err := m.Curves.At(groups[i], t, ext)
 			if err != nil {
 				out[i] = cellError(a.Func().Name, err)
@@ -275,6 +321,15 @@ func lookup(what string) func(ctx context.Context, env cell.Env, a cell.Args) (a
 		}
 		return single(out, isScalarArgs(a, 1, 2))
 	}
+}
+
+// rowLabel is the 1-based row for messages about row i of n, or 0 for a
+// single cell.
+func rowLabel(n, i int) int {
+	if n == 1 {
+		return 0
+	}
+	return i + 1
 }
 
 // single answers one value for single-cell inputs (an error in it fails
@@ -320,6 +375,10 @@ func callCentile(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 			out[i] = cell.NAError("row %d: the age is blank", i+1)
 			continue
 		}
+		if e := rowCheck("VEER.CENTILE", m, groups[i], t, math.NaN(), ext, rowLabel(len(ages), i)); e != nil {
+			out[i] = e
+			continue
+		}
 		v, err := m.Curves.Centile(groups[i], t, p, ext)
 		if err != nil {
 			out[i] = cellError(a.Func().Name, err)
@@ -361,6 +420,10 @@ func callZ(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 			out[i] = cell.NAError("row %d: the age or the reading is blank", i+1)
 			continue
 		}
+		if e := rowCheck("VEER.ZSCORE", m, groups[i], ages[i], vals[i], ext, rowLabel(len(ages), i)); e != nil {
+			out[i] = e
+			continue
+		}
 		z, err := m.Curves.Z(groups[i], ages[i], vals[i], ext)
 		if err != nil {
 			out[i] = cellError(a.Func().Name, err)
@@ -384,24 +447,29 @@ func chartSettings(fn string, o cell.Options) (screening.Settings, screening.Lim
 			HeadStart: o.Number(cell.OptionHeadstart, 0),
 			Restart:   o.Bool(cell.OptionRestart, false),
 		},
-		Serial: o.Text(cell.OptionSerial, screening.SerialDirect),
+		Serial: o.Text(cell.OptionSerial, screening.SerialWhiten),
 
 		Extrapolate: o.Bool(cell.OptionExtrapolate, false),
 	}
 	if err := s.Chart.Validate(); err != nil {
 		return s, screening.LimitOptions{}, cell.NumError("%s: %v", fn, err)
 	}
+	seed := o.Number(cell.OptionSeed, screening.DefaultSeed)
+	if seed != math.Trunc(seed) || seed < 0 || seed > 1<<53 {
+		return s, screening.LimitOptions{}, cell.NumError("%s: the seed option must be a whole number from 0 to 9007199254740992, not %s", fn, cell.FormatNumber(seed))
+	}
+	reps := o.Number(cell.OptionReps, 0)
+	if reps != math.Trunc(reps) || reps < 0 || reps > 1_000_000 {
+		return s, screening.LimitOptions{}, cell.NumError("%s: reps must be a whole number from 1 to 1,000,000 (0 or absent: the default), not %s", fn, cell.FormatNumber(reps))
+	}
 	lo := screening.LimitOptions{
 		Method: monitor.Method(o.Text(cell.OptionMethod, string(monitor.Normal))),
 		Gap:    o.Number(cell.OptionGap, 0),
-		Seed:   uint64(o.Number(cell.OptionSeed, screening.DefaultSeed)),
-		Paths:  int(o.Number(cell.OptionReps, 0)),
+		Seed:   uint64(seed),
+		Paths:  int(reps),
 	}
 	if lo.Gap < 0 {
 		return s, lo, cell.NumError("%s: the gap option must be a positive number of years", fn)
-	}
-	if lo.Paths < 0 || lo.Paths > 1_000_000 {
-		return s, lo, cell.NumError("%s: reps must be between 1 and 1,000,000", fn)
 	}
 	return s, lo, nil
 }
@@ -568,51 +636,116 @@ func callDelay(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	return v, nil
 }
 
+// sheet is a table of exam rows read from ids, ages, values and groups
+// columns: the rows that can be screened, and an error for each of the
+// others, in sheet order.
+type sheet struct {
+	n      int                 // rows in the sheet
+	exams  []screening.Exam    // rows that can be screened, in sheet order
+	rowOf  []int               // 0-based sheet row of each exam
+	failed map[int]*cell.Error // sheet rows answered with an error instead
+}
+
 // examsArgs reads ids, ages, values and groups columns starting at argument
-// i; rows with a blank id, age or value are reported in missing.
-func examsArgs(a cell.Args, i int) (exams []screening.Exam, rowOf []int, missing map[int]string, n int, err error) {
+// i. Cells follow cell.PolicyMissing: a blank (or error) id, age or reading
+// makes its row #N/A, text or TRUE/FALSE in a numeric column fails the call
+// naming the cell.
+func examsArgs(a cell.Args, i int) (*sheet, error) {
 	fn := a.Func().Name
 	ids, err := a.Texts(i, cell.PolicyMissing)
 	if err != nil {
-		return nil, nil, nil, 0, err
+		return nil, err
 	}
 	ages, err := a.Numbers(i+1, cell.PolicyMissing)
 	if err != nil {
-		return nil, nil, nil, 0, err
+		return nil, err
 	}
 	vals, err := a.Numbers(i+2, cell.PolicyMissing)
 	if err != nil {
-		return nil, nil, nil, 0, err
+		return nil, err
 	}
-	n = len(ids)
+	n := len(ids)
 	if len(ages) != n || len(vals) != n {
-		return nil, nil, nil, 0, cell.ValueError("%s: ids, ages and values must have the same number of rows (they have %d, %d and %d)", fn, n, len(ages), len(vals))
+		return nil, cell.ValueError("%s: ids, ages and values must have the same number of rows (they have %d, %d and %d)", fn, n, len(ages), len(vals))
 	}
 	if n == 0 {
-		return nil, nil, nil, 0, cell.ValueError("%s: there are no exam rows", fn)
+		return nil, cell.ValueError("%s: there are no exam rows", fn)
 	}
 	groups, err := groupsArg(a, i+3, n)
 	if err != nil {
-		return nil, nil, nil, 0, err
+		return nil, err
 	}
-	missing = map[int]string{}
+	sh := &sheet{n: n, failed: map[int]*cell.Error{}, exams: make([]screening.Exam, 0, n), rowOf: make([]int, 0, n)}
 	for r := 0; r < n; r++ {
+		id := strings.TrimSpace(ids[r])
 		switch {
-		case strings.TrimSpace(ids[r]) == "":
-			missing[r] = "the worker id is blank"
+		case id == "":
+			sh.failed[r] = cell.NAError("row %d: the worker id is blank", r+1)
 		case math.IsNaN(ages[r]):
-			missing[r] = "the age is blank"
+			sh.failed[r] = cell.NAError("row %d: the age is blank", r+1)
 		case math.IsNaN(vals[r]):
-			missing[r] = "the reading is blank"
+			sh.failed[r] = cell.NAError("row %d: the reading is blank", r+1)
 		default:
-			exams = append(exams, screening.Exam{Worker: strings.TrimSpace(ids[r]), Group: groups[r], Time: ages[r], Value: vals[r]})
-			rowOf = append(rowOf, r)
+			sh.exams = append(sh.exams, screening.Exam{Worker: id, Group: groups[r], Time: ages[r], Value: vals[r]})
+			sh.rowOf = append(sh.rowOf, r)
 		}
 	}
-	if len(exams) == 0 {
-		return nil, nil, nil, 0, cell.ValueError("%s: every exam row has a blank id, age or reading", fn)
+	if len(sh.exams) == 0 {
+		return nil, cell.ValueError("%s: every exam row has a blank id, age or reading", fn)
 	}
-	return exams, rowOf, missing, n, nil
+	return sh, nil
+}
+
+// firstFailed returns the error of the first failed row, or nil.
+func (sh *sheet) firstFailed() *cell.Error {
+	first := -1
+	for r := range sh.failed {
+		if first < 0 || r < first {
+			first = r
+		}
+	}
+	if first < 0 {
+		return nil
+	}
+	return sh.failed[first]
+}
+
+// screenable moves the rows m cannot score (age outside the reference
+// range without extrapolation, unknown group, a reading the transform
+// cannot take) to the failed rows, each with its own error, so the rest of
+// the sheet is still charted; the other exams of such a worker are charted
+// without that row. Two exams of one worker at the same age fail the call,
+// naming both sheet rows.
+func (sh *sheet) screenable(fn string, m *screening.Model, ext bool) error {
+	kept := sh.exams[:0]
+	rowOf := sh.rowOf[:0]
+	for k, e := range sh.exams {
+		r := sh.rowOf[k]
+		if ce := rowCheck(fn, m, e.Group, e.Time, e.Value, ext, r+1); ce != nil {
+			sh.failed[r] = ce
+			continue
+		}
+		kept = append(kept, e)
+		rowOf = append(rowOf, r)
+	}
+	sh.exams, sh.rowOf = kept, rowOf
+	if len(sh.exams) == 0 {
+		return sh.firstFailed()
+	}
+	type key struct {
+		worker string
+		age    float64
+	}
+	seen := make(map[key]int, len(sh.exams))
+	for k, e := range sh.exams {
+		kk := key{e.Worker, e.Time}
+		if j, dup := seen[kk]; dup {
+			return cell.ValueError("%s: worker %q has two exams at the same age %s (rows %d and %d); remove or merge one",
+				fn, e.Worker, cell.FormatNumber(e.Time), sh.rowOf[j]+1, sh.rowOf[k]+1)
+		}
+		seen[kk] = k
+	}
+	return nil
 }
 
 func callChart(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
@@ -620,7 +753,7 @@ func callChart(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
-	exams, rowOf, missing, n, err := examsArgs(a, 1)
+	sh, err := examsArgs(a, 1)
 	if err != nil {
 		return nil, err
 	}
@@ -636,13 +769,15 @@ func callChart(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
-	res, err := m.Screen(exams, s, h)
+	if err := sh.screenable("VEER.CHART", m, s.Extrapolate); err != nil {
+		return nil, err
+	}
+	res, err := m.Screen(sh.exams, s, h)
 	if err != nil {
 		return nil, cellError("VEER.CHART", err)
 	}
-	out := make([][]any, n)
-	for r, msg := range missing {
-		e := cell.NAError("row %d: %s", r+1, msg)
+	out := make([][]any, sh.n)
+	for r, e := range sh.failed {
 		out[r] = []any{e, e, e, e, e, e}
 	}
 	for k, r := range res {
@@ -650,9 +785,33 @@ func callChart(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		if !math.IsNaN(r.FirstSignal) {
 			fs = r.FirstSignal
 		}
-		out[rowOf[k]] = []any{r.Z, r.Innovation, r.Stat, h, r.Signal, fs}
+		out[sh.rowOf[k]] = []any{r.Z, r.Innovation, r.Stat, h, r.Signal, fs}
 	}
 	return out, nil
+}
+
+// checkKind refuses to save a model under the name of a rule set or a rule
+// set under the name of a model. A name keeps the kind of its first
+// version; reading that exact version (not the bare name) keeps the call's
+// result valid in the server's cache after the save.
+func checkKind(env cell.Env, fn, name string, ruleSet bool) error {
+	ref, err := env.Model(name + "@v1")
+	if err != nil || isRuleSet(ref.Doc) == ruleSet {
+		return nil
+	}
+	if ruleSet {
+		return cell.ValueError("%s: %s is the name of a model fitted with VEER.FIT; give the rule set another name", fn, ref.Name)
+	}
+	return cell.ValueError("%s: %s is the name of a rule set saved with VEER.SAVERULES; give the model another name", fn, ref.Name)
+}
+
+// checkName checks the name of a model or rule set to save.
+func checkName(fn, what, name string) (string, error) {
+	name = strings.TrimSpace(name)
+	if name == "" || strings.ContainsAny(name, "@/\\") {
+		return "", cell.ValueError("%s: the %s name must be non-empty text without @, / or \\", fn, what)
+	}
+	return name, nil
 }
 
 func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
@@ -660,25 +819,22 @@ func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
-	name = strings.TrimSpace(name)
-	if name == "" || strings.ContainsAny(name, "@/\\") {
-		return nil, cell.ValueError("VEER.FIT: the model name must be non-empty text without @, / or \\")
+	if name, err = checkName("VEER.FIT", "model", name); err != nil {
+		return nil, err
 	}
-	exams, _, missing, _, err := examsArgs(a, 1)
+	sh, err := examsArgs(a, 1)
 	if err != nil {
 		return nil, err
 	}
-	if len(missing) > 0 {
-		for r, msg := range missing {
-			return nil, cell.ValueError("VEER.FIT: row %d: %s; every reference row needs an id, an age and a reading", r+1, msg)
-		}
+	if e := sh.firstFailed(); e != nil {
+		return nil, cell.ValueError("VEER.FIT: %s; every reference row needs an id, an age and a reading", e.Message)
 	}
 	o, err := a.Options(5)
 	if err != nil {
 		return nil, err
 	}
-	rows := make([]refcurve.Row, len(exams))
-	for i, e := range exams {
+	rows := make([]refcurve.Row, len(sh.exams))
+	for i, e := range sh.exams {
 		rows[i] = refcurve.Row{Worker: e.Worker, Group: e.Group, Time: e.Time, Value: e.Value}
 	}
 	opt := screening.FitOptions{Name: name, Curves: refcurve.Options{
@@ -698,6 +854,9 @@ func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
+	if err := checkKind(env, "VEER.FIT", name, false); err != nil {
+		return nil, err
+	}
 	return env.SaveModel(name, doc)
 }
 
@@ -711,6 +870,41 @@ func callInfo(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	out = append(out, []any{"handle", ref.Handle})
 	for _, it := range items {
 		out = append(out, []any{it.Name, it.Value})
+	}
+	return out, nil
+}
+
+// ModelLister is implemented by a cell.Env that can list the names of the
+// models it holds (cell.MemoryEnv does). VEER.MODELS needs it.
+type ModelLister interface {
+	// Names returns the names of the models held, sorted.
+	Names() []string
+}
+
+func callModels(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
+	l, ok := env.(ModelLister)
+	if !ok {
+		return nil, cell.ValueError("VEER.MODELS: this server cannot list its models; GET /v1/models lists them")
+	}
+	out := [][]any{{"name", "handle", "versions", "groups", "exams"}}
+	for _, name := range l.Names() {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		ref, err := env.Model(name)
+		if err != nil {
+			continue // deleted meanwhile
+		}
+		if isRuleSet(ref.Doc) {
+			out = append(out, []any{ref.Name, ref.Handle, ref.Version, "rule set", nil})
+			continue
+		}
+		m, _, err := loadModel(env, ref.Handle)
+		if err != nil {
+			out = append(out, []any{ref.Name, ref.Handle, ref.Version, cell.AsError(err), nil})
+			continue
+		}
+		out = append(out, []any{ref.Name, ref.Handle, ref.Version, strings.Join(m.Curves.Groups(), ", "), m.Curves.Rows})
 	}
 	return out, nil
 }

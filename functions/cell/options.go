@@ -68,7 +68,7 @@ var sharedOptions = []Option{
 	{Name: OptionSide, Type: OptChoice, Choices: []string{"up", "down", "both"}, Help: "which drift to watch: up, down or both"},
 	{Name: OptionChart, Type: OptChoice, Choices: []string{"cusum", "ewma"}, Help: "chart statistic: cusum or ewma"},
 	{Name: OptionLambda, Type: OptNumber, Help: "EWMA weight per unit of time, in (0, 1]"},
-	{Name: OptionSerial, Type: OptChoice, Choices: []string{"direct", "whiten", "off", "on"}, Help: "how the correlation of a worker's readings is handled: direct (chart z, the limit carries the correlation; on means direct), whiten (chart Kalman-filter innovations) or off (ignore it)"},
+	{Name: OptionSerial, Type: OptChoice, Choices: []string{"whiten", "direct", "off", "on"}, Help: "how the correlation of a worker's readings is handled: whiten (the default: chart each reading against the worker's own predicted level, the Kalman-filter innovation; on means whiten), direct (chart z, the limit carries the correlation) or off (ignore it)"},
 	{Name: OptionTarget, Type: OptNumber, Help: "target average time to a false signal for a healthy worker, in years"},
 	{Name: OptionMethod, Type: OptChoice, Choices: []string{"normal", "bootstrap"}, Help: "how limits are calibrated: normal (exact for independent N(0,1) scores) or bootstrap (resampled reference workers)"},
 	{Name: OptionLimit, Type: OptNumber, Help: "control limit h; a chart statistic beyond it signals"},

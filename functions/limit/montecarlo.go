@@ -15,7 +15,9 @@ import (
 
 // Stream is one simulated worker history: each call to Next returns the gap
 // in years since the previous exam (for the first exam, since the start of
-// monitoring) and the value to chart.
+// monitoring) and the value to chart. A negative gap marks the first exam of
+// a new worker in a chain of workers: the chart starts afresh there and no
+// time passes (the time counted is then worker-years of exams).
 type Stream interface {
 	Next() (gap, u float64)
 }
@@ -136,6 +138,10 @@ func (mc MonteCarlo) simulate(spec chart.Spec, ns StreamFunc, n int, hMax, capTi
 				best, t := math.Inf(-1), 0.0
 				for {
 					gap, u := s.Next()
+					if gap < 0 {
+						tr.Reset()
+						gap = 0
+					}
 					t += gap
 					if t > capTime {
 						t -= gap
@@ -330,6 +336,10 @@ func (mc MonteCarlo) Delay(spec chart.Spec, h float64, ns StreamFunc, onset floa
 				flags[i] = 2
 				for range mc.CapExams {
 					gap, u := s.Next()
+					if gap < 0 {
+						tr.Reset()
+						gap = 0
+					}
 					t += gap
 					if tr.Next(gap, u) > h {
 						flags[i] = 0

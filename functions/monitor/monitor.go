@@ -27,7 +27,7 @@ const (
 
 // DefaultMode is the mode chosen from the delay comparison documented in
 // the package comment (TestModeEvidence).
-const DefaultMode = Direct
+const DefaultMode = Whiten
 
 // Settings are everything needed to chart a worker.
 type Settings struct {
@@ -135,7 +135,29 @@ type Calibration struct {
 	// Progress, if not nil, reports Monte Carlo progress (see
 	// limit.MonteCarlo.Progress).
 	Progress func(done, total int)
+	// Horizon says what the average time to a false signal counts:
+	// HorizonLong (the default) follows one healthy worker through an
+	// unending exam history, the textbook ATS; HorizonFollowUp follows a
+	// chain of healthy workers, each examined as long (and as often) as a
+	// reference worker drawn at random, the chart starting afresh for each,
+	// so the ATS is worker-years of exams per false signal — the rate an
+	// officer sees across a workforce. The two agree for independent
+	// readings and long histories; with persistent serial correlation the
+	// time to a false signal is far from exponential and HorizonLong
+	// understates the false signals seen per worker-year over real
+	// follow-ups. Limits only; Delay always uses HorizonLong.
+	Horizon Horizon
 }
+
+// Horizon is what an average time to a false signal counts (see
+// Calibration.Horizon).
+type Horizon string
+
+// Horizons.
+const (
+	HorizonLong     Horizon = "long"
+	HorizonFollowUp Horizon = "followup"
+)
 
 // Limits on targets.
 const (
@@ -170,6 +192,9 @@ type prepared struct {
 	pool    []float64 // gaps to resample (nil when c.Gap > 0)
 	meanGap float64
 	blocks  []block
+	// spans holds the reference workers' gap sequences (gap[0] unused)
+	// for HorizonFollowUp.
+	spans [][]float64
 }
 
 type block struct{ gap, u []float64 } // gap[0] unused
@@ -187,6 +212,31 @@ func prepare(c Calibration) (*prepared, error) {
 		return nil, fmt.Errorf("monitor: the number of simulation paths must be positive, got %d", c.Paths)
 	}
 	p := &prepared{c: c}
+	switch c.Horizon {
+	case "", HorizonLong:
+	case HorizonFollowUp:
+		for i, w := range c.Reference {
+			if err := serial.CheckTimes(w.Time); err != nil {
+				return nil, fmt.Errorf("monitor: reference worker %d, %w", i+1, err)
+			}
+			if len(w.Time) < 2 {
+				continue
+			}
+			g := make([]float64, len(w.Time))
+			for j := 1; j < len(w.Time); j++ {
+				g[j] = w.Time[j] - w.Time[j-1]
+				if c.Gap > 0 {
+					g[j] = c.Gap
+				}
+			}
+			p.spans = append(p.spans, g)
+		}
+		if len(p.spans) == 0 {
+			return nil, errors.New("monitor: the follow-up horizon needs reference workers with at least two exams")
+		}
+	default:
+		return nil, fmt.Errorf("monitor: unknown horizon %q: use %q or %q", c.Horizon, HorizonLong, HorizonFollowUp)
+	}
 	if c.Gap < 0 || math.IsNaN(c.Gap) || math.IsInf(c.Gap, 0) {
 		return nil, fmt.Errorf("monitor: the gap between exams must be a positive number of years, got %v", c.Gap)
 	}
@@ -303,6 +353,17 @@ type stream struct {
 	t            float64
 	blk          *block
 	pos          int
+	span         []float64 // follow-up horizon: the current worker's gaps
+	spanPos      int
+}
+
+// newWorker starts a fresh healthy worker (follow-up horizon): the serial
+// state starts from its stationary distribution.
+func (s *stream) newWorker() {
+	s.colour.Reset()
+	if s.whit != nil {
+		s.whit.Reset()
+	}
 }
 
 func (s *stream) gap() float64 {
@@ -313,6 +374,9 @@ func (s *stream) gap() float64 {
 }
 
 func (s *stream) Next() (float64, float64) {
+	if s.p.spans != nil {
+		return s.nextFollowUp()
+	}
 	var gap, u float64
 	if s.p.c.Method == Bootstrap {
 		if s.blk == nil || s.pos == len(s.blk.u) {
@@ -338,6 +402,44 @@ func (s *stream) Next() (float64, float64) {
 		return gap, s.whit.Whiten(gap, z)
 	}
 	return gap, z
+}
+
+// nextFollowUp is Next for the follow-up horizon: workers one after the
+// other, each with the exams of a reference worker (method normal: its gaps
+// with fresh Gaussian values; method bootstrap: a whole reference worker's
+// innovations and gaps). A worker's first exam is marked by a negative gap.
+func (s *stream) nextFollowUp() (float64, float64) {
+	var gap, u float64
+	if s.p.c.Method == Bootstrap {
+		if s.blk == nil || s.pos == len(s.blk.u) {
+			s.blk = &s.p.blocks[s.rng.IntN(len(s.p.blocks))]
+			s.pos = 0
+		}
+		gap, u = s.blk.gap[s.pos], s.blk.u[s.pos]
+		s.pos++
+	} else {
+		if s.span == nil || s.spanPos == len(s.span) {
+			s.span = s.p.spans[s.rng.IntN(len(s.p.spans))]
+			s.spanPos = 0
+		}
+		gap, u = s.span[s.spanPos], s.rng.NormFloat64()
+		s.spanPos++
+	}
+	first := (s.p.c.Method == Bootstrap && s.pos == 1) || (s.p.c.Method != Bootstrap && s.spanPos == 1)
+	if first {
+		s.newWorker()
+		gap = 0
+	}
+	z := s.colour.Colour(gap, u)
+	if s.whit != nil {
+		u = s.whit.Whiten(gap, z)
+	} else {
+		u = z
+	}
+	if first {
+		return -1, u
+	}
+	return gap, u
 }
 
 func (p *prepared) streams(shift, onset float64) limit.StreamFunc {
@@ -392,10 +494,10 @@ func Limit(c Calibration, target float64) (LimitResult, error) {
 	hint := 0.0
 	if h, err := limit.Solve(spec, target/p.meanGap, p.meanGap); err == nil {
 		hint = h
-		if p.iid() && exactGap {
+		if p.iid() && exactGap && p.spans == nil {
 			return LimitResult{H: h, ATS: target, MeanGap: p.meanGap, Exact: true}, nil
 		}
-	} else if p.iid() && exactGap {
+	} else if p.iid() && exactGap && p.spans == nil {
 		return LimitResult{}, err
 	}
 	cal, err := p.mc().Calibrate(spec, target, p.streams(0, 0), hint)
@@ -430,6 +532,7 @@ func Delay(c Calibration, h, shift, onset float64) (DelayResult, error) {
 	if math.IsNaN(shift) || math.IsInf(shift, 0) {
 		return DelayResult{}, fmt.Errorf("monitor: the shift must be a finite number of SDs, got %v", shift)
 	}
+	p.spans = nil // delays follow one worker (HorizonLong)
 	r, err := p.mc().Delay(c.Settings.Chart, h, p.streams(shift, onset), onset)
 	if err != nil {
 		return DelayResult{}, err

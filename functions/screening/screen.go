@@ -17,9 +17,10 @@ import (
 // Serial handling of a worker's correlated readings.
 const (
 	// SerialDirect charts z itself; limits are calibrated on correlated
-	// sequences from the fitted serial model (the default, see package monitor).
+	// sequences from the fitted serial model.
 	SerialDirect = "direct"
-	// SerialWhiten charts the Kalman innovations of z.
+	// SerialWhiten charts the Kalman innovations of z: each reading against
+	// the worker's own predicted level (the default, see package monitor).
 	SerialWhiten = "whiten"
 	// SerialOff ignores serial correlation: z is treated as independent.
 	// Limits are then too tight for correlated markers; offered for
@@ -30,7 +31,7 @@ const (
 // Settings choose the chart and how serial correlation is handled.
 type Settings struct {
 	Chart chart.Spec
-	// Serial is SerialDirect (also "" or "on"), SerialWhiten or SerialOff.
+	// Serial is SerialWhiten (also "" or "on"), SerialDirect or SerialOff.
 	Serial string
 	// Extrapolate allows exams at ages outside the reference range; the
 	// curves are then held at their ends (see refcurve). Without it such an
@@ -38,24 +39,24 @@ type Settings struct {
 	Extrapolate bool
 }
 
-// DefaultSettings are an upward CUSUM with allowance 0.5 on z, with the
-// limit carrying the serial correlation.
+// DefaultSettings are an upward CUSUM with allowance 0.5 on the Kalman
+// innovations of z (serial whiten).
 func DefaultSettings() Settings {
-	return Settings{Chart: chart.DefaultSpec(), Serial: SerialDirect}
+	return Settings{Chart: chart.DefaultSpec(), Serial: SerialWhiten}
 }
 
 // monitorSettings turns Settings into the monitor's settings for model m.
 func (m *Model) monitorSettings(s Settings) (monitor.Settings, error) {
 	out := monitor.Settings{Chart: s.Chart, Serial: m.Serial, Mode: monitor.Direct}
 	switch s.Serial {
-	case "", "on", SerialDirect:
-	case SerialWhiten:
+	case SerialDirect:
+	case "", "on", SerialWhiten:
 		out.Mode = monitor.Whiten
 	case SerialOff:
 		out.Serial = serial.Params{}
 	default:
 		return out, fmt.Errorf("serial must be %s, %s or %s (on means %s), not %q",
-			SerialDirect, SerialWhiten, SerialOff, SerialDirect, s.Serial)
+			SerialWhiten, SerialDirect, SerialOff, SerialWhiten, s.Serial)
 	}
 	if err := out.Validate(); err != nil {
 		return out, err
@@ -238,6 +239,12 @@ type LimitOptions struct {
 	Paths int
 	// Progress, if not nil, reports Monte Carlo progress.
 	Progress func(done, total int)
+	// Horizon is what the target counts (see monitor.Calibration.Horizon):
+	// "" or monitor.HorizonFollowUp, the default, means worker-years of
+	// exams per false signal across workers followed as long as the
+	// reference workers were; monitor.HorizonLong is the textbook average
+	// time to a false signal of one worker with an unending exam history.
+	Horizon monitor.Horizon
 }
 
 // DefaultSeed is the seed of Monte Carlo limits when none is given, so the
@@ -256,13 +263,16 @@ func (m *Model) Calibration(set Settings, o LimitOptions) (monitor.Calibration, 
 	if o.Seed == 0 {
 		o.Seed = DefaultSeed
 	}
+	if o.Horizon == "" {
+		o.Horizon = monitor.HorizonFollowUp
+	}
 	ref := make([]serial.Series, len(m.Sample))
 	for i, s := range m.Sample {
 		ref[i] = serial.Series{Time: s.Time, Z: s.Z}
 	}
 	return monitor.Calibration{
 		Settings: ms, Method: o.Method, Gap: o.Gap, Reference: ref,
-		Seed: o.Seed, Paths: o.Paths, Progress: o.Progress,
+		Seed: o.Seed, Paths: o.Paths, Progress: o.Progress, Horizon: o.Horizon,
 	}, nil
 }
 
