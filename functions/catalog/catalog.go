@@ -21,7 +21,7 @@ const caution = " A signal is a prompt for review by a licensed clinician under 
 var chartOptions = []string{
 	cell.OptionTarget, cell.OptionLimit, cell.OptionChart, cell.OptionSide, cell.OptionAllowance,
 	cell.OptionLambda, cell.OptionUnit, cell.OptionHeadstart, cell.OptionRestart, cell.OptionSerial,
-	cell.OptionMethod, cell.OptionGap, cell.OptionSeed, cell.OptionReps, cell.OptionExtrapolate,
+	cell.OptionMethod, cell.OptionGap, cell.OptionSeed, cell.OptionReps, cell.OptionExtrapolate, cell.OptionHorizon,
 }
 
 var lookupOptions = []string{cell.OptionExtrapolate}
@@ -463,10 +463,11 @@ func chartSettings(fn string, o cell.Options) (screening.Settings, screening.Lim
 		return s, screening.LimitOptions{}, cell.NumError("%s: reps must be a whole number from 1 to 1,000,000 (0 or absent: the default), not %s", fn, cell.FormatNumber(reps))
 	}
 	lo := screening.LimitOptions{
-		Method: monitor.Method(o.Text(cell.OptionMethod, string(monitor.Normal))),
-		Gap:    o.Number(cell.OptionGap, 0),
-		Seed:   uint64(seed),
-		Paths:  int(reps),
+		Method:  monitor.Method(o.Text(cell.OptionMethod, string(monitor.Normal))),
+		Gap:     o.Number(cell.OptionGap, 0),
+		Horizon: monitor.Horizon(o.Text(cell.OptionHorizon, string(monitor.HorizonFollowUp))),
+		Seed:    uint64(seed),
+		Paths:   int(reps),
 	}
 	if lo.Gap < 0 {
 		return s, lo, cell.NumError("%s: the gap option must be a positive number of years", fn)
@@ -476,7 +477,7 @@ func chartSettings(fn string, o cell.Options) (screening.Settings, screening.Lim
 
 // settingsKey is a canonical text of the options, for cache keys.
 func settingsKey(s screening.Settings, lo screening.LimitOptions) string {
-	return fmt.Sprintf("%+v|%+v|%s|%g|%d|%d", s.Chart, s.Serial, lo.Method, lo.Gap, lo.Seed, lo.Paths)
+	return fmt.Sprintf("%+v|%+v|%s|%g|%d|%d|%s", s.Chart, s.Serial, lo.Method, lo.Gap, lo.Seed, lo.Paths, lo.Horizon)
 }
 
 // resolveLimit returns the limit from the options: given directly, or

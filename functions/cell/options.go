@@ -40,6 +40,7 @@ const (
 	OptionBandwidth   = "bandwidth"
 	OptionMinWorkers  = "minworkers"
 	OptionOnset       = "onset"
+	OptionHorizon     = "horizon"
 )
 
 // Option declares one named option: its value type, allowed choices and help.
@@ -85,6 +86,7 @@ var sharedOptions = []Option{
 	{Name: OptionBandwidth, Type: OptNumber, Help: "smoothing bandwidth of the reference curves, in years; 0 or absent: chosen by cross-validation"},
 	{Name: OptionMinWorkers, Type: OptNumber, Help: "fewest reference workers a group needs to get its own curves"},
 	{Name: OptionOnset, Type: OptNumber, Help: "years after the first exam at which a sustained shift starts"},
+	{Name: OptionHorizon, Type: OptChoice, Choices: []string{"followup", "long"}, Help: "what the target counts: followup (the default with a model: worker-years of exams per false signal, workers followed as long as the reference workers) or long (one worker with an unending exam history)"},
 }
 
 // LookupOption returns the shared declaration of an option name
