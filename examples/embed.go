@@ -29,6 +29,7 @@ func WorkforceCSV() []byte { return mustRead("workforce.csv") }
 
 // TruthCSV returns a copy of data/truth.csv: one row per workforce worker,
 // columns worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,
-// slope_sbp,slope_fev1 (affected 1/0; onset age in years and slope in SD
-// per year, empty when not affected).
+// slope_sbp,slope_fev1,plateau_sbp,plateau_fev1 (affected 1/0; onset age in
+// years, the rate the drift grows at in SD per year and the sustained shift
+// it grows to in SD; empty when not affected).
 func TruthCSV() []byte { return mustRead("truth.csv") }

@@ -89,5 +89,5 @@ func ExampleWorkforceCSV() {
 	fmt.Printf("first exam: worker %s (%s crew) at age %.2f: SBP %.0f mmHg, FEV1 %.2f L\n",
 		exams[0].Worker, exams[0].Group, exams[0].Age, exams[0].SBP, exams[0].FEV1)
 	// Output:
-	// first exam: worker W00001 (tower crew) at age 23.48: SBP 129 mmHg, FEV1 4.32 L
+	// first exam: worker W00001 (tower crew) at age 23.48: SBP 116 mmHg, FEV1 4.61 L
 }

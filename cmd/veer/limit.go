@@ -74,7 +74,7 @@ func (c *chartFlags) limitOptions(progress func(done, total int)) screening.Limi
 }
 
 // calibrationWithoutModel is used when no model is given: i.i.d. N(0,1)
-// values at a fixed gap, method normal only.
+// values at a fixed gap, method normal only, the textbook (long) horizon.
 func (c *chartFlags) calibrationWithoutModel(s screening.Settings) (monitor.Calibration, error) {
 	if c.gap <= 0 {
 		return monitor.Calibration{}, usagef("without --model, give the planned years between exams with --gap")
@@ -82,9 +82,8 @@ func (c *chartFlags) calibrationWithoutModel(s screening.Settings) (monitor.Cali
 	if c.method != string(monitor.Normal) {
 		return monitor.Calibration{}, usagef("--method bootstrap needs --model (it resamples the reference workers)")
 	}
-	if c.serial == screening.SerialWhiten {
-		return monitor.Calibration{}, usagef("--serial whiten needs --model (it uses the fitted serial correlation)")
-	}
+	// Without a model no serial correlation is known: whiten and direct
+	// both chart independent N(0,1) scores.
 	return monitor.Calibration{
 		Settings: monitor.Settings{Chart: s.Chart, Mode: monitor.Direct, Serial: serial.Params{}},
 		Method:   monitor.Normal, Gap: c.gap, Seed: c.seed, Paths: c.paths,

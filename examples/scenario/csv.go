@@ -15,7 +15,7 @@ func ExamHeader() []string { return []string{"worker", "group", "age", "sbp", "f
 
 // TruthHeader returns the header of truth.csv.
 func TruthHeader() []string {
-	return []string{"worker", "group", "affected_sbp", "onset_sbp", "affected_fev1", "onset_fev1", "slope_sbp", "slope_fev1"}
+	return []string{"worker", "group", "affected_sbp", "onset_sbp", "affected_fev1", "onset_fev1", "slope_sbp", "slope_fev1", "plateau_sbp", "plateau_fev1"}
 }
 
 // ReferenceCSV encodes the reference cohort with EncodeExams.
@@ -48,28 +48,28 @@ func EncodeExams(exams []Exam) []byte {
 }
 
 // EncodeTruth writes the truth as CSV with the header
-// worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,slope_sbp,slope_fev1.
-// affected_* are 1 or 0; onset ages have 2 decimals and slopes (SD per year)
-// 3 decimals, both left empty for a marker in which the worker is not
-// affected.
+// worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,slope_sbp,slope_fev1,plateau_sbp,plateau_fev1.
+// affected_* are 1 or 0; onset ages have 2 decimals, slopes (SD per year)
+// and plateaus (SD) 3 decimals, all left empty for a marker in which the
+// worker is not affected.
 func EncodeTruth(truth []Truth) []byte {
 	var buf bytes.Buffer
 	w := csv.NewWriter(&buf)
 	_ = w.Write(TruthHeader())
 	for _, t := range truth {
-		aS, oS, sS := onsetFields(t.SBP)
-		aF, oF, sF := onsetFields(t.FEV1)
-		_ = w.Write([]string{t.Worker, t.Group, aS, oS, aF, oF, sS, sF})
+		aS, oS, sS, pS := onsetFields(t.SBP)
+		aF, oF, sF, pF := onsetFields(t.FEV1)
+		_ = w.Write([]string{t.Worker, t.Group, aS, oS, aF, oF, sS, sF, pS, pF})
 	}
 	w.Flush()
 	return buf.Bytes()
 }
 
-func onsetFields(o Onset) (affected, age, slope string) {
+func onsetFields(o Onset) (affected, age, slope, plateau string) {
 	if !o.Affected {
-		return "0", "", ""
+		return "0", "", "", ""
 	}
-	return "1", strconv.FormatFloat(o.Age, 'f', 2, 64), strconv.FormatFloat(o.Slope, 'f', 3, 64)
+	return "1", strconv.FormatFloat(o.Age, 'f', 2, 64), strconv.FormatFloat(o.Slope, 'f', 3, 64), strconv.FormatFloat(o.Plateau, 'f', 3, 64)
 }
 
 // ParseExams reads a CSV file with the columns worker, group, age, sbp and
@@ -135,11 +135,11 @@ func ParseTruth(data []byte) ([]Truth, error) {
 }
 
 func onset(r []string, col map[string]int, line int, marker string) (Onset, error) {
-	aCol, oCol, sCol := "affected_"+marker, "onset_"+marker, "slope_"+marker
+	aCol, oCol, sCol, pCol := "affected_"+marker, "onset_"+marker, "slope_"+marker, "plateau_"+marker
 	switch a := strings.TrimSpace(r[col[aCol]]); a {
 	case "0":
-		if r[col[oCol]] != "" || r[col[sCol]] != "" {
-			return Onset{}, fmt.Errorf("row %d: %s is 0, so %s and %s must be empty", line, aCol, oCol, sCol)
+		if r[col[oCol]] != "" || r[col[sCol]] != "" || r[col[pCol]] != "" {
+			return Onset{}, fmt.Errorf("row %d: %s is 0, so %s, %s and %s must be empty", line, aCol, oCol, sCol, pCol)
 		}
 		return Onset{}, nil
 	case "1":
@@ -151,7 +151,14 @@ func onset(r []string, col map[string]int, line int, marker string) (Onset, erro
 		if err != nil {
 			return Onset{}, err
 		}
-		return Onset{Affected: true, Age: age, Slope: slope}, nil
+		plateau, err := number(r[col[pCol]], line, pCol, "a sustained shift in SD from -100 to 100", -100, 100)
+		if err != nil {
+			return Onset{}, err
+		}
+		if slope*plateau < 0 {
+			return Onset{}, fmt.Errorf("row %d: %s (%s) and %s (%s) must have the same sign", line, sCol, r[col[sCol]], pCol, r[col[pCol]])
+		}
+		return Onset{Affected: true, Age: age, Slope: slope, Plateau: plateau}, nil
 	default:
 		return Onset{}, fmt.Errorf("row %d, column %q: expected 1 (affected) or 0 (not affected), got %q", line, aCol, a)
 	}

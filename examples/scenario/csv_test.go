@@ -25,11 +25,11 @@ func TestEncodeExamsFormat(t *testing.T) {
 func TestEncodeTruthFormat(t *testing.T) {
 	truth := []Truth{
 		{Worker: "W00001", Group: Tower},
-		{Worker: "W00002", Group: Workshop, SBP: Onset{Affected: true, Age: 41.256, Slope: 0.3}, FEV1: Onset{Affected: true, Age: 39, Slope: -0.25}},
+		{Worker: "W00002", Group: Workshop, SBP: Onset{Affected: true, Age: 41.256, Slope: 0.3, Plateau: 1.2345}, FEV1: Onset{Affected: true, Age: 39, Slope: -0.25, Plateau: -1}},
 	}
-	want := "worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,slope_sbp,slope_fev1\n" +
-		"W00001,tower,0,,0,,,\n" +
-		"W00002,workshop,1,41.26,1,39.00,0.300,-0.250\n"
+	want := "worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,slope_sbp,slope_fev1,plateau_sbp,plateau_fev1\n" +
+		"W00001,tower,0,,0,,,,,\n" +
+		"W00002,workshop,1,41.26,1,39.00,0.300,-0.250,1.234,-1.000\n"
 	if got := string(EncodeTruth(truth)); got != want {
 		t.Errorf("EncodeTruth:\n%s\nwant:\n%s", got, want)
 	}
@@ -67,7 +67,7 @@ func TestRoundTrip(t *testing.T) {
 
 func TestParseErrors(t *testing.T) {
 	const head = "worker,group,age,sbp,fev1\n"
-	const thead = "worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,slope_sbp,slope_fev1\n"
+	const thead = "worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,slope_sbp,slope_fev1,plateau_sbp,plateau_fev1\n"
 	tests := []struct {
 		name  string
 		truth bool
@@ -82,10 +82,14 @@ func TestParseErrors(t *testing.T) {
 		{"fev1 zero", false, head + "W1,tower,30,120,0\n", `row 2, column "fev1"`},
 		{"empty worker", false, head + " ,tower,30,120,4\n", `row 2, column "worker": expected a name`},
 		{"short row", false, head + "W1,tower,30\n", "cannot read the rows"},
-		{"bad affected", true, thead + "W1,tower,yes,,0,,,\n", `column "affected_sbp": expected 1 (affected) or 0`},
-		{"onset without affected", true, thead + "W1,tower,0,40,0,,,\n", "affected_sbp is 0, so onset_sbp and slope_sbp must be empty"},
-		{"affected without onset", true, thead + "W1,tower,0,,1,,,\n", `row 2, column "onset_fev1"`},
-		{"bad slope", true, thead + "W1,tower,1,40.00,0,,fast,\n", `column "slope_sbp"`},
+		{"truth without plateau", true, "worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,slope_sbp,slope_fev1\nW1,tower,0,,0,,,\n", `no column "plateau_sbp"`},
+		{"bad affected", true, thead + "W1,tower,yes,,0,,,,,\n", `column "affected_sbp": expected 1 (affected) or 0`},
+		{"onset without affected", true, thead + "W1,tower,0,40,0,,,,,\n", "affected_sbp is 0, so onset_sbp, slope_sbp and plateau_sbp must be empty"},
+		{"plateau without affected", true, thead + "W1,tower,0,,0,,,,,-1\n", "affected_fev1 is 0, so onset_fev1, slope_fev1 and plateau_fev1 must be empty"},
+		{"affected without onset", true, thead + "W1,tower,0,,1,,,,,\n", `row 2, column "onset_fev1"`},
+		{"bad slope", true, thead + "W1,tower,1,40.00,0,,fast,,1,\n", `column "slope_sbp"`},
+		{"missing plateau", true, thead + "W1,tower,1,40.00,0,,0.5,,,\n", `row 2, column "plateau_sbp": expected a sustained shift in SD`},
+		{"signs differ", true, thead + "W1,tower,0,,1,40.00,,-0.5,,1.2\n", "row 2: slope_fev1 (-0.5) and plateau_fev1 (1.2) must have the same sign"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -127,8 +131,10 @@ func FuzzParseExams(f *testing.F) {
 
 // FuzzParseTruth is FuzzParseExams for truth files.
 func FuzzParseTruth(f *testing.F) {
-	f.Add([]byte("worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,slope_sbp,slope_fev1\nW1,tower,1,41.26,0,,0.300,\n"))
-	f.Add([]byte("worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,slope_sbp,slope_fev1\nW1,tower,0,,1,39,,-0.25\n"))
+	const head = "worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,slope_sbp,slope_fev1,plateau_sbp,plateau_fev1\n"
+	f.Add([]byte(head + "W1,tower,1,41.26,0,,0.300,,1.200,\n"))
+	f.Add([]byte(head + "W1,tower,0,,1,39,,-0.25,,-1.4\n"))
+	f.Add([]byte(head + "W1,tower,1,40,0,,0.0004,,0.0004,\n"))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		truth, err := ParseTruth(data)
 		if err != nil {

@@ -53,23 +53,33 @@
 // the exam gaps d (s_j = φ^d s_{j-1} + √(1-φ^{2d}) z_j, as in Jones &
 // Boadi-Boateng 1991, "Unequally spaced longitudinal data with AR(1) serial
 // correlation", Biometrics 47:161-175), w independent N(0,1) measurement
-// noise. Defaults: φ = 0.6 per year, c = 0.6. The two markers' innovations
-// z and noises w are correlated with ρ = -0.2, so corr(e₁(t), e₂(t)) = ρ.
+// noise. Defaults: φ = 0.95 per year for both markers, c = 0.70 for SBP and
+// c = 0.85 for FEV1, so two readings of a healthy worker one year apart
+// correlate 0.67 (SBP) and 0.81 (FEV1), ten years apart 0.42 and 0.51: each
+// worker has a stable personal level that wanders slowly, and single
+// readings scatter around it — more for blood pressure (visit-to-visit
+// variability) than for spirometry. The two markers' innovations z and
+// noises w are correlated with ρ = -0.2, so corr(e₁(t), e₂(t)) =
+// ρ·(√(c₁c₂) + √((1-c₁)(1-c₂))) ≈ 0.98ρ.
 //
-// Drift of an affected worker with onset age T₀ and slope β (SD per year):
+// Drift of an affected worker with onset age T₀, rate β (SD per year) and
+// plateau A (SD, same sign as β):
 //
-//	δ(t) = 0                              t <= T₀
-//	δ(t) = clamp(β·(t - T₀), -3, 3)       t >  T₀
+//	δ(t) = 0                                   t <= T₀
+//	δ(t) = sign(A)·min(|β|·(t - T₀), |A|)      t >  T₀
 //
-// with β ~ U(0.25, 0.60) SD/yr upward for SBP and β ~ -U(0.20, 0.50) SD/yr
-// downward for FEV1 (on the ln scale). Each workforce worker is affected in
-// each marker independently with probability Config.AffectedShare (default
-// 0.15); T₀ = first + U(0.15, 0.60)·(last - first) of that worker's exam
-// ages, so every onset falls inside the worker's follow-up.
+// a sustained shift that grows for |A/β| years and then stays. |A| ~
+// U(1.0, 1.5) SD and the growth lasts U(2, 4) years (so |β| is 0.25 to
+// 0.75 SD per year); SBP drifts upward, FEV1 (on the ln scale) downward.
+// Each workforce worker is affected in each marker independently with
+// probability Config.AffectedShare (default 0.15); T₀ = first + U(0.2,
+// 0.5)·(last - first) of that worker's exam ages, so every onset falls
+// inside the follow-up, after some healthy exams and with at least half of
+// the follow-up still to come.
 //
 // Exam schedule, per worker: group "tower" with probability 0.55 (reference)
 // or 0.60 (workforce); first exam at age U(20, 57); planned follow-up
-// U(3, 12) years, cut at age 65; gaps between exams drawn from a mixture —
+// U(5, 15) years, cut at age 65; gaps between exams drawn from a mixture —
 // 75% periodic U(0.8, 1.5) yr, 15% missed visits U(2, 4) yr, 10% ad-hoc
 // visits U(0.1, 0.5) yr (mean gap ≈ 1.34 yr); at least 3 exams per worker.
 // Ages are rounded to 0.01 yr before the readings are computed.

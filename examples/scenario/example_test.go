@@ -17,23 +17,26 @@ func ExampleGenerate() {
 	fmt.Printf("%s\n%s", s.WorkforceCSV(), s.TruthCSV())
 	// Output:
 	// worker,group,age,sbp,fev1
-	// W00001,tower,23.48,129,4.32
-	// W00001,tower,24.45,121,3.46
-	// W00001,tower,25.36,114,4.21
-	// W00002,tower,26.32,96,4.11
-	// W00002,tower,27.15,128,4.08
-	// W00002,tower,27.64,126,3.56
-	// W00002,tower,28.65,114,4.13
-	// W00002,tower,29.84,108,4.43
-	// W00002,tower,31.06,122,3.88
-	// W00002,tower,32.04,103,4.01
-	// W00002,tower,33.53,115,3.32
-	// W00002,tower,34.89,106,3.03
-	// W00002,tower,35.74,99,2.67
+	// W00001,tower,23.48,116,4.61
+	// W00001,tower,24.45,111,4.69
+	// W00001,tower,25.36,114,4.46
+	// W00001,tower,27.98,123,4.45
+	// W00001,tower,28.47,114,4.95
+	// W00002,tower,26.32,97,4.06
+	// W00002,tower,27.15,118,4.04
+	// W00002,tower,27.64,119,3.68
+	// W00002,tower,28.65,111,3.91
+	// W00002,tower,29.84,102,4.16
+	// W00002,tower,31.06,113,3.95
+	// W00002,tower,32.04,102,4.15
+	// W00002,tower,33.53,110,3.83
+	// W00002,tower,34.89,108,3.84
+	// W00002,tower,35.74,100,3.54
+	// W00002,tower,37.20,108,4.10
 	//
-	// worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,slope_sbp,slope_fev1
-	// W00001,tower,0,,0,,,
-	// W00002,tower,0,,1,28.55,,-0.356
+	// worker,group,affected_sbp,onset_sbp,affected_fev1,onset_fev1,slope_sbp,slope_fev1,plateau_sbp,plateau_fev1
+	// W00001,tower,0,,0,,,,,
+	// W00002,tower,0,,0,,,,,
 }
 
 func ExampleCurve() {
@@ -48,12 +51,14 @@ func ExampleCurve() {
 }
 
 func ExampleOnset_Shift() {
-	o := scenario.Onset{Affected: true, Age: 40, Slope: 0.5}
-	for _, age := range []float64{39, 42, 50} {
-		fmt.Printf("shift at %v: %.1f SD\n", age, o.Shift(age))
+	// Onset at 40, growing 0.5 SD a year up to a sustained shift of 1.25 SD.
+	o := scenario.Onset{Affected: true, Age: 40, Slope: 0.5, Plateau: 1.25}
+	for _, age := range []float64{39, 41, 42, 50} {
+		fmt.Printf("shift at %v: %.2f SD\n", age, o.Shift(age))
 	}
 	// Output:
-	// shift at 39: 0.0 SD
-	// shift at 42: 1.0 SD
-	// shift at 50: 3.0 SD
+	// shift at 39: 0.00 SD
+	// shift at 41: 0.50 SD
+	// shift at 42: 1.00 SD
+	// shift at 50: 1.25 SD
 }

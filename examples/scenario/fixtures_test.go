@@ -4,10 +4,13 @@ import (
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
 	"testing"
+
+	"veer/functions/screening"
 )
 
 // fixtures mirrors testdata/fixtures.json, written by the committed script
@@ -51,7 +54,36 @@ type fixtures struct {
 		Affected         int
 		OnsetsInsideSpan int     `json:"onsets_inside_span"`
 		MeanZLate        float64 `json:"mean_z_2y_after_onset"`
+		MeanResid        float64 `json:"mean_z_minus_drift_after_onset"`
+		SEMeanResid      float64 `json:"se_mean_z_minus_drift_after_onset"`
+		PlateauMin       float64 `json:"plateau_min"`
+		PlateauMax       float64 `json:"plateau_max"`
+		RampMin          float64 `json:"ramp_min"`
+		RampMax          float64 `json:"ramp_max"`
 	} `json:"truth"`
+	Cutoff struct {
+		Z    float64
+		SBP  cutoffFixture `json:"sbp"`
+		FEV1 cutoffFixture `json:"fev1"`
+	} `json:"cutoff"`
+}
+
+// cutoffFixture is testdata/make_fixtures.py's scoring of the fixed cut-off
+// rule on the committed workforce, with its Kaplan–Meier curve from
+// statsmodels' SurvfuncRight.
+type cutoffFixture struct {
+	Workers, Cases, Flagged int
+	TrueFlagged             int `json:"true_flagged"`
+	Early, Detected         int
+	FalseSignals            int                `json:"false_signals"`
+	YearsAtRisk             float64            `json:"years_at_risk"`
+	FalsePer100             float64            `json:"false_per_100"`
+	MedianDelay             float64            `json:"median_delay_detected"`
+	KMMedian                float64            `json:"km_median"` // null (read as 0) when not reached
+	KMReached               bool               `json:"km_median_reached"`
+	KMDetectedBy            map[string]float64 `json:"km_detected_by"`
+	KMTimes                 []float64          `json:"km_times"`
+	KMSurv                  []float64          `json:"km_surv"`
 }
 
 func markerNamed(t *testing.T, name string) Marker {
@@ -156,8 +188,8 @@ func TestCommittedDataOutsideCheck(t *testing.T) {
 		if !ok {
 			t.Fatalf("fixture has no serial fit for %v", m)
 		}
-		if math.Abs(py.Phi-cfg.Phi) > 4*py.SEPhi || math.Abs(py.C-cfg.Share) > 4*py.SEC {
-			t.Errorf("%v: scipy fit φ = %.3f ± %.3f, c = %.3f ± %.3f; generated with φ = %v, c = %v", m, py.Phi, py.SEPhi, py.C, py.SEC, cfg.Phi, cfg.Share)
+		if math.Abs(py.Phi-cfg.Phi) > 4*py.SEPhi || math.Abs(py.C-cfg.Share[m]) > 4*py.SEC {
+			t.Errorf("%v: scipy fit φ = %.3f ± %.3f, c = %.3f ± %.3f; generated with φ = %v, c = %v", m, py.Phi, py.SEPhi, py.C, py.SEC, cfg.Phi, cfg.Share[m])
 		}
 		d, p := lagPairs(ex, m)
 		if len(d) != py.Pairs {
@@ -223,5 +255,96 @@ func TestCommittedDataOutsideCheck(t *testing.T) {
 		if n != py.Affected || py.OnsetsInsideSpan != py.Affected {
 			t.Errorf("%v: Go counts %d affected, Python %d with %d onsets inside the exam span", m, n, py.Affected, py.OnsetsInsideSpan)
 		}
+		// The drift re-implemented in Python explains the readings after
+		// onset, and plateaus and growth times lie in the documented ranges
+		// (growth time |A/β| may miss by 0.2% because β is rounded).
+		if math.Abs(py.MeanResid) > 4*py.SEMeanResid {
+			t.Errorf("%v: after onset, Python's mean of z − drift is %.3f ± %.3f, want 0 within 4 SE", m, py.MeanResid, py.SEMeanResid)
+		}
+		if py.PlateauMin < plateauMin || py.PlateauMax > plateauMax || py.RampMin < rampMin*0.998 || py.RampMax > rampMax*1.002 {
+			t.Errorf("%v: Python finds plateaus %v-%v SD and growth times %v-%v years; documented %v-%v and %v-%v",
+				m, py.PlateauMin, py.PlateauMax, py.RampMin, py.RampMax, plateauMin, plateauMax, rampMin, rampMax)
+		}
+	}
+}
+
+// TestCutoffRuleMatchesPython scores the fixed cut-off rule ("any reading
+// beyond the reference 97.5th centile", the 2.5th for FEV1) on the committed
+// workforce with screening.Evaluate, using Go's Standardise under the
+// documented curves, and compares every figure with the independent scoring
+// in testdata/make_fixtures.py, whose Kaplan–Meier curve comes from
+// statsmodels (SurvfuncRight).
+func TestCutoffRuleMatchesPython(t *testing.T) {
+	fx, files := loadCommitted(t)
+	wf, err := ParseExams(files["workforce.csv"])
+	if err != nil {
+		t.Fatal(err)
+	}
+	truth, err := ParseTruth(files["truth.csv"])
+	if err != nil {
+		t.Fatal(err)
+	}
+	// 97.5th centile of N(0, 1), common practice; scipy.stats.norm.ppf(0.975)
+	// in the fixture.
+	const zcut = 1.959963984540054
+	if math.Abs(fx.Cutoff.Z-zcut) > 1e-12 {
+		t.Fatalf("fixture cut-off z %v, want %v", fx.Cutoff.Z, zcut)
+	}
+	ex := standardiseAll(t, wf)
+	exams := make([]screening.Exam, len(ex))
+	for i, e := range ex {
+		exams[i] = screening.Exam{Worker: e.Worker, Group: e.Group, Time: e.Age}
+	}
+	for _, tc := range []struct {
+		m  Marker
+		py cutoffFixture
+	}{{SBP, fx.Cutoff.SBP}, {FEV1, fx.Cutoff.FEV1}} {
+		t.Run(tc.m.String(), func(t *testing.T) {
+			sig := make([]bool, len(ex))
+			for i, e := range ex {
+				sig[i] = (tc.m == SBP && e.z[SBP] > zcut) || (tc.m == FEV1 && e.z[FEV1] < -zcut)
+			}
+			lab := map[string]screening.Truth{}
+			for _, tr := range truth {
+				o := tr.SBP
+				if tc.m == FEV1 {
+					o = tr.FEV1
+				}
+				lab[tr.Worker] = screening.Truth{Affected: o.Affected, Onset: o.Age}
+			}
+			ev := screening.Evaluate(exams, sig, lab)
+			py := tc.py
+			t.Logf("cut-off rule on the committed %v: %d of %d cases detected, %d early; median %.2f years (detected), KM median %.2f; %.2f false signals per 100 worker-years",
+				tc.m, ev.Detected, ev.Cases, ev.EarlySignals, ev.MedianDelay, ev.MedianDelayKM, ev.FalsePer100)
+			if ev.Workers != py.Workers || ev.Cases != py.Cases || ev.Flagged != py.Flagged || ev.TrueFlagged != py.TrueFlagged ||
+				ev.EarlySignals != py.Early || ev.Detected != py.Detected || ev.FalseSignals != py.FalseSignals {
+				t.Errorf("counts: Go %+v; Python %+v", ev, py)
+			}
+			close := func(name string, got, want float64) {
+				if !(math.Abs(got-want) <= 1e-9*math.Max(1, math.Abs(want))) && got != want {
+					t.Errorf("%s: Go %v, Python %v", name, got, want)
+				}
+			}
+			close("years at risk", ev.YearsAtRisk, py.YearsAtRisk)
+			close("false signals per 100 worker-years", ev.FalsePer100, py.FalsePer100)
+			close("median delay of detected cases", ev.MedianDelay, py.MedianDelay)
+			if !py.KMReached {
+				py.KMMedian = math.Inf(1)
+			}
+			close("Kaplan–Meier median", ev.MedianDelayKM, py.KMMedian)
+			for y, want := range py.KMDetectedBy {
+				var years float64
+				if _, err := fmt.Sscan(y, &years); err != nil {
+					t.Fatal(err)
+				}
+				close("detected within "+y+" years", ev.DetectedBy(years), want)
+			}
+			if len(py.KMTimes) == 0 || len(py.KMTimes) != len(py.KMSurv) {
+				t.Fatalf("fixture has %d Kaplan–Meier times and %d probabilities", len(py.KMTimes), len(py.KMSurv))
+			}
+			for i, tm := range py.KMTimes {
+				close(fmt.Sprintf("1 − S(%v)", tm), ev.DetectedBy(tm), 1-py.KMSurv[i])
+			}
+		})
 	}
 }

@@ -24,25 +24,28 @@ type Config struct {
 	AffectedShare float64
 	// Phi is the AR(1) correlation per year of the serial part, 0 < Phi < 1.
 	Phi float64
-	// Share is c, the share of the residual variance held by the serial
-	// part, 0 <= Share <= 1; the rest is measurement noise.
-	Share float64
-	// CrossCorr is the correlation of the SBP and FEV1 residuals at the same
-	// exam, -1 < CrossCorr < 1.
+	// Share is c per marker, indexed by Marker (Share[SBP], Share[FEV1]):
+	// the share of the residual variance held by the serial part,
+	// 0 <= c <= 1; the rest is measurement noise.
+	Share [2]float64
+	// CrossCorr is ρ, the correlation of the two markers' AR innovations and
+	// of their measurement noises at the same exam, -1 < CrossCorr < 1; the
+	// residuals then correlate ρ·(√(c₁c₂) + √((1-c₁)(1-c₂))).
 	CrossCorr float64
 }
 
 // DefaultConfig returns the configuration of the committed demo files:
 // 1,500 reference workers, 800 workforce workers, 15% affected per marker,
-// φ = 0.6 per year, c = 0.6, ρ = -0.2 and DefaultSeed.
+// φ = 0.95 per year, c = 0.70 (SBP) and 0.85 (FEV1), ρ = -0.2 and
+// DefaultSeed. The package comment gives the reasons for these values.
 func DefaultConfig() Config {
 	return Config{
 		Seed:             DefaultSeed,
 		ReferenceWorkers: 1500,
 		WorkforceWorkers: 800,
 		AffectedShare:    0.15,
-		Phi:              0.6,
-		Share:            0.6,
+		Phi:              0.95,
+		Share:            [2]float64{SBP: 0.7, FEV1: 0.85},
 		CrossCorr:        -0.2,
 	}
 }
@@ -62,8 +65,10 @@ func (c Config) Validate() error {
 		return fmt.Errorf("scenario: AffectedShare is %v; expected a share from 0 to 1", c.AffectedShare)
 	case !(c.Phi > 0 && c.Phi < 1):
 		return fmt.Errorf("scenario: Phi is %v; expected a correlation per year strictly between 0 and 1", c.Phi)
-	case !(c.Share >= 0 && c.Share <= 1):
-		return fmt.Errorf("scenario: Share is %v; expected a share of variance from 0 to 1", c.Share)
+	case !(c.Share[SBP] >= 0 && c.Share[SBP] <= 1):
+		return fmt.Errorf("scenario: Share[SBP] is %v; expected a share of variance from 0 to 1", c.Share[SBP])
+	case !(c.Share[FEV1] >= 0 && c.Share[FEV1] <= 1):
+		return fmt.Errorf("scenario: Share[FEV1] is %v; expected a share of variance from 0 to 1", c.Share[FEV1])
 	case !(c.CrossCorr > -1 && c.CrossCorr < 1):
 		return fmt.Errorf("scenario: CrossCorr is %v; expected a correlation strictly between -1 and 1", c.CrossCorr)
 	}
@@ -106,16 +111,16 @@ const (
 // Schedule and drift constants of the documented model.
 const (
 	entryMin, entryMax  = 20.0, 57.0 // age at first exam
-	spanMin, spanMax    = 3.0, 12.0  // planned follow-up, years
+	spanMin, spanMax    = 5.0, 15.0  // planned follow-up, years
 	minExams            = 3
 	towerShareReference = 0.55
 	towerShareWorkforce = 0.60
-	onsetFracMin        = 0.15 // onset = first + U(onsetFracMin, onsetFracMax)·(last-first)
-	onsetFracMax        = 0.60
-	slopeSBPMin         = 0.25 // SD per year, upward
-	slopeSBPMax         = 0.60
-	slopeFEV1Min        = 0.20 // SD per year, downward
-	slopeFEV1Max        = 0.50
+	onsetFracMin        = 0.20 // onset = first + U(onsetFracMin, onsetFracMax)·(last-first)
+	onsetFracMax        = 0.50
+	plateauMin          = 1.0 // size |A| of the sustained shift, SD
+	plateauMax          = 1.5
+	rampMin             = 2.0 // years from onset to the plateau, |A/β|
+	rampMax             = 4.0
 	gapPeriodicShare    = 0.75
 	gapMissedShare      = 0.15 // the remaining 0.10 are ad-hoc visits
 	gapPeriodicMin      = 0.8
@@ -190,15 +195,17 @@ func worker(cfg Config, cohort uint64, i int) ([]Exam, Truth) {
 	truth := Truth{Worker: id, Group: group}
 	if cohort == cohortWorkforce {
 		lo, hi := ages[0], ages[len(ages)-1]
-		draw := func(slopeMin, slopeMax, sign float64) Onset {
+		draw := func(sign float64) Onset {
 			if rng.Float64() >= cfg.AffectedShare {
 				return Onset{}
 			}
 			onset := round2(lo + uniform(onsetFracMin, onsetFracMax)*(hi-lo))
-			return Onset{Affected: true, Age: onset, Slope: sign * round3(uniform(slopeMin, slopeMax))}
+			plateau := round3(uniform(plateauMin, plateauMax))
+			ramp := uniform(rampMin, rampMax)
+			return Onset{Affected: true, Age: onset, Slope: sign * round3(plateau/ramp), Plateau: sign * plateau}
 		}
-		truth.SBP = draw(slopeSBPMin, slopeSBPMax, 1)
-		truth.FEV1 = draw(slopeFEV1Min, slopeFEV1Max, -1)
+		truth.SBP = draw(1)
+		truth.FEV1 = draw(-1)
 	}
 
 	// Residuals e = √c·s + √(1-c)·w for both markers, correlated with ρ.
@@ -207,7 +214,8 @@ func worker(cfg Config, cohort uint64, i int) ([]Exam, Truth) {
 		a, b := rng.NormFloat64(), rng.NormFloat64()
 		return a, rho*a + rhoC*b
 	}
-	sqC, sqNoise := math.Sqrt(cfg.Share), math.Sqrt(1-cfg.Share)
+	sqC1, sqNoise1 := math.Sqrt(cfg.Share[SBP]), math.Sqrt(1-cfg.Share[SBP])
+	sqC2, sqNoise2 := math.Sqrt(cfg.Share[FEV1]), math.Sqrt(1-cfg.Share[FEV1])
 	exams := make([]Exam, len(ages))
 	var s1, s2 float64
 	for j, t := range ages {
@@ -220,8 +228,8 @@ func worker(cfg Config, cohort uint64, i int) ([]Exam, Truth) {
 			s1, s2 = a*s1+b*z1, a*s2+b*z2
 		}
 		w1, w2 := pair()
-		e1 := sqC*s1 + sqNoise*w1
-		e2 := sqC*s2 + sqNoise*w2
+		e1 := sqC1*s1 + sqNoise1*w1
+		e2 := sqC2*s2 + sqNoise2*w2
 		exams[j] = Exam{
 			Worker: id,
 			Group:  group,

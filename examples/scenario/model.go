@@ -17,10 +17,6 @@ const (
 	MaxAge = 65.0
 )
 
-// ShiftCap is the largest drift, in standard deviations, that an affected
-// worker reaches; the drift plateaus there.
-const ShiftCap = 3.0
-
 // Groups returns the group names in the order used by the generator.
 func Groups() []string { return []string{Tower, Workshop} }
 
@@ -114,20 +110,31 @@ type Onset struct {
 	Affected bool
 	// Age is the onset age T₀ in years (0 when not affected).
 	Age float64
-	// Slope is the drift in standard deviations per year on the model
-	// scale: positive for SBP (upward), negative for FEV1 (downward);
-	// 0 when not affected.
+	// Slope is the rate β at which the drift grows, in standard deviations
+	// per year on the model scale: positive for SBP (upward), negative for
+	// FEV1 (downward); 0 when not affected.
 	Slope float64
+	// Plateau is the size A of the sustained shift the drift grows to, in
+	// standard deviations, with the sign of Slope; it is reached A/β years
+	// after the onset. 0 when not affected.
+	Plateau float64
 }
 
 // Shift returns the drift δ(age) in standard deviations that the worker's
-// readings carry at age: 0 up to the onset, then Slope·(age - onset),
-// capped at ±ShiftCap.
+// readings carry at age: 0 up to the onset, then Slope·(age - onset) until
+// it reaches Plateau, then Plateau:
+//
+//	δ(t) = 0                                   t <= T₀
+//	δ(t) = sign(A)·min(|β|·(t - T₀), |A|)      t >  T₀
 func (o Onset) Shift(age float64) float64 {
 	if !o.Affected || age <= o.Age {
 		return 0
 	}
-	return math.Max(-ShiftCap, math.Min(ShiftCap, o.Slope*(age-o.Age)))
+	d := math.Min(math.Abs(o.Slope)*(age-o.Age), math.Abs(o.Plateau))
+	if o.Plateau < 0 {
+		return -d
+	}
+	return d
 }
 
 func round2(x float64) float64 { return math.Round(x*100) / 100 }

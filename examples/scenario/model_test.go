@@ -103,8 +103,8 @@ func TestStandardise(t *testing.T) {
 }
 
 func TestOnsetShift(t *testing.T) {
-	up := Onset{Affected: true, Age: 40, Slope: 0.5}
-	down := Onset{Affected: true, Age: 30, Slope: -0.25}
+	up := Onset{Affected: true, Age: 40, Slope: 0.5, Plateau: 1.25}
+	down := Onset{Affected: true, Age: 30, Slope: -0.25, Plateau: -1}
 	tests := []struct {
 		name  string
 		o     Onset
@@ -115,9 +115,11 @@ func TestOnsetShift(t *testing.T) {
 		{"before onset", up, 39, 0},
 		{"at onset", up, 40, 0},
 		{"two years after", up, 42, 1},
-		{"capped", up, 60, ShiftCap},
-		{"downward", down, 34, -1},
-		{"downward capped", down, 60, -ShiftCap},
+		{"reaches the plateau", up, 42.5, 1.25},
+		{"stays at the plateau", up, 60, 1.25},
+		{"downward", down, 32, -0.5},
+		{"downward plateau", down, 34, -1},
+		{"downward stays", down, 60, -1},
 	}
 	for _, tc := range tests {
 		if got := tc.o.Shift(tc.age); math.Abs(got-tc.shift) > 1e-12 {

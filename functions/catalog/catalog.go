@@ -447,7 +447,9 @@ func chartSettings(fn string, o cell.Options) (screening.Settings, screening.Lim
 			HeadStart: o.Number(cell.OptionHeadstart, 0),
 			Restart:   o.Bool(cell.OptionRestart, false),
 		},
-		Serial: o.Text(cell.OptionSerial, screening.SerialWhiten),
+		// Not given: "" (the engine's default, whiten, with a model; no
+		// serial correlation without one).
+		Serial: o.Text(cell.OptionSerial, ""),
 
 		Extrapolate: o.Bool(cell.OptionExtrapolate, false),
 	}
@@ -540,9 +542,8 @@ func calibrationWithoutModel(fn string, s screening.Settings, lo screening.Limit
 	if lo.Method == monitor.Bootstrap {
 		return monitor.Calibration{}, cell.ValueError("%s: method bootstrap needs a model (it resamples the reference workers)", fn)
 	}
-	if s.Serial == screening.SerialWhiten {
-		return monitor.Calibration{}, cell.ValueError("%s: serial=whiten needs a model (it uses the fitted serial correlation)", fn)
-	}
+	// Without a model no serial correlation is known: every serial mode
+	// charts independent N(0,1) scores (the textbook horizon).
 	c := monitor.Calibration{Method: monitor.Normal, Gap: lo.Gap, Seed: lo.Seed, Paths: lo.Paths, Progress: lo.Progress}
 	c.Settings.Chart, c.Settings.Mode = s.Chart, monitor.Direct
 	return c, nil

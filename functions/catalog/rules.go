@@ -56,12 +56,18 @@ func ruleFuncs(cache *rules.Cache) []cell.Func {
 	}
 }
 
-// ruleSetFormat marks a stored rule set, so it is never mistaken for a model.
+// ruleSetPrefix marks a stored rule set, so it is never mistaken for a model.
 const ruleSetPrefix = "# veer rule set\n"
+
+// isRuleSet reports whether a stored document is a rule set.
+func isRuleSet(doc []byte) bool { return strings.HasPrefix(string(doc), ruleSetPrefix) }
 
 func callSaveRules(env cell.Env, a cell.Args, cache *rules.Cache) (any, error) {
 	name, err := a.Text(0)
 	if err != nil {
+		return nil, err
+	}
+	if name, err = checkName("VEER.SAVERULES", "rule set", name); err != nil {
 		return nil, err
 	}
 	lines, err := a.Texts(1, cell.PolicySkip)
@@ -76,7 +82,10 @@ func callSaveRules(env cell.Env, a cell.Args, cache *rules.Cache) (any, error) {
 	if _, err := cache.CompileSet(rs); err != nil {
 		return nil, cell.ValueError("VEER.SAVERULES: %v", err)
 	}
-	return env.SaveModel(strings.TrimSpace(name), append([]byte(ruleSetPrefix), rs.Format()...))
+	if err := checkKind(env, "VEER.SAVERULES", name, true); err != nil {
+		return nil, err
+	}
+	return env.SaveModel(name, append([]byte(ruleSetPrefix), rs.Format()...))
 }
 
 // resolveRule returns the rule text: the argument itself, or a stored rule
@@ -94,7 +103,7 @@ func resolveRule(env cell.Env, text string) (string, error) {
 	if err != nil {
 		return "", err
 	}
-	if !strings.HasPrefix(string(ref.Doc), ruleSetPrefix) {
+	if !isRuleSet(ref.Doc) {
 		return "", cell.RefError("%s is a model, not a rule set saved with VEER.SAVERULES", ref.Handle)
 	}
 	rs, err := rules.ParseRuleSet(ref.Doc[len(ruleSetPrefix):])
@@ -166,7 +175,7 @@ func callRule(ctx context.Context, env cell.Env, a cell.Args, cache *rules.Cache
 	if err != nil {
 		return nil, err
 	}
-	exams, rowOf, missing, n, err := examsArgs(a, 2)
+	sh, err := examsArgs(a, 2)
 	if err != nil {
 		return nil, err
 	}
@@ -182,11 +191,14 @@ func callRule(ctx context.Context, env cell.Env, a cell.Args, cache *rules.Cache
 	if err != nil {
 		return nil, err
 	}
-	res, err := m.Screen(exams, s, h)
+	if err := sh.screenable("VEER.RULE", m, s.Extrapolate); err != nil {
+		return nil, err
+	}
+	res, err := m.Screen(sh.exams, s, h)
 	if err != nil {
 		return nil, cellError("VEER.RULE", err)
 	}
-	vars, err := screening.RuleExams(exams, res, s, h)
+	vars, err := screening.RuleExams(sh.exams, res, s, h)
 	if err != nil {
 		return nil, err
 	}
@@ -195,12 +207,12 @@ func callRule(ctx context.Context, env cell.Env, a cell.Args, cache *rules.Cache
 	if err != nil {
 		return nil, err
 	}
-	out := make([]any, n)
-	for r, msg := range missing {
-		out[r] = cell.NAError("row %d: %s", r+1, msg)
+	out := make([]any, sh.n)
+	for r, e := range sh.failed {
+		out[r] = e
 	}
 	for k, v := range got {
-		out[rowOf[k]] = v
+		out[sh.rowOf[k]] = v
 	}
 	return out, nil
 }

@@ -8,10 +8,10 @@ import (
 func TestParseOptions(t *testing.T) {
 	allowed := []string{OptionSide, OptionLambda, OptionRestart, OptionGroup}
 	type want struct {
-		side   string
-		lambda float64
+		side    string
+		lambda  float64
 		restart bool
-		group  string
+		group   string
 	}
 	def := want{"both", 0.2, false, ""}
 	tests := []struct {

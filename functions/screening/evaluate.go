@@ -29,20 +29,21 @@ type Truth struct {
 // easy cases can look quick. The fairer figures count every case at risk
 // (no signal before onset): DetectedShare, and the Kaplan–Meier estimate
 // (Kaplan, E. L. and Meier, P. (1958), "Nonparametric estimation from
-// incomplete observations", JASA 53, 457–481) of the distribution of years
-// from onset to signal in which an undetected case is censored at its
-// follow-up after onset (last exam − onset), because it might have been
-// caught had it been followed longer:
+// incomplete observations", JASA 53, 457–481; recalled from memory) of the
+// distribution of years from onset to signal in which an undetected case is
+// censored at its follow-up after onset (last exam − onset), because it
+// might have been caught had it been followed longer:
 //
 //	S(t) = ∏_{t_i <= t} (1 − d_i/n_i),
 //
 // t_i the distinct delays, d_i the detections at t_i and n_i the cases
-// still at risk (delay or follow-up >= t_i). MedianDelayKM is the smallest
-// t_i with S(t_i) <= 0.5, except that when S(t_i) is exactly 0.5 it is the
-// midpoint of t_i and the next delay (so that with no undetected case it
-// equals the ordinary median of the delays); it is +Inf when S never falls
-// to 0.5 (fewer than half are caught within follow-up). DetectedBy(t) =
-// 1 − S(t).
+// still at risk (delay or follow-up >= t_i); censoring is taken to be
+// unrelated to the drift, as follow-up length is in the demo scenario.
+// MedianDelayKM is the smallest t_i with S(t_i) <= 0.5, except that when
+// S(t_i) is exactly 0.5 it is the midpoint of t_i and the next delay (so
+// that with no undetected case it equals the ordinary median of the
+// delays); it is +Inf when S never falls to 0.5 (fewer than half are
+// caught within follow-up). DetectedBy(t) = 1 − S(t).
 type Evaluation struct {
 	Workers, Cases, NonCases int
 	// Flagged counts workers with any signal; TrueFlagged the cases among them.

@@ -17,7 +17,14 @@ fixtures.json beside this script with:
   - ordinary least squares fits (statsmodels, cluster-robust covariance by
     worker) of each marker on a cubic in age per group, with predictions and
     their standard errors at ages 25, 35, 45, 55;
-  - gap-mixture shares, exams per worker and truth summaries.
+  - gap-mixture shares, exams per worker and truth summaries, including the
+    documented drift re-implemented here (mean of z - drift after onset);
+  - the fixed cut-off rule "any reading beyond the reference 97.5th centile
+    (2.5th for FEV1)" under the documented curves, scored against the truth
+    independently of the Go code: cases, early signals, detections, median
+    delay, false signals per 100 worker-years at risk among non-cases, and
+    the Kaplan-Meier curve of years from onset to signal (statsmodels
+    SurvfuncRight; an undetected case is censored at last exam - onset).
 
 Run from anywhere:  /usr/bin/python3 examples/scenario/testdata/make_fixtures.py
 Tools: Debian python3 with numpy, scipy and statsmodels.
@@ -34,6 +41,7 @@ import scipy.optimize
 import scipy.stats
 import statsmodels
 import statsmodels.api as sm
+from statsmodels.duration.survfunc import SurvfuncRight
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 DATA = os.path.normpath(os.path.join(HERE, "..", "..", "data"))
@@ -49,6 +57,84 @@ def curve(marker, group, age):
     if group == "tower":
         return math.log(4.05 - 0.030 * u - 0.0004 * u * u), 0.12 + 0.0012 * u
     return math.log(3.80 - 0.028 * u - 0.0004 * u * u), 0.13 + 0.0012 * u
+
+
+def drift(onset, slope, plateau, age):
+    """Documented drift: 0 up to onset, then grows at |slope| SD a year up to
+    |plateau| SD and stays there; the sign is the plateau's."""
+    if age <= onset:
+        return 0.0
+    d = min(abs(slope) * (age - onset), abs(plateau))
+    return -d if plateau < 0 else d
+
+
+def km_median(times, probs):
+    """Median of a Kaplan-Meier curve: the first event time with S <= 0.5;
+    when S is exactly 0.5 there, the midpoint with the next event time
+    (statsmodels' quantile uses the strict S < 0.5, so it gives that next
+    time); infinity when S never reaches 0.5."""
+    eps = 1e-12
+    for i, (t, p) in enumerate(zip(times, probs)):
+        if p > 0.5 + eps:
+            continue
+        if p >= 0.5 - eps and i + 1 < len(times):
+            return (t + times[i + 1]) / 2
+        return t
+    return math.inf
+
+
+def cutoff_rule(ex, truth_rows, marker, zcut):
+    """Scores the fixed cut-off rule against the truth, exam by exam."""
+    onset = {r["worker"]: float(r["onset_" + marker]) for r in truth_rows if r["affected_" + marker] == "1"}
+    workers = {}
+    for e in ex:
+        workers.setdefault(e["worker"], []).append(e)
+    out = {"workers": 0, "cases": 0, "flagged": 0, "true_flagged": 0, "early": 0, "detected": 0,
+           "false_signals": 0, "years_at_risk": 0.0}
+    delays, times, status = [], [], []
+    for w, rows in workers.items():
+        rows = sorted(rows, key=lambda e: e["age"])
+        sig = [(e["z_" + marker] > zcut) if marker == "sbp" else (e["z_" + marker] < -zcut) for e in rows]
+        first = next((e["age"] for e, s in zip(rows, sig) if s), None)
+        out["workers"] += 1
+        if first is not None:
+            out["flagged"] += 1
+        if w in onset:
+            t0 = onset[w]
+            out["cases"] += 1
+            if first is not None:
+                out["true_flagged"] += 1
+            if first is not None and first < t0:
+                out["early"] += 1
+                continue
+            hit = next((e["age"] for e, s in zip(rows, sig) if s and e["age"] >= t0), None)
+            if hit is not None:
+                out["detected"] += 1
+                delays.append(hit - t0)
+                times.append(hit - t0)
+                status.append(1)
+            else:
+                times.append(max(0.0, rows[-1]["age"] - t0))
+                status.append(0)
+            continue
+        end = rows[-1]["age"] if first is None else first
+        if first is not None:
+            out["false_signals"] += 1
+        out["years_at_risk"] += end - rows[0]["age"]
+    out["false_per_100"] = 100 * out["false_signals"] / out["years_at_risk"]
+    out["median_delay_detected"] = float(np.median(delays))
+    sf = SurvfuncRight(np.array(times), np.array(status))
+    st, sp = [float(t) for t in sf.surv_times], [float(p) for p in sf.surv_prob]
+    med = km_median(st, sp)
+    # JSON has no infinity: a median that is not reached is written as null.
+    out["km_median_reached"] = not math.isinf(med)
+    out["km_median"] = None if math.isinf(med) else med
+    q = float(sf.quantile(0.5))
+    out["km_median_strict_statsmodels"] = None if math.isnan(q) else q
+    out["km_detected_by"] = {str(y): 1 - next((p for t, p in reversed(list(zip(st, sp))) if t <= y), 1.0)
+                             for y in (1, 2, 3, 5)}
+    out["km_times"], out["km_surv"] = st, sp
+    return out
 
 
 def zscore(marker, group, age, y):
@@ -196,13 +282,30 @@ def main():
     for m in ("sbp", "fev1"):
         aff = [r for r in truth_rows if r["affected_" + m] == "1"]
         inside = sum(1 for r in aff if span[r["worker"]][0] < float(r["onset_" + m]) < span[r["worker"]][1])
-        onset = {r["worker"]: float(r["onset_" + m]) for r in aff}
-        late = [e["z_" + m] for e in wf if e["worker"] in onset and e["age"] >= onset[e["worker"]] + 2]
+        onset = {r["worker"]: (float(r["onset_" + m]), float(r["slope_" + m]), float(r["plateau_" + m])) for r in aff}
+        late = [e["z_" + m] for e in wf if e["worker"] in onset and e["age"] >= onset[e["worker"]][0] + 2]
+        after = [e for e in wf if e["worker"] in onset and e["age"] > onset[e["worker"]][0]]
+        resid = [e["z_" + m] - drift(*onset[e["worker"]], e["age"]) for e in after]
+        rmean, rse = cluster_mean(resid, [e["worker"] for e in after])
         healthy = [e["z_" + m] for e in wf if e["worker"] not in onset]
+        sign = 1 if m == "sbp" else -1
+        plateaus = [sign * float(r["plateau_" + m]) for r in aff]
+        ramps = [float(r["plateau_" + m]) / float(r["slope_" + m]) for r in aff]
         truth[m] = {"affected": len(aff), "share": len(aff) / len(truth_rows), "onsets_inside_span": inside,
                     "mean_z_2y_after_onset": float(np.mean(late)), "exams_2y_after_onset": len(late),
+                    "mean_z_minus_drift_after_onset": rmean, "se_mean_z_minus_drift_after_onset": rse,
+                    "exams_after_onset": len(after),
+                    "plateau_min": min(plateaus), "plateau_max": max(plateaus),
+                    "ramp_min": min(ramps), "ramp_max": max(ramps),
                     "mean_z_unaffected": float(np.mean(healthy))}
     out["truth"] = truth
+
+    # The fixed cut-off rule under the documented curves: beyond the 97.5th
+    # (SBP, upward) or 2.5th (FEV1, downward) centile of N(0, 1).
+    zcut = float(scipy.stats.norm.ppf(0.975))
+    out["cutoff"] = {"z": zcut}
+    for m in ("sbp", "fev1"):
+        out["cutoff"][m] = cutoff_rule(wf, truth_rows, m, zcut)
 
     with open(os.path.join(HERE, "fixtures.json"), "w") as f:
         json.dump(out, f, indent=1, sort_keys=True)
