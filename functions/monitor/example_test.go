@@ -20,9 +20,9 @@ func ExampleRun() {
 	}
 	// Output:
 	// 40.1 z 0.3 innovation 0.30 stat 0.00 signal false
-	// 41.0 z 1.4 innovation 1.41 stat 0.90 signal false
-	// 43.2 z 1.9 innovation 1.62 stat 2.30 signal true
-	// 44.0 z 2.2 innovation 1.44 stat 4.00 signal true
+	// 41.0 z 1.4 innovation 1.41 stat 0.91 signal false
+	// 43.2 z 1.9 innovation 1.62 stat 2.03 signal true
+	// 44.0 z 2.2 innovation 1.44 stat 2.97 signal true
 }
 
 func ExampleLimit() {
