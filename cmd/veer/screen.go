@@ -236,12 +236,12 @@ func runScreen(e *env, args []string) error {
 }
 
 func runReport(e *env, args []string) error {
-	fs := newFlags(e, "report", "--model M.json --in F.csv|F.xlsx --id C --time C --value C [--group C] (--target YEARS | --limit H) --out R.html [--marker NAME] [--unit U]")
+	fs := newFlags(e, "report", "--model M.json --in F.csv|F.xlsx --id C --time C --value C [--group C] (--target YEARS | --limit H) --out R.html [--marker NAME] [--value-unit U]")
 	var sf screenFlags
 	sf.register(fs)
 	out := fs.String("out", "", "HTML file to write (required)")
 	marker := fs.String("marker", "", "name of the marker shown in the report (default: the model's name)")
-	unit := fs.String("unit", "", "unit of the readings, e.g. mmHg")
+	unit := fs.String("value-unit", "", "unit of the readings shown in the report, e.g. mmHg")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
