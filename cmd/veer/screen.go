@@ -210,19 +210,21 @@ func runScreen(e *env, args []string) error {
 			return fmt.Errorf("%s: %v", dst, err)
 		}
 		fmt.Fprintf(e.stderr, "wrote the sheets %q and %q into %s (previous file kept as %s)\n", workbook.DefaultResultsSheet, workbook.DefaultSummarySheet, dst, workbook.BackupPath(dst))
-	default:
-		var buf bytes.Buffer
-		var w io.Writer = e.stdout
-		if *out != "" {
-			w = &buf
-		}
-		if err := writeScreen(w, j.input, j.results, j.limit.H, j.ruleNames, j.ruleCols); err != nil {
+	case *out == "":
+		if err := writeScreen(e.stdout, j.input, j.results, j.limit.H, j.ruleNames, j.ruleCols); err != nil {
 			return err
 		}
-		if *out != "" {
-			if err := writeFileAtomic(*out, buf.Bytes()); err != nil {
-				return err
-			}
+	default:
+		f, err := createAtomic(*out)
+		if err != nil {
+			return err
+		}
+		defer f.Abort()
+		if err := writeScreen(f, j.input, j.results, j.limit.H, j.ruleNames, j.ruleCols); err != nil {
+			return fmt.Errorf("cannot write %s: %v", *out, err)
+		}
+		if err := f.Commit(); err != nil {
+			return err
 		}
 	}
 	if *rep != "" {
