@@ -47,6 +47,7 @@ func commands() []command {
 		{"report", "screen exams and write a self-contained HTML report", runReport},
 		{"serve", "run the local function server for spreadsheet add-ins", runServe},
 		{"token", "print the write token that add-ins need (creating it if needed)", runToken},
+		{"calc-extension", "build the LibreOffice Calc extension (veer.oxt) from the function catalogue", runCalcExtension},
 		{"demo", "run the whole screening job on the embedded demo data", runDemo},
 	}
 }
