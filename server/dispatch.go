@@ -123,6 +123,12 @@ func (e *engine) call(ctx context.Context, req *request, opts callOpts) *outcome
 // the same version.
 func (e *engine) valid(deps []dep) bool {
 	for _, d := range deps {
+		if d.ref == listDep {
+			if listKey(e.reg.List()) != d.handle {
+				return false
+			}
+			continue
+		}
 		h, _ := e.reg.Resolve(d.ref)
 		if h != d.handle {
 			return false
@@ -414,6 +420,32 @@ func (c *callEnv) Model(ref string) (cell.ModelRef, error) {
 		c.addDep(strings.ToLower(ref), h, n == 0)
 	}
 	return m, err
+}
+
+// listDep is the dependency of a result that read the list of models: it
+// stays valid while no model is added, refitted or deleted.
+const listDep = "*list"
+
+// listKey is a text that changes whenever the registry's listing does.
+func listKey(list []ModelInfo) string {
+	var b strings.Builder
+	for _, m := range list {
+		b.WriteString(m.Latest)
+		b.WriteByte(' ')
+	}
+	return b.String()
+}
+
+// Names lists the models' names, sorted; the result of a call that uses it
+// is recomputed after any model is added, refitted or deleted.
+func (c *callEnv) Names() []string {
+	list := c.e.reg.List()
+	names := make([]string, len(list))
+	for i, m := range list {
+		names[i] = m.Name
+	}
+	c.addDep(listDep, listKey(list), false)
+	return names
 }
 
 // SaveModel implements cell.Env.

@@ -49,7 +49,11 @@ func collectRules(flags ruleList, file string) (rules.RuleSet, error) {
 		seen[r.Name] = true
 	}
 	if err := rs.Validate(); err != nil {
-		return rs, err
+		return rs, usageError{err.Error()}
+	}
+	// Compile now, so a mistake in a rule is reported before any data are read.
+	if _, err := rules.NewCache(len(rs.Rules)+1, rules.DefaultLimits()).CompileSet(rs); err != nil {
+		return rs, usageError{err.Error()}
 	}
 	return rs, nil
 }

@@ -47,7 +47,7 @@ func funcs() []cell.Func {
 		{
 			Name:    "VEER.FIT",
 			Summary: "Fits a reference model from healthy workers' exams and returns its handle.",
-			Help:    "Fits mean and SD curves over age per group, and the serial correlation of each worker's readings, from rows of workers known to be healthy. The handle (name@vN) changes when the data change and stays the same when they do not.",
+			Help:    "Fits mean and SD curves over age per group, and the serial correlation of each worker's readings, from rows of workers known to be healthy. The handle (name@vN) changes when the data change and stays the same when they do not. Every row needs an id, an age and a reading: a blank one is an error naming the row. A name is either a model or a rule set (VEER.SAVERULES), never both.",
 			Params: []cell.Param{
 				{Name: "name", Type: cell.TypeText, Help: "name of the model, e.g. sbp"},
 				{Name: "ids", Type: cell.TypeRange, Help: "worker ids, one per exam"},
@@ -112,7 +112,7 @@ func funcs() []cell.Func {
 		{
 			Name:    "VEER.ZSCORE",
 			Summary: "Standardised score of a reading against healthy workers of the same age.",
-			Help:    "z = (reading − reference mean) / reference SD at the worker's age, on the model's scale. Blank cells give #N/A in their row.",
+			Help:    "z = (reading − reference mean) / reference SD at the worker's age, on the model's scale. Blank cells give #N/A in their row, an age outside the reference range #NUM! in its row (unless extrapolate=true); text in a numeric range is #VALUE! naming the cell.",
 			Params: []cell.Param{modelParam(),
 				{Name: "ages", Type: cell.TypeRange, Help: "age or ages in years"},
 				{Name: "values", Type: cell.TypeRange, Help: "reading or readings"},
@@ -124,7 +124,7 @@ func funcs() []cell.Func {
 		{
 			Name:    "VEER.CHART",
 			Summary: "Chart statistic over a whole sheet of exams: z, innovation, chart, limit, signal, first signal.",
-			Help:    "Give every exam row (any order); each worker's exams are ordered by age inside. Spills one row per input row with columns z, innovation, chart, limit, signal, first_signal. Options must give target (years to a false signal) or limit." + caution,
+			Help:    "Give every exam row (any order); each worker's exams are ordered by age inside. Spills one row per input row with columns z, innovation, chart, limit, signal, first_signal. Options must give target (years to a false signal) or limit. A row with a blank id, age, reading or group is #N/A and a row outside the reference age range #NUM! (unless extrapolate=true); the worker's other exams are charted without it. Text in a numeric range, or two exams of a worker at the same age, fail the call with a message naming the rows." + caution,
 			Params: []cell.Param{modelParam(),
 				{Name: "ids", Type: cell.TypeRange, Help: "worker ids, one per exam"},
 				{Name: "ages", Type: cell.TypeRange, Help: "age at each exam, in years"},
@@ -234,14 +234,19 @@ func groupsArg(a cell.Args, i, n int) ([]string, error) {
 // cannot be scored against m, or nil: an age outside the group's reference
 // range without extrapolation is #NUM!, a group the model does not know
 // #N/A, a reading the model's transform cannot take (log of a non-positive
-// number) #NUM!. row is the 1-based row for the message (0: none).
-func rowCheck(fn string, m *screening.Model, group string, t, y float64, ext bool, row int) *cell.Error {
+// number) #NUM!; a blank group cell (groupGiven: the groups argument was
+// given) of a model with groups is #N/A like any blank input. row is the
+// 1-based row for the message (0: none).
+func rowCheck(fn string, m *screening.Model, group string, groupGiven bool, t, y float64, ext bool, row int) *cell.Error {
 	where := fn + ": "
 	if row > 0 {
 		where = fmt.Sprintf("%s: row %d: ", fn, row)
 	}
 	lo, hi, err := m.Curves.Range(group)
 	if err != nil {
+		if group == "" && groupGiven {
+			return cell.NAError("%sthe group is blank; %v", where, err)
+		}
 		return cell.AsError(cellError(strings.TrimSuffix(where, ": "), err))
 	}
 	if !ext && (t < lo || t > hi) {
@@ -304,7 +309,7 @@ func lookup(what string) func(ctx context.Context, env cell.Env, a cell.Args) (a
 				out[i] = cell.NAError("row %d: the age is blank", i+1)
 				continue
 			}
-			if e := rowCheck(a.Func().Name, m, groups[i], t, math.NaN(), ext, rowLabel(len(ages), i)); e != nil {
+			if e := rowCheck(a.Func().Name, m, groups[i], !a.Missing(2), t, math.NaN(), ext, rowLabel(len(ages), i)); e != nil {
 				out[i] = e
 				continue
 			}
@@ -375,7 +380,7 @@ func callCentile(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 			out[i] = cell.NAError("row %d: the age is blank", i+1)
 			continue
 		}
-		if e := rowCheck("VEER.CENTILE", m, groups[i], t, math.NaN(), ext, rowLabel(len(ages), i)); e != nil {
+		if e := rowCheck("VEER.CENTILE", m, groups[i], !a.Missing(3), t, math.NaN(), ext, rowLabel(len(ages), i)); e != nil {
 			out[i] = e
 			continue
 		}
@@ -420,7 +425,7 @@ func callZ(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 			out[i] = cell.NAError("row %d: the age or the reading is blank", i+1)
 			continue
 		}
-		if e := rowCheck("VEER.ZSCORE", m, groups[i], ages[i], vals[i], ext, rowLabel(len(ages), i)); e != nil {
+		if e := rowCheck("VEER.ZSCORE", m, groups[i], !a.Missing(3), ages[i], vals[i], ext, rowLabel(len(ages), i)); e != nil {
 			out[i] = e
 			continue
 		}
@@ -642,10 +647,12 @@ func callDelay(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 // columns: the rows that can be screened, and an error for each of the
 // others, in sheet order.
 type sheet struct {
-	n      int                 // rows in the sheet
-	exams  []screening.Exam    // rows that can be screened, in sheet order
-	rowOf  []int               // 0-based sheet row of each exam
-	failed map[int]*cell.Error // sheet rows answered with an error instead
+	n int // rows in the sheet
+	// groupGiven: the groups argument was given (a "" group is a blank cell)
+	groupGiven bool
+	exams      []screening.Exam    // rows that can be screened, in sheet order
+	rowOf      []int               // 0-based sheet row of each exam
+	failed     map[int]*cell.Error // sheet rows answered with an error instead
 }
 
 // examsArgs reads ids, ages, values and groups columns starting at argument
@@ -677,7 +684,7 @@ func examsArgs(a cell.Args, i int) (*sheet, error) {
 	if err != nil {
 		return nil, err
 	}
-	sh := &sheet{n: n, failed: map[int]*cell.Error{}, exams: make([]screening.Exam, 0, n), rowOf: make([]int, 0, n)}
+	sh := &sheet{n: n, groupGiven: !a.Missing(i + 3), failed: map[int]*cell.Error{}, exams: make([]screening.Exam, 0, n), rowOf: make([]int, 0, n)}
 	for r := 0; r < n; r++ {
 		id := strings.TrimSpace(ids[r])
 		switch {
@@ -716,16 +723,36 @@ func (sh *sheet) firstFailed() *cell.Error {
 // range without extrapolation, unknown group, a reading the transform
 // cannot take) to the failed rows, each with its own error, so the rest of
 // the sheet is still charted; the other exams of such a worker are charted
-// without that row. Two exams of one worker at the same age fail the call,
-// naming both sheet rows.
+// without that row.
 func (sh *sheet) screenable(fn string, m *screening.Model, ext bool) error {
+	// The usual row passes with a range check against its group's span,
+	// looked up once per group (rowCheck words the failures).
+	type span struct {
+		lo, hi float64
+		ok     bool
+	}
+	spans := map[string]span{}
+	var last span
+	lastGroup, haveLast := "", false
+	positive := m.Curves.Transform != "" && m.Curves.Transform != "none"
 	kept := sh.exams[:0]
 	rowOf := sh.rowOf[:0]
 	for k, e := range sh.exams {
 		r := sh.rowOf[k]
-		if ce := rowCheck(fn, m, e.Group, e.Time, e.Value, ext, r+1); ce != nil {
-			sh.failed[r] = ce
-			continue
+		if !haveLast || e.Group != lastGroup {
+			sp, found := spans[e.Group]
+			if !found {
+				lo, hi, err := m.Curves.Range(e.Group)
+				sp = span{lo, hi, err == nil}
+				spans[e.Group] = sp
+			}
+			last, lastGroup, haveLast = sp, e.Group, true
+		}
+		if !last.ok || (!ext && (e.Time < last.lo || e.Time > last.hi)) || (positive && !(e.Value > 0)) {
+			if ce := rowCheck(fn, m, e.Group, sh.groupGiven, e.Time, e.Value, ext, r+1); ce != nil {
+				sh.failed[r] = ce
+				continue
+			}
 		}
 		kept = append(kept, e)
 		rowOf = append(rowOf, r)
@@ -733,6 +760,17 @@ func (sh *sheet) screenable(fn string, m *screening.Model, ext bool) error {
 	sh.exams, sh.rowOf = kept, rowOf
 	if len(sh.exams) == 0 {
 		return sh.firstFailed()
+	}
+	return nil
+}
+
+// screen runs the engine over the screenable rows. An engine error about
+// two exams of one worker at the same age is reworded with the sheet's
+// row numbers (the engine counts the screenable rows only).
+func (sh *sheet) screen(fn string, m *screening.Model, s screening.Settings, h float64) ([]screening.Result, error) {
+	res, err := m.Screen(sh.exams, s, h)
+	if err == nil {
+		return res, nil
 	}
 	type key struct {
 		worker string
@@ -742,12 +780,12 @@ func (sh *sheet) screenable(fn string, m *screening.Model, ext bool) error {
 	for k, e := range sh.exams {
 		kk := key{e.Worker, e.Time}
 		if j, dup := seen[kk]; dup {
-			return cell.ValueError("%s: worker %q has two exams at the same age %s (rows %d and %d); remove or merge one",
+			return nil, cell.ValueError("%s: worker %q has two exams at the same age %s (rows %d and %d); remove or merge one",
 				fn, e.Worker, cell.FormatNumber(e.Time), sh.rowOf[j]+1, sh.rowOf[k]+1)
 		}
 		seen[kk] = k
 	}
-	return nil
+	return nil, cellError(fn, err)
 }
 
 func callChart(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
@@ -774,9 +812,9 @@ func callChart(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err := sh.screenable("VEER.CHART", m, s.Extrapolate); err != nil {
 		return nil, err
 	}
-	res, err := m.Screen(sh.exams, s, h)
+	res, err := sh.screen("VEER.CHART", m, s, h)
 	if err != nil {
-		return nil, cellError("VEER.CHART", err)
+		return nil, err
 	}
 	out := make([][]any, sh.n)
 	for r, e := range sh.failed {

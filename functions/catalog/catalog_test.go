@@ -305,8 +305,13 @@ func TestLookupErrors(t *testing.T) {
 			wantErr(t, e, c.code, c.parts...)
 		})
 	}
+	// A blank group cell is #N/A in its row; no groups at all is a mistake
+	// in the call (#VALUE!, "group missing" above).
+	col := column(t, mustCall(t, env, "VEER.ZSCORE", "sbp", []float64{40, 41}, []float64{120, 130}, []any{"office", nil}))
+	num(t, col[0])
+	wantErr(t, cellErr(t, col[1]), cell.CodeNA, "row 2", "group is blank", `"office"`)
 	// In a column an out-of-range age fails its row only.
-	col := column(t, mustCall(t, env, "VEER.REFMEAN", "sbp", []float64{40, hi + 5}, "office"))
+	col = column(t, mustCall(t, env, "VEER.REFMEAN", "sbp", []float64{40, hi + 5}, "office"))
 	num(t, col[0])
 	wantErr(t, cellErr(t, col[1]), cell.CodeNum, "outside the reference range")
 	// extrapolate=true holds the curve at its end.
@@ -435,12 +440,14 @@ func TestChartRowsPolicy(t *testing.T) {
 	sheet := synth(12, 8, 120, 0)
 	lo, hi, _ := m.Curves.Range(sheet.groups[0])
 	ids, ages, vals := anyCol(sheet.ids), anyCol(sheet.ages), anyCol(sheet.vals)
-	ages[1] = nil     // blank age: #N/A in its row
-	vals[4] = nil     // blank reading
-	ids[6] = ""       // blank id
+	ages[1] = nil // blank age: #N/A in its row
+	vals[4] = nil // blank reading
+	ids[6] = ""   // blank id
+	groups := anyCol(sheet.groups)
+	groups[15] = nil  // blank group
 	ages[9] = hi + 10 // outside the reference range
 	ages[12] = lo - 3 // below it
-	tab := table(t, mustCall(t, env, "VEER.CHART", "sbp", ids, ages, vals, anyCol(sheet.groups), "limit=4"))
+	tab := table(t, mustCall(t, env, "VEER.CHART", "sbp", ids, ages, vals, groups, "limit=4"))
 	if len(tab) != sheet.len() {
 		t.Fatalf("%d rows for %d exams", len(tab), sheet.len())
 	}
@@ -454,6 +461,7 @@ func TestChartRowsPolicy(t *testing.T) {
 		{7, cell.CodeNA, []string{"row 7", "id is blank"}},
 		{10, cell.CodeNum, []string{"row 10", "outside the reference range", "extrapolate=true"}},
 		{13, cell.CodeNum, []string{"row 13", "outside the reference range"}},
+		{16, cell.CodeNA, []string{"row 16", "group is blank"}},
 	} {
 		if len(tab[c.row-1]) != 6 {
 			t.Fatalf("row %d has %d columns", c.row, len(tab[c.row-1]))
@@ -466,7 +474,7 @@ func TestChartRowsPolicy(t *testing.T) {
 	var kept exams
 	for i := range sheet.ids {
 		switch i {
-		case 1, 4, 6, 9, 12:
+		case 1, 4, 6, 9, 12, 15:
 			continue
 		}
 		kept.ids = append(kept.ids, sheet.ids[i])
@@ -481,7 +489,7 @@ func TestChartRowsPolicy(t *testing.T) {
 	k := 0
 	for i := range sheet.ids {
 		switch i {
-		case 1, 4, 6, 9, 12:
+		case 1, 4, 6, 9, 12, 15:
 			continue
 		}
 		if tab[i][2] != res[k].Stat || tab[i][0] != res[k].Z {
@@ -490,12 +498,19 @@ func TestChartRowsPolicy(t *testing.T) {
 		k++
 	}
 	// With extrapolate=true the rows outside the range are charted.
-	tab = table(t, mustCall(t, env, "VEER.CHART", "sbp", ids, ages, vals, anyCol(sheet.groups), "limit=4; extrapolate=true"))
+	tab = table(t, mustCall(t, env, "VEER.CHART", "sbp", ids, ages, vals, groups, "limit=4; extrapolate=true"))
 	num(t, tab[9][0])
 	num(t, tab[12][0])
+	// Two exams of a worker at one age fail the call, naming the sheet's
+	// rows (not the rows left after the blank ones).
+	dupAges := anyCol(sheet.ages)
+	dupAges[0] = nil // rows 1 to 3 are the first worker's
+	dupAges[2] = dupAges[1]
+	_, e := call(t, env, "VEER.CHART", "sbp", anyCol(sheet.ids), dupAges, anyCol(sheet.vals), anyCol(sheet.groups), "limit=4")
+	wantErr(t, e, cell.CodeValue, "rows 2 and 3", "same age")
 	// A text cell fails the call, naming the argument and the cell.
 	vals[3] = "n/a"
-	_, e := call(t, env, "VEER.CHART", "sbp", ids, ages, vals, anyCol(sheet.groups), "limit=4")
+	_, e = call(t, env, "VEER.CHART", "sbp", ids, ages, vals, anyCol(sheet.groups), "limit=4")
 	wantErr(t, e, cell.CodeValue, "'values'", "row 4", `"n/a"`)
 }
 
@@ -576,12 +591,13 @@ func TestLimit(t *testing.T) {
 		}
 	}
 	// With a model: the model's serial correlation and gaps (screening.Model.Limit).
-	for _, opts := range []string{"", "side=both", "serial=whiten", "serial=off", "method=bootstrap; reps=500"} {
-		o, _ := cell.ParseOptions("t", []string{"side", "serial", "method", "reps"}, cell.ScalarValue(cell.TextCell(opts)), "o")
+	for _, opts := range []string{"", "side=both", "serial=whiten", "serial=off", "serial=direct", "method=bootstrap; reps=500", "horizon=long", "horizon=followup; seed=7"} {
+		o, _ := cell.ParseOptions("t", []string{"side", "serial", "method", "reps", "horizon", "seed"}, cell.ScalarValue(cell.TextCell(opts)), "o")
 		set := screening.DefaultSettings()
 		set.Chart.Side = o.Text("side", set.Chart.Side)
 		set.Serial = o.Text("serial", set.Serial)
-		lo := screening.LimitOptions{Method: monitor.Method(o.Text("method", "normal")), Paths: int(o.Number("reps", 0)), Seed: screening.DefaultSeed}
+		lo := screening.LimitOptions{Method: monitor.Method(o.Text("method", "normal")), Paths: int(o.Number("reps", 0)),
+			Seed: uint64(o.Number("seed", screening.DefaultSeed)), Horizon: monitor.Horizon(o.Text("horizon", ""))}
 		want, err := m.Limit(set, lo, 20)
 		if err != nil {
 			t.Fatal(err)
@@ -688,7 +704,6 @@ func TestDelay(t *testing.T) {
 
 func TestModels(t *testing.T) {
 	env, m := newEnv(t)
-	ref, _ := reference(t)
 	other := synth(2, 160, 125, 0)
 	mustCall(t, env, "VEER.FIT", "sbp", other.ids, other.ages, other.vals, other.groups)
 	mustCall(t, env, "VEER.SAVERULES", "bp-rules", "high = z > 2.0")
@@ -701,5 +716,10 @@ func TestModels(t *testing.T) {
 	if fmt.Sprint(tab) != fmt.Sprint(want) {
 		t.Errorf("VEER.MODELS = %v; want %v", tab, want)
 	}
-	_ = ref
+	// An environment that cannot list models says so.
+	_, e := call(t, noList{env}, "VEER.MODELS")
+	wantErr(t, e, cell.CodeValue, "cannot list")
 }
+
+// noList is an Env without a way to list models.
+type noList struct{ cell.Env }

@@ -194,9 +194,9 @@ func callRule(ctx context.Context, env cell.Env, a cell.Args, cache *rules.Cache
 	if err := sh.screenable("VEER.RULE", m, s.Extrapolate); err != nil {
 		return nil, err
 	}
-	res, err := m.Screen(sh.exams, s, h)
+	res, err := sh.screen("VEER.RULE", m, s, h)
 	if err != nil {
-		return nil, cellError("VEER.RULE", err)
+		return nil, err
 	}
 	vars, err := screening.RuleExams(sh.exams, res, s, h)
 	if err != nil {
