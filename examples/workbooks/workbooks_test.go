@@ -14,6 +14,8 @@ import (
 	"strings"
 	"sync"
 	"testing"
+	"veer/functions/catalog"
+	vcell "veer/functions/cell"
 
 	"github.com/xuri/excelize/v2"
 
@@ -76,19 +78,16 @@ func TestCommittedWorkbooksReproducible(t *testing.T) {
 	}
 }
 
-// catalogue is the list of cell functions in the VEER namespace
-// (/tmp/veer/CATALOGUE.md at the time of writing, copied here).
-var catalogue = map[string]bool{
-	"VEER.FIT": true, "VEER.MODELS": true, "VEER.INFO": true, "VEER.REFMEAN": true, "VEER.REFSD": true,
-	"VEER.CENTILE": true, "VEER.ZSCORE": true, "VEER.CHART": true, "VEER.LIMIT": true, "VEER.DELAY": true,
-	"VEER.RULE": true, "VEER.RULECOLS": true,
+// catalogue reports whether name is a cell function of veer's catalogue.
+func catalogue(name string) bool {
+	_, ok := catalog.New().Lookup(name)
+	return ok
 }
 
-// catalogueOptions are the option names the catalogue defines.
-var catalogueOptions = map[string]bool{
-	"target": true, "limit": true, "chart": true, "side": true, "allowance": true, "lambda": true, "unit": true,
-	"head_start": true, "restart": true, "serial": true, "method": true, "gap": true, "seed": true, "paths": true,
-	"extrapolate": true, "transform": true, "bandwidth": true, "min_workers": true, "onset": true,
+// catalogueOptions reports whether name is an option some cell function takes.
+func catalogueOptions(name string) bool {
+	_, ok := vcell.LookupOption(name)
+	return ok
 }
 
 func demoTable(t *testing.T, b []byte) *table.Table {
@@ -191,7 +190,7 @@ func TestXLSXFormulas(t *testing.T) {
 				continue
 			}
 			for _, m := range veerCall.FindAllStringSubmatch(fo, -1) {
-				if !catalogue[m[1]] {
+				if !catalogue(m[1]) {
 					t.Errorf("%s: %s is not a catalogue function", ref, m[1])
 				}
 				used[m[1]]++
@@ -200,7 +199,7 @@ func TestXLSXFormulas(t *testing.T) {
 				a, _ := strconv.Atoi(m[1])
 				b, _ := strconv.Atoi(m[2])
 				for row := a; row <= b; row++ {
-					if name := settings(row, "A"); !catalogueOptions[name] {
+					if name := settings(row, "A"); !catalogueOptions(name) {
 						t.Errorf("%s: options range row %d holds %q, not an option name", ref, row, name)
 					}
 				}
