@@ -13,6 +13,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"runtime/debug"
 	"strings"
 )
 
@@ -68,6 +69,9 @@ func mainUsage(w io.Writer) {
 }
 
 func main() {
+	// Screening a large sheet allocates a few large, long-lived tables;
+	// collecting garbage less often saves a fifth of the time.
+	debug.SetGCPercent(400)
 	os.Exit(run(&env{stdout: os.Stdout, stderr: os.Stderr, stdin: os.Stdin}, os.Args[1:]))
 }
 

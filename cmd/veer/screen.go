@@ -131,15 +131,16 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 
 // summary prints what was screened on stderr.
 func (j *screenJob) summary(e *env) {
-	flagged := map[string]bool{}
-	workers := map[string]bool{}
-	for i, r := range j.results {
-		workers[j.exams[i].Worker] = true
-		if r.Signal {
-			flagged[j.exams[i].Worker] = true
+	workers, flagged := 0, 0
+	for _, r := range j.results {
+		if r.Exam == 1 {
+			workers++
+			if !math.IsNaN(r.FirstSignal) {
+				flagged++
+			}
 		}
 	}
-	fmt.Fprintf(e.stderr, "screened %d exams of %d workers at limit %.4f: %d workers signalled\n", len(j.results), len(workers), j.limit.H, len(flagged))
+	fmt.Fprintf(e.stderr, "screened %d exams of %d workers at limit %.4f: %d workers signalled\n", len(j.results), workers, j.limit.H, flagged)
 	fmt.Fprintln(e.stderr, caution)
 }
 
