@@ -48,6 +48,8 @@ func commands() []command {
 		{"report", "screen exams and write a self-contained HTML report", runReport},
 		{"serve", "run the local function server for spreadsheet add-ins", runServe},
 		{"token", "print the write token that add-ins need (creating it if needed)", runToken},
+		{"cert", "create the local HTTPS certificate the web add-in needs", runCert},
+		{"addin", "print the web add-in's manifest or function metadata", runAddin},
 		{"calc-extension", "build the LibreOffice Calc extension (veer.oxt) from the function catalogue", runCalcExtension},
 		{"demo", "run the whole screening job on the embedded demo data", runDemo},
 	}

@@ -2,14 +2,20 @@ package main
 
 import (
 	"context"
+	"crypto/tls"
 	"flag"
 	"fmt"
+	"io/fs"
 	"log/slog"
+	"net"
+	"net/url"
 	"os"
 	"os/signal"
 	"strings"
 	"syscall"
+	"time"
 
+	"veer/addin/web"
 	"veer/examples"
 	"veer/functions/catalog"
 	"veer/functions/refcurve"
@@ -55,6 +61,12 @@ type serverFlags struct {
 	addr, data string
 	origins    stringList
 	verbose    bool
+	tls        bool
+
+	// Not flags. tlsConfig is set by runServe for --tls; testFiles, when
+	// set, is served at /addin/test/ (the browser tests' stand-in host).
+	tlsConfig *tls.Config
+	testFiles fs.FS
 }
 
 func (f *serverFlags) register(fs *flag.FlagSet) {
@@ -62,6 +74,30 @@ func (f *serverFlags) register(fs *flag.FlagSet) {
 	fs.StringVar(&f.data, "data", "", "folder for models and the install token (default: "+defaultDataDir()+")")
 	fs.Var(&f.origins, "origin", "extra browser origin allowed to call the server, e.g. https://localhost:7312 (repeatable)")
 	fs.BoolVar(&f.verbose, "verbose", false, "log every call (function names, timings and sizes; never values or ids)")
+	fs.BoolVar(&f.tls, "tls", false, "serve HTTPS with the local certificate (created by 'veer cert' or on first use), as spreadsheet add-ins need")
+}
+
+// dataDir returns the data folder the flags name, or the default.
+func (f *serverFlags) dataDir() (string, error) {
+	if f.data != "" {
+		return f.data, nil
+	}
+	return server.DefaultDataDir()
+}
+
+// addinBase returns the base URL the add-in manifest points at for a
+// server listening on addr: localhost (the name in the local certificate)
+// and the port.
+func addinBase(addr string, tls bool) string {
+	_, port, err := net.SplitHostPort(addr)
+	if err != nil || port == "" {
+		port = "7311"
+	}
+	scheme := "http"
+	if tls {
+		scheme = "https"
+	}
+	return scheme + "://localhost:" + port
 }
 
 func newServer(e *env, f *serverFlags) (*server.Server, error) {
@@ -70,16 +106,35 @@ func newServer(e *env, f *serverFlags) (*server.Server, error) {
 		level = slog.LevelWarn
 	}
 	logger := slog.New(slog.NewTextHandler(e.stderr, &slog.HandlerOptions{Level: level}))
-	dir := f.data
-	if dir == "" {
-		var err error
-		if dir, err = server.DefaultDataDir(); err != nil {
-			return nil, err
-		}
+	dir, err := f.dataDir()
+	if err != nil {
+		return nil, err
 	}
-	s, err := server.New(server.Config{
-		Addr: f.addr, DataDir: dir, Catalogue: catalog.New(),
+	cat := catalog.New()
+	// The add-in's manifest names the port the server really got.
+	var s *server.Server
+	base := func() string {
+		if s != nil {
+			for _, u := range s.URLs() {
+				if pu, err := url.Parse(u); err == nil && pu.Port() != "" {
+					return addinBase(pu.Host, f.tlsConfig != nil)
+				}
+			}
+		}
+		return addinBase(f.addr, f.tlsConfig != nil)
+	}
+	opt := web.SiteOptions{BaseURL: base}
+	if f.testFiles != nil {
+		opt.Mount = map[string]fs.FS{"test": f.testFiles}
+	}
+	site, err := web.Site(cat.Listing(), opt)
+	if err != nil {
+		return nil, fmt.Errorf("building the add-in files: %v", err)
+	}
+	s, err = server.New(server.Config{
+		Addr: f.addr, DataDir: dir, Catalogue: cat,
 		AllowedOrigins: f.origins, Logger: logger,
+		TLS: f.tlsConfig, Static: site,
 	})
 	if err != nil {
 		return nil, err
@@ -97,11 +152,29 @@ func newServer(e *env, f *serverFlags) (*server.Server, error) {
 }
 
 func runServe(e *env, args []string) error {
-	fs := newFlags(e, "serve", "[--addr 127.0.0.1:PORT] [--data DIR]")
+	fs := newFlags(e, "serve", "[--addr 127.0.0.1:PORT] [--data DIR] [--tls]")
 	var sf serverFlags
 	sf.register(fs)
 	if err := parseFlags(fs, args); err != nil {
 		return err
+	}
+	if sf.tls {
+		dir, err := sf.dataDir()
+		if err != nil {
+			return err
+		}
+		cfg, leaf, created, err := serverTLS(dir, time.Now())
+		if err != nil {
+			return err
+		}
+		sf.tlsConfig = cfg
+		certPath, _ := certPaths(dir)
+		if created {
+			fmt.Fprintf(e.stderr, "Created the local certificate %s.\nTrust it once (see 'veer cert'), or the spreadsheet will refuse the add-in.\n", certPath)
+		}
+		if left := time.Until(leaf.NotAfter); left < 30*24*time.Hour {
+			fmt.Fprintf(e.stderr, "The local certificate expires on %s: run 'veer cert --force' and trust the new one.\n", leaf.NotAfter.Format("2006-01-02"))
+		}
 	}
 	s, err := newServer(e, &sf)
 	if err != nil {
@@ -116,8 +189,17 @@ func runServe(e *env, args []string) error {
 	defer stop()
 	done := make(chan error, 1)
 	go func() { done <- s.Serve(ctx, ln) }()
-	fmt.Fprintf(e.stdout, "http://%s/\n", ln.Addr().String())
-	fmt.Fprintf(e.stderr, "veer is serving on http://%s/ (models in %s); press Ctrl+C to stop.\n", ln.Addr().String(), s.DataDir())
+	scheme := "http"
+	if sf.tlsConfig != nil {
+		scheme = "https"
+	}
+	fmt.Fprintf(e.stdout, "%s://%s/\n", scheme, ln.Addr().String())
+	fmt.Fprintf(e.stderr, "veer is serving on %s://%s/ (models in %s); press Ctrl+C to stop.\n", scheme, ln.Addr().String(), s.DataDir())
+	base := addinBase(ln.Addr().String(), sf.tlsConfig != nil)
+	fmt.Fprintf(e.stderr, "Spreadsheet add-in: %s/addin/ (manifest: %s/addin/manifest.xml).\n", base, base)
+	if sf.tlsConfig == nil {
+		fmt.Fprintln(e.stderr, "Spreadsheets load add-ins only over HTTPS: use --tls for the web add-in.")
+	}
 	fmt.Fprintln(e.stderr, "Built-in models: demo-sbp, demo-fev1. Writing (fitting) needs the token printed by 'veer token'.")
 	fmt.Fprintln(e.stderr, caution)
 	err = <-done
