@@ -579,6 +579,7 @@ func callLimit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
+	lo.Stop = func() bool { return ctx.Err() != nil }
 	if o.Has(cell.OptionTarget) || o.Has(cell.OptionLimit) {
 		return nil, cell.ValueError("VEER.LIMIT: the target is the first argument; do not give target or limit as options")
 	}
@@ -606,6 +607,7 @@ func callDelay(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
+	lo.Stop = func() bool { return ctx.Err() != nil }
 	h, err := resolveLimit(env, "VEER.DELAY", m, ref, o, s, lo)
 	if err != nil {
 		return nil, err
@@ -626,6 +628,7 @@ func callDelay(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		if err != nil {
 			return nil, err
 		}
+		c.Stop = lo.Stop
 		c.Progress = func(done, total int) {
 			if total > 0 {
 				env.Progress(float64(done) / float64(total))
@@ -805,6 +808,7 @@ func callChart(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
+	lo.Stop = func() bool { return ctx.Err() != nil }
 	h, err := resolveLimit(env, "VEER.CHART", m, ref, o, s, lo)
 	if err != nil {
 		return nil, err

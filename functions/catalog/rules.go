@@ -187,6 +187,7 @@ func callRule(ctx context.Context, env cell.Env, a cell.Args, cache *rules.Cache
 	if err != nil {
 		return nil, err
 	}
+	lo.Stop = func() bool { return ctx.Err() != nil }
 	h, err := resolveLimit(env, "VEER.RULE", m, ref, o, s, lo)
 	if err != nil {
 		return nil, err

@@ -13,6 +13,9 @@ import (
 	"veer/functions/chart"
 )
 
+// ErrStopped is returned when MonteCarlo.Stop ended a simulation early.
+var ErrStopped = errors.New("limit: the computation was cancelled")
+
 // Stream is one simulated worker history: each call to Next returns the gap
 // in years since the previous exam (for the first exam, since the start of
 // monitoring) and the value to chart. A negative gap marks the first exam of
@@ -51,6 +54,9 @@ type MonteCarlo struct {
 	// or more main passes). Calls may come from any goroutine but never
 	// concurrently, and within a pass done increases.
 	Progress func(done, total int)
+	// Stop, if not nil, is asked before each path; when it answers true the
+	// simulation ends early with ErrStopped (a cancelled computation).
+	Stop func() bool
 }
 
 func (mc MonteCarlo) withDefaults() MonteCarlo {
@@ -128,6 +134,12 @@ func (mc MonteCarlo) simulate(spec chart.Spec, ns StreamFunc, n int, hMax, capTi
 			for {
 				i := int(next.Add(1) - 1)
 				if i >= n {
+					return
+				}
+				if mc.Stop != nil && mc.Stop() {
+					mu.Lock()
+					firstErr = ErrStopped
+					mu.Unlock()
 					return
 				}
 				tr.Reset()
@@ -316,6 +328,7 @@ func (mc MonteCarlo) Delay(spec chart.Spec, h float64, ns StreamFunc, onset floa
 	flags := make([]int8, mc.Paths) // 0 ok, 1 early, 2 censored
 	var (
 		next, done atomic.Int64
+		stopped    atomic.Bool
 		mu         sync.Mutex
 		wg         sync.WaitGroup
 		reported   int64
@@ -327,6 +340,10 @@ func (mc MonteCarlo) Delay(spec chart.Spec, h float64, ns StreamFunc, onset floa
 			for {
 				i := int(next.Add(1) - 1)
 				if i >= mc.Paths {
+					return
+				}
+				if mc.Stop != nil && mc.Stop() {
+					stopped.Store(true)
 					return
 				}
 				tr.Reset()
@@ -362,6 +379,9 @@ func (mc MonteCarlo) Delay(spec chart.Spec, h float64, ns StreamFunc, onset floa
 		})
 	}
 	wg.Wait()
+	if stopped.Load() {
+		return RunLength{}, ErrStopped
+	}
 	var r RunLength
 	var s, s2 float64
 	n := 0

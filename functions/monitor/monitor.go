@@ -135,6 +135,9 @@ type Calibration struct {
 	// Progress, if not nil, reports Monte Carlo progress (see
 	// limit.MonteCarlo.Progress).
 	Progress func(done, total int)
+	// Stop, if not nil, is asked during Monte Carlo work; answering true
+	// cancels it (limit.ErrStopped).
+	Stop func() bool
 	// Horizon says what the average time to a false signal counts:
 	// HorizonLong (the default) follows one healthy worker through an
 	// unending exam history, the textbook ATS; HorizonFollowUp follows a
@@ -333,7 +336,7 @@ func (p *prepared) constantGaps() bool {
 }
 
 func (p *prepared) mc() limit.MonteCarlo {
-	return limit.MonteCarlo{Paths: p.c.Paths, Seed: p.c.Seed, Progress: p.c.Progress}
+	return limit.MonteCarlo{Paths: p.c.Paths, Seed: p.c.Seed, Progress: p.c.Progress, Stop: p.c.Stop}
 }
 
 // iid reports whether the charted values are i.i.d. N(0,1) for a healthy

@@ -50,9 +50,9 @@ func (m *Model) Items() []Item {
 	s, sd := m.Serial, m.SerialDiagnostics
 	items = append(items,
 		Item{"serial correlation phi (per year)", s.Phi},
-		Item{"phi standard error", s.SEPhi},
+		Item{"phi standard error (0: not available)", s.SEPhi},
 		Item{"persistent share c", s.C},
-		Item{"c standard error", s.SEC},
+		Item{"c standard error (0: not available)", s.SEC},
 		Item{"pairs of exams used", s.Pairs},
 		Item{"innovations lag-1 correlation", sd.Lag1},
 		Item{"innovations lag-1 p-value", sd.Lag1P},

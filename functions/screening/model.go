@@ -90,6 +90,14 @@ func Fit(rows []refcurve.Row, opt FitOptions) (*Model, error) {
 	if err != nil {
 		return nil, fmt.Errorf("serial correlation: %v", err)
 	}
+	// With (almost) no correlation the standard errors can be undefined;
+	// they are stored as 0, "not available", so the model stays valid JSON.
+	if !finite(params.SEPhi) {
+		params.SEPhi = 0
+	}
+	if !finite(params.SEC) {
+		params.SEC = 0
+	}
 	m := &Model{
 		Name:    opt.Name,
 		Curves:  curves,
@@ -249,3 +257,5 @@ func (m *Model) Summary() string {
 	return fmt.Sprintf("groups %s; serial correlation phi %.3f per year, persistent share c %.3f; mean gap %.2f years",
 		strings.Join(m.Curves.Groups(), ", "), m.Serial.Phi, m.Serial.C, m.MeanGap)
 }
+
+func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }

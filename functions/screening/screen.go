@@ -237,8 +237,10 @@ type LimitOptions struct {
 	// Seed and Paths steer Monte Carlo methods (0: defaults).
 	Seed  uint64
 	Paths int
-	// Progress, if not nil, reports Monte Carlo progress.
+	// Progress, if not nil, reports Monte Carlo progress; Stop, if not
+	// nil, is asked during Monte Carlo work and cancels it when true.
 	Progress func(done, total int)
+	Stop     func() bool
 	// Horizon is what the target counts (see monitor.Calibration.Horizon):
 	// "" or monitor.HorizonFollowUp, the default, means worker-years of
 	// exams per false signal across workers followed as long as the
@@ -272,7 +274,7 @@ func (m *Model) Calibration(set Settings, o LimitOptions) (monitor.Calibration, 
 	}
 	return monitor.Calibration{
 		Settings: ms, Method: o.Method, Gap: o.Gap, Reference: ref,
-		Seed: o.Seed, Paths: o.Paths, Progress: o.Progress, Horizon: o.Horizon,
+		Seed: o.Seed, Paths: o.Paths, Progress: o.Progress, Stop: o.Stop, Horizon: o.Horizon,
 	}, nil
 }
 

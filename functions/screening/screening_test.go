@@ -223,3 +223,24 @@ func BenchmarkScreen1M(b *testing.B) {
 	}
 	b.ReportMetric(float64(len(ex)), "exams")
 }
+
+// TestFitIndependentReadings fits readings with no serial correlation at
+// all, where the correlation's standard errors are undefined: the model must
+// still be written and read back.
+func TestFitIndependentReadings(t *testing.T) {
+	rng := rand.New(rand.NewPCG(9, 9))
+	var rows []refcurve.Row
+	for w := 0; w < 200; w++ {
+		for j := 0; j < 6; j++ {
+			rows = append(rows, refcurve.Row{Worker: fmt.Sprintf("w%d", w), Time: 30 + float64(j) + rng.Float64()*0.5, Value: 100 + rng.NormFloat64()})
+		}
+	}
+	m := fit(t, rows)
+	doc, err := m.Encode()
+	if err != nil {
+		t.Fatalf("encoding a model of independent readings: %v", err)
+	}
+	if _, err := Decode(doc); err != nil {
+		t.Fatal(err)
+	}
+}
