@@ -1,6 +1,7 @@
 package catalog
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"strings"
@@ -60,7 +61,7 @@ func ruleFuncs(cache *rules.Cache) []cell.Func {
 const ruleSetPrefix = "# veer rule set\n"
 
 // isRuleSet reports whether a stored document is a rule set.
-func isRuleSet(doc []byte) bool { return strings.HasPrefix(string(doc), ruleSetPrefix) }
+func isRuleSet(doc []byte) bool { return bytes.HasPrefix(doc, []byte(ruleSetPrefix)) }
 
 func callSaveRules(env cell.Env, a cell.Args, cache *rules.Cache) (any, error) {
 	name, err := a.Text(0)
