@@ -3,6 +3,7 @@ package serial
 import (
 	"fmt"
 	"math"
+	"veer/functions/refcurve"
 
 	"gonum.org/v1/gonum/stat"
 	"gonum.org/v1/gonum/stat/distuv"
@@ -84,63 +85,19 @@ func PearsonTest(x, y []float64) (r, p float64) {
 	return r, p
 }
 
-// NormalityTest is the D'Agostino-Pearson omnibus test (D'Agostino &
-// Pearson 1973, "Tests for departure from normality", Biometrika 60;
-// skewness transform of D'Agostino 1970, kurtosis transform of Anscombe &
-// Glynn 1983), the test scipy.stats.normaltest computes:
+// NormalityTest is the D'Agostino-Pearson omnibus test, the test
+// scipy.stats.normaltest computes (formulas and references at
+// refcurve.DAgostinoPearson, which it calls):
 //
 //	K^2 = Z(sqrt b1)^2 + Z(b2)^2 ~ chi^2_2 under normality.
 //
 // It returns K^2, its p-value, the sample skewness sqrt(b1) = m3/m2^1.5 and
-// the excess kurtosis b2 - 3 = m4/m2^2 - 3. Needs len(x) >= 20 (n >= 8 for
-// the formulas; smaller samples give NaN). Hand-written: gonum has the
-// moments but not this test.
+// the excess kurtosis b2 - 3 = m4/m2^2 - 3; all NaN when the test cannot be
+// computed (fewer than 8 values, or values that are not finite or all equal).
 func NormalityTest(x []float64) (k2, p, skew, exkurt float64) {
-	n := float64(len(x))
-	if n < 8 {
+	nt, err := refcurve.DAgostinoPearson(x)
+	if err != nil {
 		return math.NaN(), math.NaN(), math.NaN(), math.NaN()
 	}
-	mean := stat.Mean(x, nil)
-	var m2, m3, m4 float64
-	for _, v := range x {
-		d := v - mean
-		d2 := d * d
-		m2 += d2
-		m3 += d2 * d
-		m4 += d2 * d2
-	}
-	m2, m3, m4 = m2/n, m3/n, m4/n
-	b1 := m3 / math.Pow(m2, 1.5)
-	b2 := m4 / (m2 * m2)
-
-	// Skewness test (D'Agostino 1970).
-	y := b1 * math.Sqrt((n+1)*(n+3)/(6*(n-2)))
-	beta2 := 3 * (n*n + 27*n - 70) * (n + 1) * (n + 3) / ((n - 2) * (n + 5) * (n + 7) * (n + 9))
-	w2 := -1 + math.Sqrt(2*(beta2-1))
-	delta := 1 / math.Sqrt(0.5*math.Log(w2))
-	alpha := math.Sqrt(2 / (w2 - 1))
-	if y == 0 {
-		y = 1
-	}
-	zs := delta * math.Log(y/alpha+math.Sqrt((y/alpha)*(y/alpha)+1))
-
-	// Kurtosis test (Anscombe & Glynn 1983).
-	e := 3 * (n - 1) / (n + 1)
-	varb2 := 24 * n * (n - 2) * (n - 3) / ((n + 1) * (n + 1) * (n + 3) * (n + 5))
-	xk := (b2 - e) / math.Sqrt(varb2)
-	sb1 := 6 * (n*n - 5*n + 2) / ((n + 7) * (n + 9)) * math.Sqrt(6*(n+3)*(n+5)/(n*(n-2)*(n-3)))
-	a := 6 + 8/sb1*(2/sb1+math.Sqrt(1+4/(sb1*sb1)))
-	t1 := 1 - 2/(9*a)
-	den := 1 + xk*math.Sqrt(2/(a-4))
-	var t2 float64
-	if den != 0 {
-		t2 = math.Copysign(math.Cbrt((1-2/a)/math.Abs(den)), den)
-	} else {
-		t2 = math.NaN()
-	}
-	zk := (t1 - t2) / math.Sqrt(2/(9*a))
-
-	k2 = zs*zs + zk*zk
-	p = math.Exp(-k2 / 2) // chi-squared survival with 2 df
-	return k2, p, b1, b2 - 3
+	return nt.Statistic, nt.PValue, nt.Skewness, nt.ExcessKurtosis
 }
