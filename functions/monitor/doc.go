@@ -47,7 +47,7 @@
 // persistent personal levels of markers such as blood pressure or lung
 // function (phi near 1 per year, c near 0.8), the direct chart's limit must
 // absorb healthy workers who sit high for years, and a drift that starts
-// after a healthy history — what screening is for — is caught 8-30% sooner
+// after a healthy history — what screening is for — is caught 4-28% sooner
 // by whitening, which compares each reading with the worker's own predicted
 // level; a shift present from the very first exam is, by the same token,
 // partly taken for the worker's own level. On the synthetic demo cohort
