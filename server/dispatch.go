@@ -56,6 +56,7 @@ type outcome struct {
 // callOpts carry per-caller facts.
 type callOpts struct {
 	authorized bool         // a valid install token came with the call
+	tokenSent  bool         // some token came with the call (in a header)
 	progress   progressSink // receives progress reports, or nil
 }
 
@@ -107,7 +108,7 @@ func (e *engine) call(ctx context.Context, req *request, opts callOpts) *outcome
 	}
 	if f.Writes && !opts.authorized {
 		msg := "%s saves models and needs the install token: run `veer token` and paste it into the add-in settings (HTTP: header " + TokenHeader + ")"
-		if req.token != "" {
+		if req.token != "" || opts.tokenSent {
 			msg = "%s saves models and the token sent is wrong: run `veer token` and paste it into the add-in settings"
 		}
 		return errOutcome(cell.ValueError(msg, f.Name))

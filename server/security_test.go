@@ -156,7 +156,7 @@ func TestWritesNeedToken(t *testing.T) {
 		part    string
 	}{
 		{"no token", nil, fit, false, "needs the install token"},
-		{"wrong token", []string{TokenHeader + ": " + strings.Repeat("0", 64)}, fit, false, "needs the install token"},
+		{"wrong token", []string{TokenHeader + ": " + strings.Repeat("0", 64)}, fit, false, "the token sent is wrong"},
 		{"wrong token in body", nil, `{"fn":"VEER.T.FIT","args":["m",[1,2,3]],"token":"nope"}`, false, "token sent is wrong"},
 		{"right token in header", []string{h.tokenHeader()}, fit, true, ""},
 		{"right token in body", nil, `{"fn":"VEER.T.FIT","args":["m",[1,2,4]],"token":"` + h.s.Token() + `"}`, true, ""},

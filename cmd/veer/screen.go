@@ -168,7 +168,7 @@ func (j *screenJob) markerResults(name string) workbook.MarkerResults {
 
 func (j *screenJob) reportSection(marker, unit string) report.Section {
 	sec := report.Section{
-		Marker: marker, Unit: unit, Model: j.model, Settings: j.settings, Limit: j.limit,
+		Marker: marker, Short: strings.ToUpper(j.model.Name), Unit: unit, Model: j.model, Settings: j.settings, Limit: j.limit,
 		Target: j.target, Exams: j.exams, Results: j.results,
 	}
 	for k, n := range j.ruleNames {
