@@ -38,6 +38,20 @@ func demoMarkers() []demoMarker {
 	}
 }
 
+// beyondCutoff flags each exam whose reading lies beyond the marker's
+// cut-off centile in the direction of harm (the fixed cut-off rule).
+func (mk demoMarker) beyondCutoff(res []screening.Result) []bool {
+	out := make([]bool, len(res))
+	for i, x := range res {
+		if mk.side == chart.Up {
+			out[i] = x.Centile > mk.cutoff
+		} else {
+			out[i] = x.Centile < mk.cutoff
+		}
+	}
+	return out
+}
+
 // demoRules are the alert rules the demo adds as columns.
 const demoRules = `# Rules the demo adds as columns (see examples/rules for more).
 chart_over_limit [high] = chart > limit
@@ -184,15 +198,7 @@ func demoOne(e *env, mk demoMarker, ref, work *table.Table, truth map[string]scr
 	r.rows = append(r.rows, demoRow{fmt.Sprintf("veer, %g-year target", target), screening.Evaluate(exams, sig, truth)})
 
 	// The fixed cut-off rule: any reading beyond the reference centile.
-	cut := make([]bool, len(res))
-	for i, x := range res {
-		if mk.side == chart.Up {
-			cut[i] = x.Centile > mk.cutoff
-		} else {
-			cut[i] = x.Centile < mk.cutoff
-		}
-	}
-	cutEv := screening.Evaluate(exams, cut, truth)
+	cutEv := screening.Evaluate(exams, mk.beyondCutoff(res), truth)
 	r.rows = append(r.rows, demoRow{fmt.Sprintf("any reading beyond the %gth centile", mk.cutoff), cutEv})
 
 	// veer at the cut-off rule's own false-signal rate on the healthy
@@ -205,15 +211,7 @@ func demoOne(e *env, mk demoMarker, ref, work *table.Table, truth map[string]scr
 	if err != nil {
 		return nil, err
 	}
-	refCut := make([]bool, len(refRes))
-	for i, x := range refRes {
-		if mk.side == chart.Up {
-			refCut[i] = x.Centile > mk.cutoff
-		} else {
-			refCut[i] = x.Centile < mk.cutoff
-		}
-	}
-	refEv := screening.Evaluate(refExams, refCut, nil)
+	refEv := screening.Evaluate(refExams, mk.beyondCutoff(refRes), nil)
 	if refEv.FalseSignals > 0 {
 		matched := refEv.YearsAtRisk / float64(refEv.FalseSignals)
 		limM, err := m.Limit(set, screening.LimitOptions{}, matched)
