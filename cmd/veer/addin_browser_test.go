@@ -43,18 +43,6 @@ import (
 // anything the platform would refuse. Every expected number comes from the
 // same server over plain HTTP (/v1/call): the add-in must add nothing.
 
-// addinLog collects the server's log lines from several goroutines.
-type addinLog struct {
-	mu sync.Mutex
-	b  bytes.Buffer
-}
-
-func (l *addinLog) Write(p []byte) (int, error) {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.Write(p)
-}
-
 // addinServer is a veer server serving in this process, built exactly as
 // `veer serve` builds it, plus the test host page at /addin/test/.
 type addinServer struct {
@@ -76,7 +64,7 @@ func startAddinServer(t *testing.T, addr, dir string) *addinServer {
 func buildAddinServer(t *testing.T, addr, dir string) *addinServer {
 	t.Helper()
 	sf := &serverFlags{addr: addr, data: dir, testFiles: os.DirFS(filepath.Join("..", "..", "addin", "web", "testdata"))}
-	s, err := newServer(&env{stdout: io.Discard, stderr: &addinLog{}}, sf)
+	s, err := newServer(&env{stdout: io.Discard, stderr: &serveLog{}}, sf)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -783,7 +771,7 @@ func TestWebAddinOverTLS(t *testing.T) {
 		t.Fatal(err)
 	}
 	sf := &serverFlags{addr: "127.0.0.1:0", data: dir, tlsConfig: cfg, testFiles: os.DirFS(filepath.Join("..", "..", "addin", "web", "testdata"))}
-	s, err := newServer(&env{stdout: io.Discard, stderr: &addinLog{}}, sf)
+	s, err := newServer(&env{stdout: io.Discard, stderr: &serveLog{}}, sf)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"math"
 	"regexp"
-	"runtime/debug"
 	"strconv"
 	"strings"
 	"testing"
@@ -100,21 +99,6 @@ func nOfM(s string) (n, m int, ok bool) {
 	return n, m, err1 == nil && err2 == nil
 }
 
-// raceEnabled reports whether the test binary was built with -race, which
-// slows the demo several times over.
-func raceEnabled() bool {
-	bi, ok := debug.ReadBuildInfo()
-	if !ok {
-		return false
-	}
-	for _, s := range bi.Settings {
-		if s.Key == "-race" && s.Value == "true" {
-			return true
-		}
-	}
-	return false
-}
-
 // TestDemoBeatsCutoff runs `veer demo` in-process on the embedded scenario
 // and checks the issue's claim on the demo truth, for both markers: veer's
 // chart with its limit set for the cut-off rule's own false-signal rate
@@ -147,7 +131,7 @@ func TestDemoBeatsCutoff(t *testing.T) {
 		t.Fatalf("veer demo exited %d\nstderr:\n%s", code, stderr.String())
 	}
 	t.Logf("veer demo took %v", took)
-	if raceEnabled() {
+	if builtWithRace() {
 		t.Log("race detector on: the 10-second target is not checked")
 	} else if took > 10*time.Second {
 		t.Errorf("veer demo took %v; the target is at most 10 s", took)

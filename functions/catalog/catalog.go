@@ -562,24 +562,36 @@ func optionalModel(ctx context.Context, env cell.Env, a cell.Args, i int) (*scre
 	return modelArg(ctx, env, a, i)
 }
 
+// modelAndChart reads the optional model (argument 1) and the chart options
+// (argument 2) of VEER.LIMIT and VEER.DELAY; the Monte Carlo work stops when
+// the call is cancelled.
+func modelAndChart(ctx context.Context, env cell.Env, a cell.Args) (*screening.Model, cell.ModelRef, cell.Options, screening.Settings, screening.LimitOptions, error) {
+	fn := a.Func().Name
+	m, ref, err := optionalModel(ctx, env, a, 1)
+	if err != nil {
+		return nil, ref, cell.Options{}, screening.Settings{}, screening.LimitOptions{}, err
+	}
+	o, err := a.Options(2)
+	if err != nil {
+		return nil, ref, o, screening.Settings{}, screening.LimitOptions{}, err
+	}
+	s, lo, err := chartSettings(fn, o)
+	if err != nil {
+		return nil, ref, o, s, lo, err
+	}
+	lo.Stop = func() bool { return ctx.Err() != nil }
+	return m, ref, o, s, lo, nil
+}
+
 func callLimit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	target, err := a.Number(0)
 	if err != nil {
 		return nil, err
 	}
-	m, ref, err := optionalModel(ctx, env, a, 1)
+	m, ref, o, s, lo, err := modelAndChart(ctx, env, a)
 	if err != nil {
 		return nil, err
 	}
-	o, err := a.Options(2)
-	if err != nil {
-		return nil, err
-	}
-	s, lo, err := chartSettings("VEER.LIMIT", o)
-	if err != nil {
-		return nil, err
-	}
-	lo.Stop = func() bool { return ctx.Err() != nil }
 	if o.Has(cell.OptionTarget) || o.Has(cell.OptionLimit) {
 		return nil, cell.ValueError("VEER.LIMIT: the target is the first argument; do not give target or limit as options")
 	}
@@ -595,19 +607,10 @@ func callDelay(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
-	m, ref, err := optionalModel(ctx, env, a, 1)
+	m, ref, o, s, lo, err := modelAndChart(ctx, env, a)
 	if err != nil {
 		return nil, err
 	}
-	o, err := a.Options(2)
-	if err != nil {
-		return nil, err
-	}
-	s, lo, err := chartSettings("VEER.DELAY", o)
-	if err != nil {
-		return nil, err
-	}
-	lo.Stop = func() bool { return ctx.Err() != nil }
 	h, err := resolveLimit(env, "VEER.DELAY", m, ref, o, s, lo)
 	if err != nil {
 		return nil, err
