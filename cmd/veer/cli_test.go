@@ -584,3 +584,25 @@ func builtWithRace() bool {
 	}
 	return false
 }
+
+// TestBatchCommands: only the commands that work through a file and end
+// raise the GC target; veer serve keeps the default.
+func TestBatchCommands(t *testing.T) {
+	for _, c := range []struct {
+		args []string
+		want bool
+	}{
+		{[]string{"screen", "--in", "x.csv"}, true},
+		{[]string{"fit"}, true},
+		{[]string{"report"}, true},
+		{[]string{"demo"}, true},
+		{[]string{"serve", "--addr", "127.0.0.1:0"}, false},
+		{[]string{"limit"}, false},
+		{[]string{"nonsense"}, false},
+		{nil, false},
+	} {
+		if got := batchCommand(c.args); got != c.want {
+			t.Errorf("batchCommand(%q) = %v; want %v", c.args, got, c.want)
+		}
+	}
+}

@@ -22,6 +22,9 @@ type command struct {
 	name    string
 	summary string
 	run     func(env *env, args []string) error
+	// batch: the command works through a file and ends (fit, screen,
+	// report, demo); it runs with a higher GC target (see main).
+	batch bool
 }
 
 // env carries the process streams so commands can be tested in-process.
@@ -40,18 +43,18 @@ func usagef(format string, a ...any) error { return usageError{fmt.Sprintf(forma
 
 func commands() []command {
 	return []command{
-		{"fit", "fit a reference model from a CSV of healthy workers' exams", runFit},
-		{"curve", "print reference mean, sd and centiles at given ages", runCurve},
-		{"limit", "compute the control limit for a target time to a false signal", runLimit},
-		{"delay", "expected years from the start of a sustained shift to a signal", runDelay},
-		{"screen", "screen a CSV file or .xlsx workbook of exams against a model", runScreen},
-		{"report", "screen exams and write a self-contained HTML report", runReport},
-		{"serve", "run the local function server for spreadsheet add-ins", runServe},
-		{"token", "print the write token that add-ins need (creating it if needed)", runToken},
-		{"cert", "create the local HTTPS certificate the web add-in needs", runCert},
-		{"addin", "print the web add-in's manifest or function metadata", runAddin},
-		{"calc-extension", "build the LibreOffice Calc extension (veer.oxt) from the function catalogue", runCalcExtension},
-		{"demo", "run the whole screening job on the embedded demo data", runDemo},
+		{"fit", "fit a reference model from a CSV of healthy workers' exams", runFit, true},
+		{"curve", "print reference mean, sd and centiles at given ages", runCurve, false},
+		{"limit", "compute the control limit for a target time to a false signal", runLimit, false},
+		{"delay", "expected years from the start of a sustained shift to a signal", runDelay, false},
+		{"screen", "screen a CSV file or .xlsx workbook of exams against a model", runScreen, true},
+		{"report", "screen exams and write a self-contained HTML report", runReport, true},
+		{"serve", "run the local function server for spreadsheet add-ins", runServe, false},
+		{"token", "print the write token that add-ins need (creating it if needed)", runToken, false},
+		{"cert", "create the local HTTPS certificate the web add-in needs", runCert, false},
+		{"addin", "print the web add-in's manifest or function metadata", runAddin, false},
+		{"calc-extension", "build the LibreOffice Calc extension (veer.oxt) from the function catalogue", runCalcExtension, false},
+		{"demo", "run the whole screening job on the embedded demo data", runDemo, true},
 	}
 }
 
@@ -71,10 +74,27 @@ func mainUsage(w io.Writer) {
 }
 
 func main() {
-	// Screening a large sheet allocates a few large, long-lived tables;
-	// collecting garbage less often saves a fifth of the time.
-	debug.SetGCPercent(400)
+	if batchCommand(os.Args[1:]) {
+		// Screening a large sheet allocates a few large, long-lived
+		// tables; collecting garbage less often saves a fifth of the
+		// time. Not for veer serve: a long-running server keeps the
+		// default, so its memory stays close to what it holds.
+		debug.SetGCPercent(400)
+	}
 	os.Exit(run(&env{stdout: os.Stdout, stderr: os.Stderr, stdin: os.Stdin}, os.Args[1:]))
+}
+
+// batchCommand reports whether the command line runs a batch command.
+func batchCommand(args []string) bool {
+	if len(args) == 0 {
+		return false
+	}
+	for _, c := range commands() {
+		if c.name == args[0] {
+			return c.batch
+		}
+	}
+	return false
 }
 
 // run executes one command line and returns the exit code.
