@@ -606,3 +606,42 @@ func TestBatchCommands(t *testing.T) {
 		}
 	}
 }
+
+// TestCLIRulesSeeChartColumns checks one name per idea: the rule variables
+// chart_up, chart_down and chart hold the values of the output columns of
+// the same names, for a two-sided chart and for a one-sided one.
+func TestCLIRulesSeeChartColumns(t *testing.T) {
+	f := fixture(t)
+	in := writeFile(t, filepath.Join(t.TempDir(), "work.csv"), csvOf(f.work))
+	for _, side := range []string{"both", "up", "down"} {
+		t.Run(side, func(t *testing.T) {
+			tab := screenOut(t, in, "--limit", "4", "--side", side,
+				"--rule", "r_chart_up=chart_up", "--rule", "r_chart_down=chart_down", "--rule", "r_chart=chart")
+			col := map[string]int{}
+			for j, h := range tab.Header {
+				col[h] = j
+			}
+			nonzero := map[string]int{}
+			for i, row := range tab.Rows {
+				for _, name := range []string{"chart_up", "chart_down", "chart"} {
+					v, err := strconv.ParseFloat(row[col["r_"+name]], 64)
+					if err != nil {
+						t.Fatalf("row %d: rule for %s gave %v", i+1, name, err)
+					}
+					if got, want := fmt.Sprintf("%.4f", v), row[col[name]]; got != want {
+						t.Fatalf("row %d: the rule sees %s = %s, the output column says %s", i+1, name, got, want)
+					}
+					if v > 0 {
+						nonzero[name]++
+					}
+				}
+			}
+			if side != "down" && nonzero["chart_up"] == 0 || side != "up" && nonzero["chart_down"] == 0 {
+				t.Errorf("side %s: a watched side never left 0: %v", side, nonzero)
+			}
+			if side == "up" && nonzero["chart_down"] > 0 || side == "down" && nonzero["chart_up"] > 0 {
+				t.Errorf("side %s: the side not watched is not 0: %v", side, nonzero)
+			}
+		})
+	}
+}

@@ -178,7 +178,7 @@ func demoOne(e *env, mk demoMarker, ref, work *table.Table, truth map[string]scr
 	if err != nil {
 		return nil, err
 	}
-	ruleNames, ruleCols, err := evalRules(rs, exams, res, set, lim.H)
+	ruleNames, ruleCols, err := evalRules(rs, exams, res, lim.H)
 	if err != nil {
 		return nil, err
 	}

@@ -60,11 +60,11 @@ func collectRules(flags ruleList, file string) (rules.RuleSet, error) {
 
 // evalRules evaluates every rule over the screened exams and returns the
 // column names and, per rule, one text cell per exam.
-func evalRules(rs rules.RuleSet, exams []screening.Exam, res []screening.Result, set screening.Settings, h float64) ([]string, [][]string, error) {
+func evalRules(rs rules.RuleSet, exams []screening.Exam, res []screening.Result, h float64) ([]string, [][]string, error) {
 	if len(rs.Rules) == 0 {
 		return nil, nil, nil
 	}
-	vars, err := screening.RuleExams(exams, res, set, h)
+	vars, err := screening.RuleExams(exams, res, h)
 	if err != nil {
 		return nil, nil, err
 	}

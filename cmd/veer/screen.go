@@ -123,7 +123,7 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 	if j.results, err = m.Screen(j.exams, s, h); err != nil {
 		return nil, fmt.Errorf("%s: %v", f.in, err)
 	}
-	if j.ruleNames, j.ruleCols, err = evalRules(rs, j.exams, j.results, s, h); err != nil {
+	if j.ruleNames, j.ruleCols, err = evalRules(rs, j.exams, j.results, h); err != nil {
 		return nil, err
 	}
 	return j, nil

@@ -21,7 +21,7 @@ func sheet(t *testing.T) []rules.Exam {
 		return rules.Exam{
 			Worker: w, Time: time, Z: z, Value: 120 + 15*z, Mean: 120, SD: 15,
 			Centile: 100 * 0.5 * math.Erfc(-z/math.Sqrt2), Innovation: z,
-			Chart: chart, ChartLow: math.NaN(), Limit: 4, Signal: chart > 4, InRange: inRange,
+			ChartUp: chart, Chart: chart, Limit: 4, Signal: chart > 4, InRange: inRange,
 		}
 	}
 	exams := []rules.Exam{
@@ -48,10 +48,10 @@ const F, T = "FALSE", "TRUE"
 func expected() map[string][]string {
 	return map[string][]string{
 		//                            A1 A2 A3 B1 B2 B3 B4 B5 C1
-		"chart_over_limit":     {F, F, F, F, F, T, T, T, F}, // chart 4.3, 5.6, 8.0 > 4
-		"two_sided_over_limit": {F, F, F, F, F, T, T, T, F}, // chart_low is NaN
-		"signalled_at_latest":  {F, F, F, F, F, F, F, T, F}, // B's last exam
-		"approaching_limit":    {F, F, F, F, T, F, F, F, F}, // B2: 3.5 > 3, no signal
+		"chart_over_limit":    {F, F, F, F, F, T, T, T, F},                // chart 4.3, 5.6, 8.0 > 4
+		"side_over_limit":     {"", "", "", "", "", "up", "up", "up", ""}, // an upward chart: chart_down is 0
+		"signalled_at_latest": {F, F, F, F, F, F, F, T, F},                // B's last exam
+		"approaching_limit":   {F, F, F, F, T, F, F, F, F},                // B2: 3.5 > 3, no signal
 		// centile > 99 at B3 (z 2.6), B5 (2.9), C1 (2.5); C has one exam only
 		"above_99th_seen_twice_in_5_years": {F, F, F, F, F, T, F, T, F},
 		"below_1st_centile":                {F, T, F, F, F, F, F, F, F}, // A2: z -2.5

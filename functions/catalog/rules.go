@@ -18,7 +18,7 @@ func ruleFuncs(cache *rules.Cache) []cell.Func {
 		{
 			Name:    "VEER.RULE",
 			Summary: "Evaluates an alert rule (a CEL expression) for every exam of a sheet.",
-			Help: "The rule sees value, time, group, worker, z, mean, sd, centile, innovation, chart, chart_low, limit, signal, exam, exams, gap, prev_z, prev_value, has_previous, has_signalled, years_since_first_signal, in_range and the lists zs, values, times, signals. " +
+			Help: "The rule sees " + ruleVariables() + ". " +
 				`It gives true/false, a label or a number per exam, in the same order as VEER.CHART. The rule may also name a stored rule as "@set/name" (see VEER.SAVERULES). Options as for VEER.CHART (target or limit).` + caution,
 			Params: []cell.Param{
 				{Name: "rule", Type: cell.TypeText, Help: `CEL expression, e.g. "chart > limit || centile > 99.0", or "@set/name"`},
@@ -55,6 +55,16 @@ func ruleFuncs(cache *rules.Cache) []cell.Func {
 			Call: func(ctx context.Context, env cell.Env, a cell.Args) (any, error) { return callSaveRules(env, a, cache) },
 		},
 	}
+}
+
+// ruleVariables lists the names an exam rule sees, from the rules package
+// itself, so the help cannot fall behind it.
+func ruleVariables() string {
+	var names []string
+	for _, v := range rules.Variables() {
+		names = append(names, v.Name)
+	}
+	return strings.Join(names[:len(names)-1], ", ") + " and " + names[len(names)-1]
 }
 
 // ruleSetPrefix marks a stored rule set, so it is never mistaken for a model.
@@ -200,7 +210,7 @@ func callRule(ctx context.Context, env cell.Env, a cell.Args, cache *rules.Cache
 	if err != nil {
 		return nil, err
 	}
-	vars, err := screening.RuleExams(sh.exams, res, s, h)
+	vars, err := screening.RuleExams(sh.exams, res, h)
 	if err != nil {
 		return nil, err
 	}

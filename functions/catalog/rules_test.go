@@ -33,7 +33,7 @@ func TestRule(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	vars, err := screening.RuleExams(sheet.screening(), res, screening.DefaultSettings(), lim.H)
+	vars, err := screening.RuleExams(sheet.screening(), res, lim.H)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -25,7 +25,7 @@ func syntheticExams(tb testing.TB, workers, perWorker int, seed uint64) []Exam {
 				Worker: id, Group: []string{"F", "M"}[w%2], Time: age,
 				Value: 120 + 15*z, Mean: 120, SD: 15, Z: z,
 				Centile:    100 * 0.5 * math.Erfc(-z/math.Sqrt2),
-				Innovation: z, Chart: s, ChartLow: math.NaN(), Limit: 4,
+				Innovation: z, ChartUp: s, Chart: s, Limit: 4,
 				Signal: s > 4, InRange: true,
 			})
 		}

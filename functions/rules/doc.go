@@ -34,8 +34,8 @@
 //	mean, sd                  number        reference mean and standard deviation at this age and group
 //	centile                   number        the reading's centile in the reference, 0 to 100
 //	innovation                number        the charted residual for this exam
-//	chart                     number        chart statistic (the upper side of a two-sided chart)
-//	chart_low                 number        lower-side statistic of a two-sided chart; NaN if one-sided
+//	chart_up, chart_down      number        upward and downward chart statistics; 0 for a side not watched
+//	chart                     number        the statistic compared with the limit: the larger of the two
 //	limit                     number        the chart's control limit
 //	signal                    true/false    the chart signals at this exam
 //	in_range                  true/false    the age lies inside the reference data's age range

@@ -51,8 +51,9 @@ func examVars() []examVar {
 		v("sd", num, "reference standard deviation at this age and group"),
 		v("centile", num, "the reading's centile in the reference, 0 to 100"),
 		v("innovation", num, "the charted residual for this exam"),
-		v("chart", num, "chart statistic (the upper side of a two-sided chart)"),
-		v("chart_low", num, "lower-side statistic of a two-sided chart; NaN for a one-sided chart"),
+		v("chart_up", num, "upward chart statistic (readings drifting high); 0 when the chart watches only a fall"),
+		v("chart_down", num, "downward chart statistic (readings drifting low); 0 when the chart watches only a rise"),
+		v("chart", num, "the chart statistic compared with the limit: the larger of chart_up and chart_down"),
 		v("limit", num, "the chart's control limit"),
 		v("signal", flag, "true when the chart signals at this exam"),
 		v("in_range", flag, "true when the age lies inside the age range of the reference data"),
@@ -128,10 +129,12 @@ func (a *examActivation) ResolveName(name string) (any, bool) {
 		return types.Double(e.Centile), true
 	case "innovation":
 		return types.Double(e.Innovation), true
+	case "chart_up":
+		return types.Double(e.ChartUp), true
+	case "chart_down":
+		return types.Double(e.ChartDown), true
 	case "chart":
 		return types.Double(e.Chart), true
-	case "chart_low":
-		return types.Double(e.ChartLow), true
 	case "limit":
 		return types.Double(e.Limit), true
 	case "signal":

@@ -16,7 +16,7 @@ func TestCompileErrorMessages(t *testing.T) {
 	}{
 		{"typo", "zz > 2.0", Bool, 1, 1, `unknown name "zz"; did you mean "z" or "zs"?`},
 		{"camel case", "prevZ > 1.0", Bool, 1, 1, `did you mean "prev_z"?`},
-		{"missing underscore", "chartlow > 1.0", Bool, 1, 1, `did you mean "chart_low" or "chart"?`},
+		{"missing underscore", "chartup > 1.0", Bool, 1, 1, `did you mean "chart_up" or "chart"?`},
 		{"capital", "Z > 2.0", Bool, 1, 1, `did you mean "z"`},
 		{"no close name", "qqqq > 1.0", Bool, 1, 1, `the names you can use are: value, time,`},
 		{"unknown function", "sqrt(z) > 1.0", Bool, 1, 1, `unknown function "sqrt"`},
@@ -122,7 +122,7 @@ func TestSeveralProblems(t *testing.T) {
 }
 
 func TestSuggest(t *testing.T) {
-	known := []string{"value", "values", "z", "zs", "prev_z", "prev_value", "chart", "chart_low", "years_since_first_signal"}
+	known := []string{"value", "values", "z", "zs", "prev_z", "prev_value", "chart", "chart_down", "years_since_first_signal"}
 	tests := []struct {
 		name string
 		want []string

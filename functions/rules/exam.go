@@ -26,8 +26,9 @@ type Exam struct {
 	Z          float64 // [z] standardised reading (value - mean)/sd, on the model's scale
 	Centile    float64 // [centile] the reading's centile in the reference, 0-100
 	Innovation float64 // [innovation] the charted residual for this exam
-	Chart      float64 // [chart] chart statistic (upper side for a two-sided chart)
-	ChartLow   float64 // [chart_low] lower-side statistic of a two-sided chart; NaN otherwise
+	ChartUp    float64 // [chart_up] upward chart statistic; 0 when the chart watches only a fall
+	ChartDown  float64 // [chart_down] downward chart statistic; 0 when the chart watches only a rise
+	Chart      float64 // [chart] the statistic compared with the limit: the larger of ChartUp and ChartDown
 	Limit      float64 // [limit] the chart's control limit
 	Signal     bool    // [signal] the chart signals at this exam
 	InRange    bool    // [in_range] the age lies inside the reference data's age range

@@ -26,15 +26,14 @@ func sameFloats(a, b []float64) bool {
 // handSheet is two workers, rows out of time order and interleaved. The
 // expectations in TestLinkHandChecked are worked out by hand below.
 func handSheet() []Exam {
-	nan := math.NaN()
 	return []Exam{
-		{Worker: "W1", Time: 42.0, Z: 0.5, Value: 130, ChartLow: nan},                 // row 1
-		{Worker: "W2", Time: 30.0, Z: -1.0, Value: 100, ChartLow: nan},                // row 2
-		{Worker: "W1", Time: 40.0, Z: 1.0, Value: 125, ChartLow: nan},                 // row 3
-		{Worker: "W1", Time: 45.5, Z: 2.5, Value: 150, Signal: true, ChartLow: nan},   // row 4
-		{Worker: "W2", Time: 31.0, Z: 0.0, Value: 110, Signal: true, ChartLow: nan},   // row 5
-		{Worker: "W1", Time: 47.0, Z: 3.0, Value: 160, Signal: true, ChartLow: nan},   // row 6
-		{Worker: "W2", Time: 31.0, Z: 0.25, Value: 112, Signal: false, ChartLow: nan}, // row 7: same time as row 5
+		{Worker: "W1", Time: 42.0, Z: 0.5, Value: 130},                 // row 1
+		{Worker: "W2", Time: 30.0, Z: -1.0, Value: 100},                // row 2
+		{Worker: "W1", Time: 40.0, Z: 1.0, Value: 125},                 // row 3
+		{Worker: "W1", Time: 45.5, Z: 2.5, Value: 150, Signal: true},   // row 4
+		{Worker: "W2", Time: 31.0, Z: 0.0, Value: 110, Signal: true},   // row 5
+		{Worker: "W1", Time: 47.0, Z: 3.0, Value: 160, Signal: true},   // row 6
+		{Worker: "W2", Time: 31.0, Z: 0.25, Value: 112, Signal: false}, // row 7: same time as row 5
 	}
 }
 
@@ -153,7 +152,7 @@ func readFixture(t *testing.T) []fixtureRow {
 		}
 		rows = append(rows, fixtureRow{
 			exam: Exam{Worker: m["worker"], Time: num("time"), Z: num("z"), Value: num("value"),
-				Signal: m["signal"] == "true", ChartLow: math.NaN()},
+				Signal: m["signal"] == "true"},
 			expected: m,
 		})
 	}

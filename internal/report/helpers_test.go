@@ -130,7 +130,7 @@ func evalRule(expr string, exams []screening.Exam, res []screening.Result, set s
 	if err != nil {
 		return nil, err
 	}
-	re, err := screening.RuleExams(exams, res, set, h)
+	re, err := screening.RuleExams(exams, res, h)
 	if err != nil {
 		return nil, err
 	}

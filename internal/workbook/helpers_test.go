@@ -120,7 +120,7 @@ func evalRule(t testing.TB, expr string, exams []screening.Exam, res []screening
 	if err != nil {
 		t.Fatal(err)
 	}
-	re, err := screening.RuleExams(exams, res, settings(), h)
+	re, err := screening.RuleExams(exams, res, h)
 	if err != nil {
 		t.Fatal(err)
 	}
