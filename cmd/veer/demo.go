@@ -2,6 +2,7 @@ package main
 
 import (
 	"bytes"
+	"context"
 	"fmt"
 	"io"
 	"math"
@@ -178,7 +179,7 @@ func demoOne(e *env, mk demoMarker, ref, work *table.Table, truth map[string]scr
 	if err != nil {
 		return nil, err
 	}
-	ruleNames, ruleCols, err := evalRules(rs, exams, res, lim.H)
+	ruleNames, ruleCols, err := evalRules(context.Background(), rs, exams, res, lim.H)
 	if err != nil {
 		return nil, err
 	}

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"os"
@@ -58,9 +59,9 @@ func collectRules(flags ruleList, file string) (rules.RuleSet, error) {
 	return rs, nil
 }
 
-// evalRules evaluates every rule over the screened exams and returns the
-// column names and, per rule, one text cell per exam.
-func evalRules(rs rules.RuleSet, exams []screening.Exam, res []screening.Result, h float64) ([]string, [][]string, error) {
+// evalRules evaluates every rule over the screened exams under ctx and
+// returns the column names and, per rule, one text cell per exam.
+func evalRules(ctx context.Context, rs rules.RuleSet, exams []screening.Exam, res []screening.Result, h float64) ([]string, [][]string, error) {
 	if len(rs.Rules) == 0 {
 		return nil, nil, nil
 	}
@@ -78,7 +79,7 @@ func evalRules(rs rules.RuleSet, exams []screening.Exam, res []screening.Result,
 	vals := make([]rules.Value, len(vars))
 	for k, r := range compiled {
 		names[k] = rs.Rules[k].Name
-		err := rules.EvalAll(r, vars, vals)
+		err := rules.EvalAll(ctx, r, vars, vals)
 		var rowErrs *rules.RowErrors
 		if err != nil && !errors.As(err, &rowErrs) {
 			return nil, nil, fmt.Errorf("rule %q: %v", names[k], err)

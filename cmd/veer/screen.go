@@ -2,6 +2,7 @@ package main
 
 import (
 	"bytes"
+	"context"
 	"flag"
 	"fmt"
 	"io"
@@ -123,7 +124,7 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 	if j.results, err = m.Screen(j.exams, s, h); err != nil {
 		return nil, fmt.Errorf("%s: %v", f.in, err)
 	}
-	if j.ruleNames, j.ruleCols, err = evalRules(rs, j.exams, j.results, h); err != nil {
+	if j.ruleNames, j.ruleCols, err = evalRules(context.Background(), rs, j.exams, j.results, h); err != nil {
 		return nil, err
 	}
 	return j, nil

@@ -1,6 +1,7 @@
 package rulesexamples
 
 import (
+	"context"
 	"io/fs"
 	"math"
 	"testing"
@@ -109,7 +110,7 @@ func TestEveryExampleCompilesAndDoesItsJob(t *testing.T) {
 			}
 			seen[nr.Name] = true
 			out := make([]rules.Value, len(exams))
-			if err := rules.EvalAll(compiled[i], exams, out); err != nil {
+			if err := rules.EvalAll(context.Background(), compiled[i], exams, out); err != nil {
 				t.Fatalf("%s: %s: %v", name, nr.Name, err)
 			}
 			for r, v := range out {

@@ -215,7 +215,7 @@ func callRule(ctx context.Context, env cell.Env, a cell.Args, cache *rules.Cache
 		return nil, err
 	}
 	vals := make([]rules.Value, len(vars))
-	got, err := ruleValues("VEER.RULE", vals, rules.EvalAllContext(ctx, rule, vars, vals))
+	got, err := ruleValues("VEER.RULE", vals, rules.EvalAll(ctx, rule, vars, vals))
 	if err != nil {
 		return nil, err
 	}
@@ -271,5 +271,5 @@ func callRuleCols(ctx context.Context, a cell.Args, cache *rules.Cache) (any, er
 		return nil, compileError("VEER.RULECOLS", err)
 	}
 	vals := make([]rules.Value, len(rows))
-	return ruleValues("VEER.RULECOLS", vals, rules.EvalRowsContext(ctx, rule, rows, vals))
+	return ruleValues("VEER.RULECOLS", vals, rules.EvalRows(ctx, rule, rows, vals))
 }

@@ -68,7 +68,7 @@ func TestRule(t *testing.T) {
 			t.Fatal(err)
 		}
 		want := make([]rules.Value, len(vars))
-		if err := rules.EvalAll(r, vars, want); err != nil {
+		if err := rules.EvalAll(context.Background(), r, vars, want); err != nil {
 			t.Fatal(err)
 		}
 		for i := range col {

@@ -1,6 +1,7 @@
 package rules
 
 import (
+	"context"
 	"math"
 	"math/rand/v2"
 	"strconv"
@@ -55,7 +56,7 @@ func BenchmarkRule100k(b *testing.B) {
 		b.Run(bc.name, func(b *testing.B) {
 			b.ReportAllocs()
 			for b.Loop() {
-				if err := EvalAll(r, exams, out); err != nil {
+				if err := EvalAll(context.Background(), r, exams, out); err != nil {
 					b.Fatal(err)
 				}
 			}
@@ -101,7 +102,7 @@ func BenchmarkColumns100k(b *testing.B) {
 	out := make([]Value, len(rows))
 	b.ReportAllocs()
 	for b.Loop() {
-		if err := EvalRows(r, rows, out); err != nil {
+		if err := EvalRows(context.Background(), r, rows, out); err != nil {
 			b.Fatal(err)
 		}
 	}

@@ -1,6 +1,7 @@
 package rules
 
 import (
+	"context"
 	"errors"
 	"math"
 	"strings"
@@ -62,7 +63,7 @@ func TestColumnRules(t *testing.T) {
 			t.Fatalf("%s: %v", tc.rule, err)
 		}
 		out := make([]Value, len(rows))
-		if err := EvalRows(r, rows, out); err != nil {
+		if err := EvalRows(context.Background(), r, rows, out); err != nil {
 			t.Fatalf("%s: %v", tc.rule, err)
 		}
 		for i, v := range out {
@@ -78,7 +79,7 @@ func TestColumnRules(t *testing.T) {
 	if got := strings.Join(r.Names(), ","); got != "systolic_bp,diastolic_bp,smoker,site,max,size" {
 		t.Errorf("Names() = %s", got)
 	}
-	if v, err := r.EvalRow(rows[1]); err != nil || v.String() != "TRUE" {
+	if v, err := r.EvalRow(context.Background(), rows[1]); err != nil || v.String() != "TRUE" {
 		t.Errorf("EvalRow = %v, %v", v, err)
 	}
 }
@@ -101,7 +102,7 @@ func TestColumnErrors(t *testing.T) {
 	}
 	rows := [][]Value{{NumberValue(150), NumberValue(141)}, {NumberValue(150), StringValue("North")}}
 	out := make([]Value, 2)
-	err = EvalRows(r, rows, out)
+	err = EvalRows(context.Background(), r, rows, out)
 	var re *RowErrors
 	if !errors.As(err, &re) || len(re.Rows) != 1 || re.Rows[0].Row != 2 || !strings.Contains(err.Error(), "wrong kind") {
 		t.Errorf("untyped: %v", err)
@@ -114,7 +115,7 @@ func TestColumnErrors(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	_, err = tr.EvalRow([]Value{StringValue("n/a"), StringValue("x")})
+	_, err = tr.EvalRow(context.Background(), []Value{StringValue("n/a"), StringValue("x")})
 	if err == nil || !strings.Contains(err.Error(), `column "Systolic BP" should hold a number, but this row holds text "n/a"`) {
 		t.Errorf("typed row: %v", err)
 	}
@@ -138,7 +139,7 @@ func TestEmptyCells(t *testing.T) {
 			t.Fatalf("%s: %v", tc.rule, err)
 		}
 		for _, row := range [][]Value{{Value{}, Value{}, Value{}, Value{}}, nil} { // empty cells, then a short row
-			v, err := r.EvalRow(row)
+			v, err := r.EvalRow(context.Background(), row)
 			if err != nil || v.String() != tc.want {
 				t.Errorf("%s on %v = %v, %v; want %s", tc.rule, row, v, err, tc.want)
 			}

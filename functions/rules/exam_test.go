@@ -2,6 +2,7 @@ package rules
 
 import (
 	"bufio"
+	"context"
 	"encoding/csv"
 	"math"
 	"os"
@@ -198,7 +199,7 @@ func TestLinkAgainstPython(t *testing.T) {
 		if err != nil {
 			t.Fatalf("%s: %v", c.rule, err)
 		}
-		if err := EvalAll(r, exams, out); err != nil {
+		if err := EvalAll(context.Background(), r, exams, out); err != nil {
 			t.Fatalf("%s: %v", c.rule, err)
 		}
 		for i, v := range out {

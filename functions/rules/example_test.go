@@ -1,6 +1,7 @@
 package rules_test
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"math"
@@ -14,7 +15,7 @@ func ExampleCompile() {
 		fmt.Println(err)
 		return
 	}
-	v, err := r.Eval(&rules.Exam{Worker: "W1", Z: 2.4, Chart: 1.2, Limit: 4.0})
+	v, err := r.Eval(context.Background(), &rules.Exam{Worker: "W1", Z: 2.4, Chart: 1.2, Limit: 4.0})
 	fmt.Println(v, err)
 	// Output: watch <nil>
 }
@@ -57,7 +58,7 @@ func ExampleEvalAll() {
 		return
 	}
 	out := make([]rules.Value, len(exams))
-	if err := rules.EvalAll(r, exams, out); err != nil {
+	if err := rules.EvalAll(context.Background(), r, exams, out); err != nil {
 		fmt.Println(err)
 		return
 	}
@@ -116,7 +117,7 @@ func ExampleCompileColumns() {
 		{rules.NumberValue(118), rules.NumberValue(math.NaN())},
 	}
 	out := make([]rules.Value, len(rows))
-	err = rules.EvalRows(r, rows, out)
+	err = rules.EvalRows(context.Background(), r, rows, out)
 	fmt.Println(out, err)
 	// Output: [TRUE FALSE FALSE] <nil>
 }

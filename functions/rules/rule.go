@@ -410,13 +410,8 @@ func (p *program) runOne(ctx context.Context, act sizedActivation) (Value, error
 }
 
 // Eval evaluates the rule on one exam, within the rule's cost and time
-// limits. Errors are *EvalError.
-func (r *Rule) Eval(e *Exam) (Value, error) {
-	return r.EvalContext(context.Background(), e)
-}
-
-// EvalContext is Eval under ctx (which may cancel it).
-func (r *Rule) EvalContext(ctx context.Context, e *Exam) (Value, error) {
+// limits; ctx may cancel it. Errors are *EvalError.
+func (r *Rule) Eval(ctx context.Context, e *Exam) (Value, error) {
 	v, err := r.p.runOne(ctx, &examActivation{e: e})
 	if ee, ok := err.(*EvalError); ok {
 		ee.Worker = e.Worker
@@ -424,8 +419,8 @@ func (r *Rule) EvalContext(ctx context.Context, e *Exam) (Value, error) {
 	return v, err
 }
 
-// EvalAll evaluates r on every exam and writes out[i] for exams[i]; out
-// must be at least as long as exams. Use Link first so that the worker
+// EvalAll evaluates r on every exam under ctx and writes out[i] for
+// exams[i]; out must be at least as long as exams. Use Link first so that the worker
 // fields and histories are filled.
 //
 // A row on which the rule fails (for example a list position that does not
@@ -434,12 +429,7 @@ func (r *Rule) EvalContext(ctx context.Context, e *Exam) (Value, error) {
 // stops the rule (cost or time per evaluation, or ctx cancelled), the run
 // stops at once and the error is an *EvalError with Limit set: the rule
 // itself needs fixing.
-func EvalAll(r *Rule, exams []Exam, out []Value) error {
-	return EvalAllContext(context.Background(), r, exams, out)
-}
-
-// EvalAllContext is EvalAll under ctx.
-func EvalAllContext(ctx context.Context, r *Rule, exams []Exam, out []Value) error {
+func EvalAll(ctx context.Context, r *Rule, exams []Exam, out []Value) error {
 	if len(out) < len(exams) {
 		return fmt.Errorf("room for %d results but %d exams", len(out), len(exams))
 	}
@@ -450,19 +440,14 @@ func EvalAllContext(ctx context.Context, r *Rule, exams []Exam, out []Value) err
 
 // EvalRow evaluates a column rule on one row of cells, given in the order
 // of the names the rule was compiled with (missing trailing cells are
-// empty). Errors are *EvalError.
-func (r *ColumnRule) EvalRow(row []Value) (Value, error) {
-	return r.p.runOne(context.Background(), r.activation(row))
+// empty); ctx may cancel it. Errors are *EvalError.
+func (r *ColumnRule) EvalRow(ctx context.Context, row []Value) (Value, error) {
+	return r.p.runOne(ctx, r.activation(row))
 }
 
 // EvalRows evaluates a column rule on every row, with the same error
 // behaviour as EvalAll.
-func EvalRows(r *ColumnRule, rows [][]Value, out []Value) error {
-	return EvalRowsContext(context.Background(), r, rows, out)
-}
-
-// EvalRowsContext is EvalRows under ctx.
-func EvalRowsContext(ctx context.Context, r *ColumnRule, rows [][]Value, out []Value) error {
+func EvalRows(ctx context.Context, r *ColumnRule, rows [][]Value, out []Value) error {
 	if len(out) < len(rows) {
 		return fmt.Errorf("room for %d results but %d rows", len(out), len(rows))
 	}

@@ -59,7 +59,7 @@ func TestEveryVariableBound(t *testing.T) {
 		if err != nil {
 			t.Fatalf("%s: %v", expr, err)
 		}
-		got, err := r.Eval(&e)
+		got, err := r.Eval(context.Background(), &e)
 		if err != nil {
 			t.Fatalf("%s: %v", expr, err)
 		}
@@ -101,7 +101,7 @@ func TestFirstExamNotAvailable(t *testing.T) {
 		if err != nil {
 			t.Fatalf("%s: %v", tc.rule, err)
 		}
-		v, err := r.Eval(first)
+		v, err := r.Eval(context.Background(), first)
 		if b, _ := v.Bool(); err != nil || b != tc.want {
 			t.Errorf("%s = %v, %v; want %v", tc.rule, v, err, tc.want)
 		}
@@ -140,7 +140,7 @@ func TestHelpers(t *testing.T) {
 			t.Errorf("%s: %v", tc.rule, err)
 			continue
 		}
-		v, err := r.Eval(&e)
+		v, err := r.Eval(context.Background(), &e)
 		if err != nil || v.String() != tc.want {
 			t.Errorf("%s = %v, %v; want %s", tc.rule, v, err, tc.want)
 		}
@@ -170,7 +170,7 @@ func TestResultKinds(t *testing.T) {
 		if err != nil {
 			t.Fatalf("%s: %v", tc.rule, err)
 		}
-		v, err := r.Eval(&e)
+		v, err := r.Eval(context.Background(), &e)
 		if err != nil || v.Kind() != tc.kind || v.String() != tc.text {
 			t.Errorf("%s = %v (%v), %v; want %s (%v)", tc.rule, v, v.Kind(), err, tc.text, tc.kind)
 		}
@@ -183,7 +183,7 @@ func TestResultKinds(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if _, err := r.Eval(&e); err == nil || !strings.Contains(err.Error(), "must give true/false, but here it gives a number") {
+	if _, err := r.Eval(context.Background(), &e); err == nil || !strings.Contains(err.Error(), "must give true/false, but here it gives a number") {
 		t.Errorf("dyn kind mismatch: %v", err)
 	}
 }
@@ -233,7 +233,7 @@ func TestEvalAllRowErrors(t *testing.T) {
 		t.Fatal(err)
 	}
 	out := make([]Value, len(exams))
-	err = EvalAll(r, exams, out)
+	err = EvalAll(context.Background(), r, exams, out)
 	var re *RowErrors
 	if !errors.As(err, &re) {
 		t.Fatalf("want *RowErrors, got %v", err)
@@ -254,7 +254,7 @@ func TestEvalAllRowErrors(t *testing.T) {
 	if b, _ := out[0].Bool(); !b { // W1 at 42: 125 < 130
 		t.Errorf("row 1 = %v", out[0])
 	}
-	if err := EvalAll(r, exams, out[:2]); err == nil {
+	if err := EvalAll(context.Background(), r, exams, out[:2]); err == nil {
 		t.Error("short out slice accepted")
 	}
 }
@@ -272,7 +272,7 @@ func TestEvalErrorsMessages(t *testing.T) {
 		if err != nil {
 			t.Fatalf("%s: %v", tc.rule, err)
 		}
-		_, err = r.Eval(&e)
+		_, err = r.Eval(context.Background(), &e)
 		var ee *EvalError
 		if !errors.As(err, &ee) || ee.Limit || !strings.Contains(err.Error(), tc.want) || ee.Worker != "W7" {
 			t.Errorf("%s: %v; want an *EvalError containing %q", tc.rule, err, tc.want)
@@ -295,7 +295,7 @@ func TestCostLimitStopsRunaway(t *testing.T) {
 		t.Fatal(err)
 	}
 	start := time.Now()
-	_, err = r.Eval(&exams[len(exams)-1])
+	_, err = r.Eval(context.Background(), &exams[len(exams)-1])
 	var ee *EvalError
 	if !errors.As(err, &ee) || !ee.Limit {
 		t.Fatalf("want a limit error, got %v", err)
@@ -311,7 +311,7 @@ func TestCostLimitStopsRunaway(t *testing.T) {
 
 	// In a batch the run stops at the first row that hits the limit.
 	out := make([]Value, len(exams))
-	err = EvalAll(r, exams, out)
+	err = EvalAll(context.Background(), r, exams, out)
 	if !errors.As(err, &ee) || !ee.Limit || ee.Row < 2 || ee.Row >= len(exams) {
 		t.Fatalf("batch: %v", err)
 	}
@@ -327,7 +327,7 @@ func TestCostLimitStopsRunaway(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if err := EvalAll(ok, exams, out); err != nil {
+	if err := EvalAll(context.Background(), ok, exams, out); err != nil {
 		t.Fatalf("after a runaway: %v", err)
 	}
 }
@@ -340,12 +340,12 @@ func TestCostLimitDeterministic(t *testing.T) {
 		t.Fatal(err)
 	}
 	exams := longHistory(t, 100) // 100³ steps: far over 100,000
-	_, err = r.Eval(&exams[99])
+	_, err = r.Eval(context.Background(), &exams[99])
 	if err == nil || !strings.Contains(err.Error(), "too much work for one exam (cost limit 100,000 reached)") {
 		t.Errorf("got %v", err)
 	}
 	// 10 exams (1,000 steps) fit.
-	if v, err := r.Eval(&exams[9]); err != nil || v.String() != "TRUE" {
+	if v, err := r.Eval(context.Background(), &exams[9]); err != nil || v.String() != "TRUE" {
 		t.Errorf("short history: %v, %v", v, err)
 	}
 }
@@ -358,12 +358,12 @@ func TestTimeLimit(t *testing.T) {
 	}
 	exams := longHistory(t, 600)
 	start := time.Now()
-	_, err = r.Eval(&exams[599])
+	_, err = r.Eval(context.Background(), &exams[599])
 	if err == nil || !strings.Contains(err.Error(), "took longer than 30ms for one exam") {
 		t.Errorf("single: %v", err)
 	}
 	out := make([]Value, len(exams))
-	err = EvalAll(r, exams, out)
+	err = EvalAll(context.Background(), r, exams, out)
 	var ee *EvalError
 	if !errors.As(err, &ee) || !ee.Limit || !strings.Contains(err.Error(), "took longer than 30ms") {
 		t.Errorf("batch: %v", err)
@@ -381,12 +381,12 @@ func TestCancelledContext(t *testing.T) {
 	}
 	ctx, cancel := context.WithCancelCause(context.Background())
 	cancel(errors.New("the client went away"))
-	err = EvalAllContext(ctx, r, exams, make([]Value, len(exams)))
+	err = EvalAll(ctx, r, exams, make([]Value, len(exams)))
 	var ee *EvalError
 	if !errors.As(err, &ee) || !ee.Limit || !strings.Contains(err.Error(), "cancelled (the client went away)") {
 		t.Errorf("got %v", err)
 	}
-	if _, err := r.EvalContext(ctx, &exams[0]); err == nil {
+	if _, err := r.Eval(ctx, &exams[0]); err == nil {
 		t.Error("single evaluation ignored a cancelled context")
 	}
 }
@@ -515,7 +515,7 @@ func TestCacheConcurrent(t *testing.T) {
 	// One rule evaluated from several goroutines.
 	exams := syntheticExams(t, 200, 5, 5)
 	want := make([]Value, len(exams))
-	if err := EvalAll(rules[0], exams, want); err != nil {
+	if err := EvalAll(context.Background(), rules[0], exams, want); err != nil {
 		t.Fatal(err)
 	}
 	for range 4 {
@@ -523,7 +523,7 @@ func TestCacheConcurrent(t *testing.T) {
 		go func() {
 			defer wg.Done()
 			out := make([]Value, len(exams))
-			if err := EvalAll(rules[0], exams, out); err != nil {
+			if err := EvalAll(context.Background(), rules[0], exams, out); err != nil {
 				t.Error(err)
 			}
 			for i := range out {

@@ -2,6 +2,7 @@ package report
 
 import (
 	"bytes"
+	"context"
 	"fmt"
 	"sync"
 	"testing"
@@ -135,7 +136,7 @@ func evalRule(expr string, exams []screening.Exam, res []screening.Result, set s
 		return nil, err
 	}
 	out := make([]rules.Value, len(re))
-	if err := rules.EvalAll(r, re, out); err != nil {
+	if err := rules.EvalAll(context.Background(), r, re, out); err != nil {
 		return nil, err
 	}
 	fired := make([]bool, len(out))

@@ -2,6 +2,7 @@ package workbook
 
 import (
 	"bytes"
+	"context"
 	"path/filepath"
 	"strconv"
 	"sync"
@@ -125,7 +126,7 @@ func evalRule(t testing.TB, expr string, exams []screening.Exam, res []screening
 		t.Fatal(err)
 	}
 	out := make([]rules.Value, len(re))
-	if err := rules.EvalAll(r, re, out); err != nil {
+	if err := rules.EvalAll(context.Background(), r, re, out); err != nil {
 		t.Fatal(err)
 	}
 	fired := make([]bool, len(out))
