@@ -19,6 +19,7 @@ import (
 	"time"
 
 	"veer/functions/cell"
+	"veer/internal/atomicfile"
 )
 
 // Registry keeps fitted models on disk, versioned and checksummed.
@@ -27,12 +28,12 @@ import (
 //
 //	<key>@v<N>.model   one version: a JSON header line, then the document
 //	<key>.deleted      tombstone: all versions up to N are deleted
-//	.tmp-*             temporary files of a save in progress
+//	.<file>.tmp-*      temporary files of a save in progress (atomicfile)
 //
 // <key> is the model name in lower case (names are case-insensitive; the
 // spelling of the first save is kept for display). Each file is written
-// atomically (temporary file in the same directory, fsync, link or rename,
-// fsync of the directory), so a process killed at any moment leaves only
+// atomically by package atomicfile (temporary file in the same directory,
+// fsync, link or rename, fsync of the directory), so a process killed at any moment leaves only
 // complete files, and a save that returned is on disk. The header carries the
 // SHA-256 and size of the document; a file that fails the check is skipped
 // with a logged warning.
@@ -152,7 +153,7 @@ func OpenRegistry(dir string, log *slog.Logger) (*Registry, error) {
 	for _, e := range entries {
 		name := e.Name()
 		switch {
-		case strings.HasPrefix(name, ".tmp-"):
+		case atomicfile.IsTemp(name):
 			if info, err := e.Info(); err == nil && time.Since(info.ModTime()) > time.Hour {
 				os.Remove(filepath.Join(dir, name))
 			}
@@ -354,7 +355,7 @@ func (r *Registry) Save(name string, doc []byte) (string, bool, error) {
 		buf := make([]byte, 0, len(line)+1+len(doc))
 		buf = append(append(append(buf, line...), '\n'), doc...)
 		file := key + "@v" + strconv.Itoa(next) + modelExt
-		err = createFileAtomic(r.dir, file, buf)
+		err = atomicfile.Create(filepath.Join(r.dir, file), buf, 0o600)
 		if errors.Is(err, fs.ErrExist) {
 			next++ // another writer took this number; never overwrite
 			continue
@@ -491,7 +492,7 @@ func (r *Registry) Delete(name string) error {
 	r.mu.RUnlock()
 
 	tb, _ := json.Marshal(tombstone{Format: tombstoneFormat, Name: disp, UpTo: upTo})
-	if err := writeFileAtomic(r.dir, key+tombstoneExt, tb); err != nil {
+	if err := atomicfile.WriteFile(filepath.Join(r.dir, key+tombstoneExt), tb, 0o600); err != nil {
 		return cell.ValueError("could not delete the model: %v", err)
 	}
 	for _, p := range paths {
@@ -500,7 +501,7 @@ func (r *Registry) Delete(name string) error {
 			r.log.Warn("removing model file failed", "err", err.Error())
 		}
 	}
-	syncDir(r.dir)
+	atomicfile.SyncDir(r.dir)
 
 	r.mu.Lock()
 	m.versions = nil

@@ -139,10 +139,15 @@ func TestRegistryDamagedFiles(t *testing.T) {
 	os.WriteFile(filepath.Join(dir, "hdr@v1.model"), []byte(`{"format":"veer-model/1","name":"hdr","version":1,"size":5,"sha256":"00"}`), 0o600)
 	good, _ := os.ReadFile(filepath.Join(dir, "good@v1.model"))
 	os.WriteFile(filepath.Join(dir, "other@v7.model"), good, 0o600)
-	tmp := filepath.Join(dir, ".tmp-123")
-	os.WriteFile(tmp, []byte("half"), 0o600)
+	// Old temporary files of a save a crash interrupted, in the form
+	// atomicfile names them and in the older form.
+	tmp := filepath.Join(dir, ".keep@v2.model.tmp-123")
+	tmpOld := filepath.Join(dir, ".tmp-123")
 	old := time.Now().Add(-2 * time.Hour)
-	os.Chtimes(tmp, old, old)
+	for _, p := range []string{tmp, tmpOld} {
+		os.WriteFile(p, []byte("half"), 0o600)
+		os.Chtimes(p, old, old)
+	}
 
 	r2, logs := openReg(t, dir)
 	list := r2.List()
@@ -158,8 +163,10 @@ func TestRegistryDamagedFiles(t *testing.T) {
 	if warn != 5 {
 		t.Errorf("%d warnings; want 5 (flip, cut, junk, hdr, other): %s", warn, logs)
 	}
-	if _, err := os.Stat(tmp); !os.IsNotExist(err) {
-		t.Error("old temporary file was not removed")
+	for _, p := range []string{tmp, tmpOld} {
+		if _, err := os.Stat(p); !os.IsNotExist(err) {
+			t.Errorf("old temporary file %s was not removed", filepath.Base(p))
+		}
 	}
 	// An old version damaged after loading is reported, not served.
 	p = filepath.Join(dir, "good@v1.model")

@@ -11,6 +11,8 @@ import (
 	"path/filepath"
 	"runtime"
 	"strings"
+
+	"veer/internal/atomicfile"
 )
 
 // TokenFile is the name of the install token file inside the data directory.
@@ -46,7 +48,7 @@ func ReadOrCreateToken(dataDir string) (string, error) {
 		tok = hex.EncodeToString(raw[:])
 		// Link a complete temporary file into place, so two processes
 		// starting together agree on one token and nobody reads half a file.
-		err = createFileAtomic(dataDir, TokenFile, []byte(tok+"\n"))
+		err = atomicfile.Create(path, []byte(tok+"\n"), 0o600)
 		if err == nil {
 			return tok, nil
 		}

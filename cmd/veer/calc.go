@@ -9,6 +9,7 @@ import (
 
 	"veer/addin/calc"
 	"veer/functions/catalog"
+	"veer/internal/atomicfile"
 )
 
 // runCalcExtension builds the LibreOffice Calc extension from the function
@@ -42,7 +43,7 @@ func runCalcExtension(e *env, args []string) error {
 			if err := os.MkdirAll(filepath.Dir(p), 0o755); err != nil {
 				return err
 			}
-			if err := writeFileAtomic(p, src[n]); err != nil {
+			if err := atomicfile.WriteFile(p, src[n], outputPerm); err != nil {
 				return err
 			}
 		}
@@ -57,7 +58,7 @@ func runCalcExtension(e *env, args []string) error {
 	if err != nil {
 		return err
 	}
-	if err := writeFileAtomic(*out, oxt); err != nil {
+	if err := atomicfile.WriteFile(*out, oxt, outputPerm); err != nil {
 		return err
 	}
 	fns, _ := calc.Functions(listing)

@@ -19,6 +19,7 @@ import (
 	"strings"
 	"time"
 
+	"veer/internal/atomicfile"
 	"veer/server"
 )
 
@@ -78,40 +79,13 @@ func createCert(dataDir string, now time.Time) (*x509.Certificate, error) {
 		return nil, err
 	}
 	certPath, keyPath := certPaths(dataDir)
-	if err := writeAtomic(keyPath, pem.EncodeToMemory(&pem.Block{Type: "PRIVATE KEY", Bytes: pkcs8}), 0o600); err != nil {
+	if err := atomicfile.WriteFile(keyPath, pem.EncodeToMemory(&pem.Block{Type: "PRIVATE KEY", Bytes: pkcs8}), 0o600); err != nil {
 		return nil, err
 	}
-	if err := writeAtomic(certPath, pem.EncodeToMemory(&pem.Block{Type: "CERTIFICATE", Bytes: der}), 0o644); err != nil {
+	if err := atomicfile.WriteFile(certPath, pem.EncodeToMemory(&pem.Block{Type: "CERTIFICATE", Bytes: der}), 0o644); err != nil {
 		return nil, err
 	}
 	return x509.ParseCertificate(der)
-}
-
-// writeAtomic writes a file through a temporary file in the same folder,
-// so a crash never leaves half a key.
-func writeAtomic(path string, data []byte, mode fs.FileMode) error {
-	f, err := os.CreateTemp(filepath.Dir(path), ".tmp-*")
-	if err != nil {
-		return err
-	}
-	tmp := f.Name()
-	defer os.Remove(tmp)
-	if err := f.Chmod(mode); err != nil {
-		f.Close()
-		return err
-	}
-	if _, err := f.Write(data); err != nil {
-		f.Close()
-		return err
-	}
-	if err := f.Sync(); err != nil {
-		f.Close()
-		return err
-	}
-	if err := f.Close(); err != nil {
-		return err
-	}
-	return os.Rename(tmp, path)
 }
 
 // loadCert reads the certificate and key from dataDir/tls.

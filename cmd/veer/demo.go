@@ -20,6 +20,7 @@ import (
 	"veer/functions/refcurve"
 	"veer/functions/rules"
 	"veer/functions/screening"
+	"veer/internal/atomicfile"
 	"veer/internal/report"
 	"veer/internal/table"
 	"veer/internal/workbook"
@@ -157,7 +158,7 @@ func demoOne(e *env, mk demoMarker, ref, work *table.Table, truth map[string]scr
 	if err != nil {
 		return nil, err
 	}
-	if err := writeFileAtomic(filepath.Join(out, mk.name+".model.json"), doc); err != nil {
+	if err := atomicfile.WriteFile(filepath.Join(out, mk.name+".model.json"), doc, outputPerm); err != nil {
 		return nil, err
 	}
 	set := screening.DefaultSettings()
@@ -187,7 +188,7 @@ func demoOne(e *env, mk demoMarker, ref, work *table.Table, truth map[string]scr
 	if err := writeScreen(&buf, work, res, lim.H, ruleNames, ruleCols); err != nil {
 		return nil, err
 	}
-	if err := writeFileAtomic(filepath.Join(out, mk.name+".screened.csv"), buf.Bytes()); err != nil {
+	if err := atomicfile.WriteFile(filepath.Join(out, mk.name+".screened.csv"), buf.Bytes(), outputPerm); err != nil {
 		return nil, err
 	}
 	r := &demoResult{marker: mk, model: m, settings: set, limit: lim, exams: exams, results: res, ruleSet: rs, ruleCols: ruleCols}
@@ -280,7 +281,7 @@ func writeDemoExtras(e *env, out string, all []*demoResult, target float64) erro
 		return err
 	}
 	wb := filepath.Join(out, "screening.xlsx")
-	if err := writeFileAtomic(wb, workbooks.XLSX()); err != nil {
+	if err := atomicfile.WriteFile(wb, workbooks.XLSX(), outputPerm); err != nil {
 		return err
 	}
 	input, err := workbook.ReadSheet(wb, workbooks.ExamsSheet)

@@ -9,6 +9,7 @@ import (
 
 	"veer/functions/refcurve"
 	"veer/functions/screening"
+	"veer/internal/atomicfile"
 	"veer/internal/table"
 )
 
@@ -166,7 +167,7 @@ func runFit(e *env, args []string) error {
 	if err != nil {
 		return err
 	}
-	if err := writeFileAtomic(*out, doc); err != nil {
+	if err := atomicfile.WriteFile(*out, doc, outputPerm); err != nil {
 		return err
 	}
 	fmt.Fprintf(e.stderr, "fitted %q from %d exams: %s\n", *name, len(rows), m.Summary())

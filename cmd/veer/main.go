@@ -58,6 +58,10 @@ func commands() []command {
 	}
 }
 
+// outputPerm is the mode of the files veer writes (models, screened
+// tables, reports): they hold health data, so only their owner reads them.
+const outputPerm = 0o600
+
 const caution = "A signal is a prompt for review by a licensed clinician under local occupational-health rules, not a diagnosis."
 
 func mainUsage(w io.Writer) {

@@ -15,6 +15,7 @@ import (
 	"veer/functions/monitor"
 	"veer/functions/rules"
 	"veer/functions/screening"
+	"veer/internal/atomicfile"
 	"veer/internal/report"
 	"veer/internal/table"
 	"veer/internal/workbook"
@@ -202,7 +203,7 @@ func runScreen(e *env, args []string) error {
 			if err != nil {
 				return err
 			}
-			if err := writeFileAtomic(*out, b); err != nil {
+			if err := atomicfile.WriteFile(*out, b, outputPerm); err != nil {
 				return err
 			}
 			dst = *out
@@ -217,7 +218,7 @@ func runScreen(e *env, args []string) error {
 			return err
 		}
 	default:
-		f, err := createAtomic(*out)
+		f, err := atomicfile.New(*out, outputPerm)
 		if err != nil {
 			return err
 		}
@@ -279,7 +280,7 @@ func writeReport(path, source string, secs []report.Section) error {
 	if err := report.Render(&buf, d); err != nil {
 		return err
 	}
-	return writeFileAtomic(path, buf.Bytes())
+	return atomicfile.WriteFile(path, buf.Bytes(), outputPerm)
 }
 
 // screenColumns are the columns screen adds to the input's.

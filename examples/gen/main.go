@@ -8,6 +8,7 @@ import (
 	"path/filepath"
 
 	"veer/examples/scenario"
+	"veer/internal/atomicfile"
 )
 
 func main() {
@@ -48,35 +49,11 @@ func run(args []string, talk io.Writer) error {
 		{"truth.csv", s.TruthCSV()},
 	}
 	for _, f := range files {
-		if err := writeAtomic(filepath.Join(*out, f.name), f.data); err != nil {
+		if err := atomicfile.WriteFile(filepath.Join(*out, f.name), f.data, 0o644); err != nil {
 			return err
 		}
 	}
 	fmt.Fprintf(talk, "wrote %s: %d reference exams, %d workforce exams, %d workers in the truth (seed %d)\n",
 		*out, len(s.Reference), len(s.Workforce), len(s.Truth), cfg.Seed)
-	return nil
-}
-
-// writeAtomic writes data to a temporary file beside path and renames it
-// into place, so a crash never leaves a half-written file.
-func writeAtomic(path string, data []byte) error {
-	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".*")
-	if err != nil {
-		return fmt.Errorf("cannot write %s: %w", path, err)
-	}
-	defer os.Remove(tmp.Name()) // no-op after a successful rename
-	if _, err := tmp.Write(data); err != nil {
-		tmp.Close()
-		return fmt.Errorf("cannot write %s: %w", path, err)
-	}
-	if err := tmp.Close(); err != nil {
-		return fmt.Errorf("cannot write %s: %w", path, err)
-	}
-	if err := os.Chmod(tmp.Name(), 0o644); err != nil {
-		return fmt.Errorf("cannot write %s: %w", path, err)
-	}
-	if err := os.Rename(tmp.Name(), path); err != nil {
-		return fmt.Errorf("cannot write %s: %w", path, err)
-	}
 	return nil
 }

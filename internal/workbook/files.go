@@ -8,6 +8,8 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+
+	"veer/internal/atomicfile"
 )
 
 // BackupPath returns where Refresh keeps the previous version of path:
@@ -74,88 +76,44 @@ func unwrapPathError(err error) error {
 }
 
 // replaceAtomic writes data produced by write into a temporary file beside
-// path, flushes it, keeps a copy of the current file at BackupPath(path) and
-// renames the temporary file over path. On any error the temporary file is
-// removed and path is untouched.
-func replaceAtomic(path string, mode fs.FileMode, write func(io.Writer) error) (err error) {
-	dir := filepath.Dir(path)
-	tmp, err := os.CreateTemp(dir, "."+filepath.Base(path)+".veer-*.tmp")
+// path (atomicfile), keeps a copy of the current file at BackupPath(path)
+// and puts the new file in place. On any error path is untouched.
+func replaceAtomic(path string, mode fs.FileMode, write func(io.Writer) error) error {
+	f, err := atomicfile.New(path, mode)
 	if err != nil {
-		return fmt.Errorf("cannot write in the folder %s (%v); nothing was written", dir, unwrapPathError(err))
+		return fmt.Errorf("%v; nothing was written", err)
 	}
-	tmpName := tmp.Name()
-	defer func() {
-		if err != nil {
-			tmp.Close()
-			os.Remove(tmpName)
-		}
-	}()
-	if err = write(tmp); err != nil {
+	defer f.Abort()
+	if err := write(f); err != nil {
 		return fmt.Errorf("writing the workbook: %v; the original was not changed", err)
 	}
-	if err = tmp.Chmod(mode); err != nil {
-		return fmt.Errorf("writing the workbook: %v; the original was not changed", err)
-	}
-	if err = tmp.Sync(); err != nil {
-		return fmt.Errorf("writing the workbook to disk: %v; the original was not changed", err)
-	}
-	if err = tmp.Close(); err != nil {
-		return fmt.Errorf("writing the workbook to disk: %v; the original was not changed", err)
-	}
-	if err = backup(path, mode); err != nil {
+	if err := backup(path, mode); err != nil {
 		return err
 	}
-	if err = os.Rename(tmpName, path); err != nil {
-		return fmt.Errorf("replacing the workbook: %v; the original was not changed", err)
+	if err := f.Commit(); err != nil {
+		return fmt.Errorf("%v; the original was not changed", err)
 	}
-	syncDir(dir)
 	return nil
 }
 
-// backup copies path to BackupPath(path), itself through a temporary file
-// and a rename, so an interrupted backup never leaves a half-written copy.
-func backup(path string, mode fs.FileMode) (err error) {
-	bak := BackupPath(path)
+// backup copies path to BackupPath(path), itself atomically, so an
+// interrupted backup never leaves a half-written copy.
+func backup(path string, mode fs.FileMode) error {
 	src, err := os.Open(path)
 	if err != nil {
 		return fmt.Errorf("keeping a backup of the workbook: %v; nothing was written", err)
 	}
 	defer src.Close()
-	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(bak)+".veer-*.tmp")
+	f, err := atomicfile.New(BackupPath(path), mode)
 	if err != nil {
-		return fmt.Errorf("keeping a backup of the workbook: %v; nothing was written", unwrapPathError(err))
-	}
-	defer func() {
-		if err != nil {
-			tmp.Close()
-			os.Remove(tmp.Name())
-		}
-	}()
-	if _, err = io.Copy(tmp, src); err != nil {
 		return fmt.Errorf("keeping a backup of the workbook: %v; nothing was written", err)
 	}
-	if err = tmp.Chmod(mode); err != nil {
+	defer f.Abort()
+	if _, err := io.Copy(f, src); err != nil {
 		return fmt.Errorf("keeping a backup of the workbook: %v; nothing was written", err)
 	}
-	if err = tmp.Sync(); err != nil {
+	if err := f.Commit(); err != nil {
 		return fmt.Errorf("keeping a backup of the workbook: %v; nothing was written", err)
-	}
-	if err = tmp.Close(); err != nil {
-		return fmt.Errorf("keeping a backup of the workbook: %v; nothing was written", err)
-	}
-	if err = os.Rename(tmp.Name(), bak); err != nil {
-		return fmt.Errorf("keeping a backup of the workbook as %s: %v; nothing was written", bak, unwrapPathError(err))
 	}
 	return nil
-}
-
-// syncDir flushes a folder's entry list so a rename survives a crash. Not
-// every system supports it; failure is harmless for correctness.
-func syncDir(dir string) {
-	d, err := os.Open(dir)
-	if err != nil {
-		return
-	}
-	_ = d.Sync()
-	d.Close()
 }

@@ -12,6 +12,7 @@ import (
 	"path/filepath"
 
 	"veer/examples/workbooks"
+	"veer/internal/atomicfile"
 )
 
 func main() {
@@ -30,7 +31,7 @@ func run(dir string) error {
 	}
 	for name, data := range map[string][]byte{workbooks.XLSXName: xlsx, workbooks.ODSName: ods} {
 		p := filepath.Join(dir, name)
-		if err := os.WriteFile(p, data, 0o644); err != nil {
+		if err := atomicfile.WriteFile(p, data, 0o644); err != nil {
 			return err
 		}
 		fmt.Fprintf(os.Stderr, "wrote %s (%d bytes)\n", p, len(data))
