@@ -39,13 +39,9 @@ func IsTemp(name string) bool {
 // whatever the umask). A reader sees the old file or the new one, and once
 // WriteFile returns nil the new content is on disk.
 func WriteFile(path string, data []byte, perm fs.FileMode) error {
-	f, err := New(path, perm)
+	f, err := filled(path, data, perm)
 	if err != nil {
 		return err
-	}
-	defer f.Abort()
-	if _, err := f.Write(data); err != nil {
-		return f.fail(err)
 	}
 	return f.Commit()
 }
@@ -55,13 +51,9 @@ func WriteFile(path string, data []byte, perm fs.FileMode) error {
 // save) is never replaced. It returns an error matching fs.ErrExist (with
 // errors.Is) when path exists.
 func Create(path string, data []byte, perm fs.FileMode) error {
-	f, err := New(path, perm)
+	f, err := filled(path, data, perm)
 	if err != nil {
 		return err
-	}
-	defer f.Abort()
-	if _, err := f.Write(data); err != nil {
-		return f.fail(err)
 	}
 	tmp, err := f.finish()
 	if err != nil {
@@ -148,10 +140,17 @@ func (f *File) finish() (string, error) {
 	return tmp, nil
 }
 
-// fail aborts after a failed write and words the error.
-func (f *File) fail(err error) error {
-	f.Abort()
-	return fmt.Errorf("cannot write %s: %w", f.path, unwrapPath(err))
+// filled returns a File for path holding data, not yet committed.
+func filled(path string, data []byte, perm fs.FileMode) (*File, error) {
+	f, err := New(path, perm)
+	if err != nil {
+		return nil, err
+	}
+	if _, err := f.Write(data); err != nil {
+		f.Abort()
+		return nil, fmt.Errorf("cannot write %s: %w", path, unwrapPath(err))
+	}
+	return f, nil
 }
 
 // SyncDir flushes a folder's list of names to disk, so that a rename or a
