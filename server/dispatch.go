@@ -15,6 +15,7 @@ import (
 	"time"
 
 	"veer/functions/cell"
+	"veer/internal/lru"
 )
 
 // engine runs calls: validation, result cache, sharing of identical
@@ -28,8 +29,8 @@ type engine struct {
 	base context.Context // cancelled when in-flight work must be abandoned
 	sem  chan struct{}
 
-	results *lru[*outcome]
-	onceVal *lru[any]
+	results *lru.Cache[string, *outcome]
+	onceVal *lru.Cache[string, any]
 
 	mu          sync.Mutex
 	flights     map[string]*flight
@@ -64,8 +65,8 @@ func newEngine(cat *cell.Catalogue, reg *Registry, lim Limits, log *slog.Logger,
 	return &engine{
 		cat: cat, reg: reg, lim: lim, log: log, base: base,
 		sem:         make(chan struct{}, lim.MaxConcurrent),
-		results:     newLRU[*outcome](lim.CacheEntries, lim.CacheBytes),
-		onceVal:     newLRU[any](lim.OnceEntries, math.MaxInt64),
+		results:     lru.New[string, *outcome](lim.CacheEntries, lim.CacheBytes),
+		onceVal:     lru.New[string, any](lim.OnceEntries, math.MaxInt64),
 		flights:     map[string]*flight{},
 		onceFlights: map[string]*onceFlight{},
 	}
@@ -114,7 +115,7 @@ func (e *engine) call(ctx context.Context, req *request, opts callOpts) *outcome
 		return errOutcome(cell.ValueError(msg, f.Name))
 	}
 	key := cacheKey(f, args)
-	if o, ok := e.results.get(key); ok && e.valid(o.deps) {
+	if o, ok := e.results.Get(key); ok && e.valid(o.deps) {
 		return o
 	}
 	return e.shared(ctx, key, f, args, opts)
@@ -304,7 +305,7 @@ func (e *engine) run(ctx *flightCtx, fl *flight, key string, f *cell.Func, args 
 		env.mu.Unlock()
 		cacheable := !panicked && (out.err == nil || out.err.Code != cell.CodeBusy)
 		if cacheable {
-			e.results.put(key, out, int64(len(key)+len(out.val)+200+64*len(out.deps)))
+			e.results.Put(key, out, int64(len(key)+len(out.val)+200+64*len(out.deps)))
 		}
 	} else if errors.Is(ctx.Err(), context.DeadlineExceeded) {
 		out.err = cell.BusyError("all %d computation slots stayed busy for the whole %s time limit of %s; recalculate later", e.lim.MaxConcurrent, timeout, f.Name)
@@ -480,7 +481,7 @@ type onceFlight struct {
 func (c *callEnv) Once(key string, fn func() (any, error)) (any, error) {
 	e := c.e
 	for {
-		if v, ok := e.onceVal.get(key); ok {
+		if v, ok := e.onceVal.Get(key); ok {
 			return v, nil
 		}
 		e.mu.Lock()
@@ -516,7 +517,7 @@ func (c *callEnv) Once(key string, fn func() (any, error)) (any, error) {
 			of.val, of.err = fn()
 		}()
 		if of.err == nil {
-			e.onceVal.put(key, of.val, 1)
+			e.onceVal.Put(key, of.val, 1)
 		}
 		e.mu.Lock()
 		delete(e.onceFlights, key)

@@ -20,6 +20,7 @@ import (
 
 	"veer/functions/cell"
 	"veer/internal/atomicfile"
+	"veer/internal/lru"
 )
 
 // Registry keeps fitted models on disk, versioned and checksummed.
@@ -54,7 +55,7 @@ type Registry struct {
 
 	// oldDocs keeps recently read documents of versions other than the
 	// latest (which stays in memory), verified, by file path.
-	oldDocs *lru[[]byte]
+	oldDocs *lru.Cache[string, []byte]
 }
 
 type model struct {
@@ -145,7 +146,7 @@ func OpenRegistry(dir string, log *slog.Logger) (*Registry, error) {
 	if err := os.MkdirAll(dir, 0o700); err != nil {
 		return nil, fmt.Errorf("creating model directory: %w", err)
 	}
-	r := &Registry{dir: dir, log: log, models: map[string]*model{}, watchers: map[int]func(string){}, oldDocs: newLRU[[]byte](64, 128<<20)}
+	r := &Registry{dir: dir, log: log, models: map[string]*model{}, watchers: map[int]func(string){}, oldDocs: lru.New[string, []byte](64, 128<<20)}
 	entries, err := os.ReadDir(dir)
 	if err != nil {
 		return nil, fmt.Errorf("reading model directory: %w", err)
@@ -417,7 +418,7 @@ func (r *Registry) Get(ref string) (cell.ModelRef, error) {
 	path := v.path
 	r.mu.RUnlock()
 	if ref2.Doc == nil {
-		if doc, ok := r.oldDocs.get(path); ok {
+		if doc, ok := r.oldDocs.Get(path); ok {
 			ref2.Doc = doc
 			return ref2, nil
 		}
@@ -429,7 +430,7 @@ func (r *Registry) Get(ref string) (cell.ModelRef, error) {
 			r.log.Warn("stored model version unreadable", "err", err.Error())
 			return cell.ModelRef{}, cell.RefError("model %s cannot be read from disk (damaged file); refit it", ref2.Handle)
 		}
-		r.oldDocs.put(path, doc, int64(len(doc)))
+		r.oldDocs.Put(path, doc, int64(len(doc)))
 		ref2.Doc = doc
 	}
 	return ref2, nil
@@ -496,7 +497,7 @@ func (r *Registry) Delete(name string) error {
 		return cell.ValueError("could not delete the model: %v", err)
 	}
 	for _, p := range paths {
-		r.oldDocs.remove(p)
+		r.oldDocs.Remove(p)
 		if err := os.Remove(p); err != nil && !errors.Is(err, fs.ErrNotExist) {
 			r.log.Warn("removing model file failed", "err", err.Error())
 		}

@@ -1,11 +1,14 @@
 package rules
 
 import (
-	"container/list"
+	"math"
 	"strings"
 	"sync"
+	"sync/atomic"
 
 	"github.com/google/cel-go/cel"
+
+	"veer/internal/lru"
 )
 
 // DefaultCacheSize is the number of compiled rules a Cache keeps when
@@ -18,14 +21,12 @@ const DefaultCacheSize = 256
 // again on every recalculation. A Cache is safe for concurrent use; two
 // callers asking for the same new text wait for one compilation.
 type Cache struct {
-	lim  Limits
-	size int
+	lim Limits
 
 	mu           sync.Mutex
 	env          *cel.Env // exam environment, built on first use
-	entries      map[cacheKey]*list.Element
-	lru          *list.List // of *cacheEntry, most recent first
-	compilations int64
+	entries      *lru.Cache[cacheKey, *cacheEntry]
+	compilations atomic.Int64
 }
 
 type cacheKey struct {
@@ -35,7 +36,6 @@ type cacheKey struct {
 }
 
 type cacheEntry struct {
-	key   cacheKey
 	ready chan struct{} // closed once rule/crule/err are set
 	rule  *Rule
 	crule *ColumnRule
@@ -48,8 +48,7 @@ func NewCache(size int, lim Limits) *Cache {
 	if size <= 0 {
 		size = DefaultCacheSize
 	}
-	return &Cache{lim: lim.withDefaults(), size: size,
-		entries: make(map[cacheKey]*list.Element), lru: list.New()}
+	return &Cache{lim: lim.withDefaults(), entries: lru.New[cacheKey, *cacheEntry](size, math.MaxInt64)}
 }
 
 // Limits returns the limits the cache compiles rules with.
@@ -57,18 +56,10 @@ func (c *Cache) Limits() Limits { return c.lim }
 
 // Compilations returns how many times the cache has compiled a rule (hits
 // do not count).
-func (c *Cache) Compilations() int64 {
-	c.mu.Lock()
-	defer c.mu.Unlock()
-	return c.compilations
-}
+func (c *Cache) Compilations() int64 { return c.compilations.Load() }
 
 // Len returns the number of rules held.
-func (c *Cache) Len() int {
-	c.mu.Lock()
-	defer c.mu.Unlock()
-	return c.lru.Len()
-}
+func (c *Cache) Len() int { return c.entries.Len() }
 
 // Compile is the cached form of the package function Compile.
 func (c *Cache) Compile(expr string, want ResultKind) (*Rule, error) {
@@ -123,23 +114,14 @@ func (c *Cache) examEnv() (*cel.Env, error) {
 
 // lookup returns the entry for key, running build once if it is new.
 func (c *Cache) lookup(key cacheKey, build func(*cacheEntry)) *cacheEntry {
-	c.mu.Lock()
-	if el, ok := c.entries[key]; ok {
-		c.lru.MoveToFront(el)
-		e := el.Value.(*cacheEntry)
-		c.mu.Unlock()
+	e, found := c.entries.GetOrAdd(key, func() (*cacheEntry, int64) {
+		return &cacheEntry{ready: make(chan struct{})}, 1
+	})
+	if found {
 		<-e.ready
 		return e
 	}
-	e := &cacheEntry{key: key, ready: make(chan struct{})}
-	c.entries[key] = c.lru.PushFront(e)
-	for c.lru.Len() > c.size {
-		old := c.lru.Back()
-		c.lru.Remove(old)
-		delete(c.entries, old.Value.(*cacheEntry).key)
-	}
-	c.compilations++
-	c.mu.Unlock()
+	c.compilations.Add(1)
 	defer close(e.ready)
 	build(e)
 	return e
