@@ -3,6 +3,8 @@ package screening
 import (
 	"math"
 	"sort"
+
+	"veer/functions/evaluation"
 )
 
 // Truth says whether a worker of a labelled cohort truly drifts and from
@@ -39,11 +41,15 @@ type Truth struct {
 // t_i the distinct delays, d_i the detections at t_i and n_i the cases
 // still at risk (delay or follow-up >= t_i); censoring is taken to be
 // unrelated to the drift, as follow-up length is in the demo scenario.
-// MedianDelayKM is the smallest t_i with S(t_i) <= 0.5, except that when
-// S(t_i) is exactly 0.5 it is the midpoint of t_i and the next delay (so
-// that with no undetected case it equals the ordinary median of the
-// delays); it is +Inf when S never falls to 0.5 (fewer than half are
-// caught within follow-up). DetectedBy(t) = 1 − S(t).
+// MedianDelayKM is the median of that curve by R's survival rule (see
+// evaluation.Curve.Quantile): the smallest t_i with S(t_i) <= 0.5, except
+// that when S(t_i) is exactly 0.5 it is the midpoint of t_i and the next
+// delay, or the longest follow-up when no delay follows (so that with no
+// undetected case it equals the ordinary median of the delays); it is
+// +Inf when S never falls to 0.5 (fewer than half are caught within
+// follow-up). DetectedBy(t) = 1 − S(t). The curve is computed by package
+// evaluation, which also scores methods against diagnoses rather than
+// known onsets.
 type Evaluation struct {
 	Workers, Cases, NonCases int
 	// Flagged counts workers with any signal; TrueFlagged the cases among them.
@@ -145,7 +151,10 @@ func Evaluate(exams []Exam, signal []bool, truth map[string]Truth) Evaluation {
 	ev.MedianDelayKM = math.NaN()
 	if ev.CasesAtRisk > 0 {
 		ev.DetectedShare = float64(ev.Detected) / float64(ev.CasesAtRisk)
-		ev.MedianDelayKM = kmMedian(ev.survival())
+		ev.MedianDelayKM = ev.curve().Quantile(0.5)
+		if math.IsNaN(ev.MedianDelayKM) {
+			ev.MedianDelayKM = math.Inf(1)
+		}
 	}
 	if ev.YearsAtRisk > 0 {
 		ev.FalsePer100 = 100 * float64(ev.FalseSignals) / ev.YearsAtRisk
@@ -153,68 +162,26 @@ func Evaluate(exams []Exam, signal []bool, truth map[string]Truth) Evaluation {
 	return ev
 }
 
-// kmPoint is one step of a Kaplan–Meier curve: S(t) = s from t on.
-type kmPoint struct{ t, s float64 }
-
-// survival returns the Kaplan–Meier curve of years from onset to signal,
-// one point per distinct delay. A follow-up equal to a delay counts as
-// still at risk at that delay (the usual convention).
-func (ev Evaluation) survival() []kmPoint {
-	d, c := ev.Delays, ev.FollowUp
-	atRisk := len(d) + len(c)
-	var out []kmPoint
-	s := 1.0
-	i, j := 0, 0
-	for i < len(d) {
-		t := d[i]
-		for j < len(c) && c[j] < t {
-			j++
-			atRisk--
-		}
-		n := 0
-		for i < len(d) && d[i] == t {
-			i++
-			n++
-		}
-		s *= 1 - float64(n)/float64(atRisk)
-		atRisk -= n
-		out = append(out, kmPoint{t, s})
+// curve returns the Kaplan–Meier curve of years from onset to signal:
+// detections are events, undetected cases censored at their follow-up.
+func (ev Evaluation) curve() evaluation.Curve {
+	times := append(append([]float64(nil), ev.Delays...), ev.FollowUp...)
+	events := make([]bool, len(times))
+	for i := range ev.Delays {
+		events[i] = true
 	}
-	return out
-}
-
-// kmMedian returns the median of a Kaplan–Meier curve as documented on
-// Evaluation. S is a product of fractions, so "exactly 0.5" allows for
-// rounding (1e-12).
-func kmMedian(km []kmPoint) float64 {
-	const eps = 1e-12
-	for i, p := range km {
-		if p.s > 0.5+eps {
-			continue
-		}
-		if p.s >= 0.5-eps && i+1 < len(km) {
-			return (p.t + km[i+1].t) / 2
-		}
-		return p.t
-	}
-	return math.Inf(1)
+	return evaluation.KaplanMeier(times, events)
 }
 
 // DetectedBy returns the Kaplan–Meier estimate of the share of cases at
 // risk signalled within years of onset, 1 − S(years) (NaN when no case is
 // at risk). Beyond the longest follow-up it stays at its last value.
 func (ev Evaluation) DetectedBy(years float64) float64 {
-	if len(ev.Delays)+len(ev.FollowUp) == 0 {
+	c := ev.curve()
+	if c.N == 0 {
 		return math.NaN()
 	}
-	s := 1.0
-	for _, p := range ev.survival() {
-		if p.t > years {
-			break
-		}
-		s = p.s
-	}
-	return 1 - s
+	return 1 - c.At(math.Min(years, c.Last))
 }
 
 func median(v []float64) float64 {

@@ -64,7 +64,8 @@ func TestEvaluate(t *testing.T) {
 			// E: case from 60.2, exams to 62, no signal: follow-up 1.8 years.
 			// False rate 100·1/(3+1) = 25. At risk: C and E. KM: at 1.5
 			// both at risk, one detected: S = 1/2 exactly with no later
-			// detection, so the median is 1.5.
+			// detection, so the median is the midpoint of 1.5 and the
+			// longest follow-up 1.8 (R's survival rule): 1.65.
 			name: "mixed cohort",
 			workers: []evWorker{
 				{"A", []float64{30, 31, 33}, nil},
@@ -81,7 +82,7 @@ func TestEvaluate(t *testing.T) {
 			want: screening.Evaluation{
 				Workers: 5, Cases: 3, NonCases: 2, Flagged: 3, TrueFlagged: 2,
 				Detected: 1, EarlySignals: 1, CasesAtRisk: 2, DetectedShare: 0.5,
-				MedianDelay: 1.5, MedianDelayKM: 1.5,
+				MedianDelay: 1.5, MedianDelayKM: 1.65,
 				FalseSignals: 1, YearsAtRisk: 4, FalsePer100: 25,
 			},
 			wantBy: []by{{1, 0}, {1.5, 0.5}, {10, 0.5}},
@@ -239,7 +240,10 @@ func TestEvaluateMismatch(t *testing.T) {
 
 func ExampleEvaluate() {
 	// Worker "case" drifts from age 41; "ok" is healthy and is falsely
-	// flagged at 52; "late" drifts from 40.5 and is never flagged.
+	// flagged at 52; "late" drifts from 40.5 and is never flagged. Counting
+	// "late" as not yet caught after its 3.5 years of follow-up, half the
+	// cases are caught by 2 years and the curve stays at 1/2 to the end:
+	// the median is the midpoint 2.75 (R's survival rule).
 	exams := []screening.Exam{
 		{Worker: "case", Time: 40}, {Worker: "case", Time: 41}, {Worker: "case", Time: 42}, {Worker: "case", Time: 43},
 		{Worker: "ok", Time: 50}, {Worker: "ok", Time: 52}, {Worker: "ok", Time: 54},
@@ -256,6 +260,6 @@ func ExampleEvaluate() {
 	fmt.Printf("within 2 years of onset: %.0f%%; false signals per 100 worker-years: %.0f\n",
 		100*ev.DetectedBy(2), ev.FalsePer100)
 	// Output:
-	// detected 1 of 2 cases; median 2.0 years among them, 2.0 counting the undetected
+	// detected 1 of 2 cases; median 2.0 years among them, 2.8 counting the undetected
 	// within 2 years of onset: 50%; false signals per 100 worker-years: 50
 }

@@ -68,17 +68,19 @@ def drift(onset, slope, plateau, age):
     return -d if plateau < 0 else d
 
 
-def km_median(times, probs):
-    """Median of a Kaplan-Meier curve: the first event time with S <= 0.5;
-    when S is exactly 0.5 there, the midpoint with the next event time
-    (statsmodels' quantile uses the strict S < 0.5, so it gives that next
-    time); infinity when S never reaches 0.5."""
+def km_median(times, probs, last):
+    """Median of a Kaplan-Meier curve by R's survival rule (quantile.survfit):
+    the first event time with S <= 0.5; when S is exactly 0.5 there, the
+    midpoint with the next event time, or with the last observed time
+    `last` when no event follows (statsmodels' quantile uses the strict
+    S < 0.5, so it gives that next time); infinity when S never reaches
+    0.5."""
     eps = 1e-12
     for i, (t, p) in enumerate(zip(times, probs)):
         if p > 0.5 + eps:
             continue
-        if p >= 0.5 - eps and i + 1 < len(times):
-            return (t + times[i + 1]) / 2
+        if p >= 0.5 - eps:
+            return (t + (times[i + 1] if i + 1 < len(times) else last)) / 2
         return t
     return math.inf
 
@@ -125,7 +127,7 @@ def cutoff_rule(ex, truth_rows, marker, zcut):
     out["median_delay_detected"] = float(np.median(delays))
     sf = SurvfuncRight(np.array(times), np.array(status))
     st, sp = [float(t) for t in sf.surv_times], [float(p) for p in sf.surv_prob]
-    med = km_median(st, sp)
+    med = km_median(st, sp, max(times))
     # JSON has no infinity: a median that is not reached is written as null.
     out["km_median_reached"] = not math.isinf(med)
     out["km_median"] = None if math.isinf(med) else med
