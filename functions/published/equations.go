@@ -283,7 +283,7 @@ func build(d *docFile) (*Reference, error) {
 					Reason: fmt.Sprintf("%s is missing: give it terms, a lookup column, or both", k)})
 				continue
 			}
-			p := predictor{link: Identity}
+			p := predictor{link: Identity, col: -1}
 			if dp != nil {
 				switch Link(dp.Link) {
 				case "", Identity:
@@ -328,7 +328,7 @@ func build(d *docFile) (*Reference, error) {
 				}
 			}
 			if hasCol {
-				p.look = newLookup(g.lookupAge, g.lookupVals[col], how)
+				p.col = col
 				// A column used as the parameter itself is checked row by row.
 				if p.link == Identity && len(p.terms) == 0 && (k == "M" || k == "S" || k == "mean" || k == "sd") {
 					for ri, v := range g.lookupVals[col] {
@@ -340,6 +340,9 @@ func build(d *docFile) (*Reference, error) {
 				}
 			}
 			g.pred[pi] = p
+		}
+		for _, v := range g.lookupVals {
+			g.cols = append(g.cols, newColumn(g.lookupAge, v, how))
 		}
 		// The ages.
 		ageRange(dg, &g, fail)
@@ -515,7 +518,7 @@ func (r *Reference) selfCheck(g *group) error {
 	for range used {
 		combos *= 3
 	}
-	x := make([]float64, 0, 1+len(r.covs))
+	x := make([]float64, 0, 2*(1+len(r.covs)))
 	for c := 0; c < combos; c++ {
 		for k := range cov {
 			cov[k] = math.NaN()

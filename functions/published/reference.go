@@ -51,16 +51,18 @@ type predictor struct {
 	link  Link
 	terms []term
 	coef  []float64
-	look  *lookup // nil when the group has no lookup column for it
+	col   int // index of its lookup column in group.cols, -1 for none
 }
 
-func (p *predictor) eval(x []float64) float64 {
+// eval evaluates the predictor at variables x with logarithms lx (where
+// the group takes them) and the lookup segment of the age.
+func (p *predictor) eval(g *group, x, lx []float64, s segment) float64 {
 	eta := 0.0
 	for i, t := range p.terms {
-		eta += p.coef[i] * t.value(x)
+		eta += p.coef[i] * t.value(x, lx)
 	}
-	if p.look != nil {
-		eta += p.look.at(x[0])
+	if p.col >= 0 {
+		eta += g.cols[p.col].at(s)
 	}
 	if p.link == Log {
 		return math.Exp(eta)
@@ -76,6 +78,7 @@ type group struct {
 	lookupAge      []float64   // ages of the lookup table, nil without one
 	lookupCols     []string    // its value columns, in the document's order
 	lookupVals     [][]float64 // per value column
+	cols           []column    // lookupVals prepared for interpolation
 	// uses[k] says whether covariate k (0-based, declared order) appears
 	// in a term; lnOf[v] whether variable v (0 age, k+1 covariate k)
 	// appears under a logarithm.
@@ -174,15 +177,14 @@ func (r *Reference) At(group string, age float64, cov []float64, extrapolate boo
 	if err != nil {
 		return LMS{}, err
 	}
-	var buf [8]float64
-	x := buf[:0]
-	if n := 1 + len(r.covs); n > len(buf) {
-		x = make([]float64, 0, n)
-	}
-	return r.at(g, age, cov, extrapolate, x)
+	var buf [2 * (1 + MaxCovariates)]float64
+	return r.at(g, age, cov, extrapolate, buf[:0])
 }
 
-func (r *Reference) at(g *group, age float64, cov []float64, extrapolate bool, x []float64) (LMS, error) {
+// at is At for group g; buf is scratch space for 2·(1+len(covariates))
+// numbers.
+func (r *Reference) at(g *group, age float64, cov []float64, extrapolate bool, buf []float64) (LMS, error) {
+	x := buf[:0]
 	if isNaNOrInf(age) {
 		return LMS{}, &RangeError{Group: g.name, Name: "age", Value: age, Min: g.ageMin, Max: g.ageMax}
 	}
@@ -223,9 +225,19 @@ func (r *Reference) at(g *group, age float64, cov []float64, extrapolate bool, x
 		}
 		x = append(x, v)
 	}
+	lx := buf[len(x) : 2*len(x)]
+	for v, ln := range g.lnOf {
+		if ln {
+			lx[v] = math.Log(x[v])
+		}
+	}
+	var s segment
+	if g.lookupAge != nil {
+		s = locate(g.lookupAge, age)
+	}
 	var p LMS
 	if r.form == FormMeanSD {
-		mean, sd := g.pred[0].eval(x), g.pred[1].eval(x)
+		mean, sd := g.pred[0].eval(g, x, lx, s), g.pred[1].eval(g, x, lx, s)
 		if isNaNOrInf(mean) || isNaNOrInf(sd) || !(mean > 0) || !(sd > 0) {
 			return LMS{}, &ParamsError{Group: g.name, Age: age, Params: LMS{L: 1, M: mean, S: sd},
 				Err: ErrInvalidParams, Reason: "the equations give mean " + num(mean) + " and SD " + num(sd) +
@@ -233,7 +245,7 @@ func (r *Reference) at(g *group, age float64, cov []float64, extrapolate bool, x
 		}
 		return LMS{L: 1, M: mean, S: sd / mean}, nil
 	}
-	p = LMS{L: g.pred[0].eval(x), M: g.pred[1].eval(x), S: g.pred[2].eval(x)}
+	p = LMS{L: g.pred[0].eval(g, x, lx, s), M: g.pred[1].eval(g, x, lx, s), S: g.pred[2].eval(g, x, lx, s)}
 	if err := p.Validate(); err != nil {
 		return LMS{}, &ParamsError{Group: g.name, Age: age, Params: p, Err: ErrInvalidParams,
 			Reason: "the reference gives L " + num(p.L) + ", M " + num(p.M) + ", S " + num(p.S) +
@@ -339,7 +351,7 @@ func (r *Reference) zRange(groups []string, age, y []float64, cov [][]float64, e
 			errs.First = append(errs.First, EntryError{Index: i, Err: err})
 		}
 	}
-	x := make([]float64, 0, 1+len(r.covs))
+	x := make([]float64, 0, 2*(1+len(r.covs)))
 	c := make([]float64, len(r.covs))
 	var (
 		cur     *group

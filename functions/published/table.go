@@ -214,8 +214,9 @@ func NewTable(rows []TableRow, how Interpolation) (*Reference, error) {
 	for _, a := range gs {
 		g := group{name: a.name, ageMin: a.age[0], ageMax: a.age[len(a.age)-1], lookupAge: a.age,
 			lookupCols: []string{"L", "M", "S"}, lookupVals: [][]float64{a.l, a.m, a.s}, lnOf: []bool{false}}
-		for _, v := range g.lookupVals {
-			g.pred = append(g.pred, predictor{link: Identity, look: newLookup(a.age, v, how)})
+		for i, v := range g.lookupVals {
+			g.cols = append(g.cols, newColumn(a.age, v, how))
+			g.pred = append(g.pred, predictor{link: Identity, col: i})
 		}
 		ref.index[a.name] = len(ref.groups)
 		ref.groups = append(ref.groups, g)

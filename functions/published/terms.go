@@ -133,15 +133,15 @@ func parseFactor(p string, vars []string) (factor, error) {
 	return f, fmt.Errorf("unknown variable %q; the variables are %s", base, strings.Join(vars, ", "))
 }
 
-// value evaluates the term at x (x[0] age, then covariates). ln of a
-// value that is not positive gives NaN; the caller checks the variables
-// first.
-func (t term) value(x []float64) float64 {
+// value evaluates the term at x (x[0] age, then covariates), with lx
+// holding the logarithms of the variables the term takes them of (the
+// caller checks those are positive).
+func (t term) value(x, lx []float64) float64 {
 	v := 1.0
 	for _, f := range t.factors {
 		b := x[f.v]
 		if f.ln {
-			b = math.Log(b)
+			b = lx[f.v]
 		}
 		switch f.pow {
 		case 1:
