@@ -644,7 +644,7 @@ func (r *Reference) Encode() ([]byte, error) {
 	if err != nil {
 		return nil, fmt.Errorf("encoding the reference: %w", err)
 	}
-	return append(b, '\n'), nil
+	return append(oneLineLeaves(b), '\n'), nil
 }
 
 func ptr(v float64) *float64 { return &v }

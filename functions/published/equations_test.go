@@ -365,3 +365,23 @@ func mustBeInputError(t *testing.T, err error) {
 		t.Fatalf("%T %v", err, err)
 	}
 }
+
+// TestEncodeLayout: leaf arrays and objects are written on one line, and
+// text holding brackets, quotes and escapes survives.
+func TestEncodeLayout(t *testing.T) {
+	ref := smallTable(t, Linear).WithInfo(Info{Name: `odd "name" [1, 2] {x}`, Source: "a\\b\nc, d"})
+	b, err := ref.Encode()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Contains(b, []byte("\n     [20, -0.5, 110, 0.1],\n")) || !bytes.Contains(b, []byte(`"columns": ["age", "L", "M", "S"]`)) {
+		t.Errorf("layout:\n%s", b)
+	}
+	back, err := DecodeEquations(b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if back.Info() != ref.Info() {
+		t.Errorf("info %+v", back.Info())
+	}
+}
