@@ -6,6 +6,7 @@ import (
 	"math"
 
 	"veer/functions/chart"
+	"veer/functions/limit"
 	"veer/functions/monitor"
 	"veer/functions/serial"
 )
@@ -24,7 +25,9 @@ const (
 // pass flags: Chart and Mode as the screening will use them, Target the
 // average time to a false signal in years for that pass (a longer target
 // than the screening's leaves out only clear drifts). Seed, Paths and
-// Stop steer the Monte Carlo limit of the pass (monitor.Calibration).
+// Stop steer the Monte Carlo limit of the pass (monitor.Calibration); Stop
+// is also asked while the workers are charted, and answering true ends the
+// estimate with limit.ErrStopped.
 type FirstPass struct {
 	Chart  chart.Spec
 	Mode   monitor.Mode
@@ -145,6 +148,9 @@ func EstimateSerial(series []serial.Series, first *FirstPass) (SerialEstimate, e
 		est.FirstPassLimit = lr.H
 		var rows []monitor.Row
 		for i, s := range centred {
+			if first.Stop != nil && i%256 == 255 && first.Stop() {
+				return est, limit.ErrStopped
+			}
 			rows, err = monitor.Run(set, lr.H, s.Time, s.Z, rows[:0])
 			if err != nil {
 				return est, fmt.Errorf("first pass, worker %d: %w", i+1, err)

@@ -7,6 +7,7 @@ import (
 	"testing"
 
 	"veer/functions/chart"
+	"veer/functions/limit"
 	"veer/functions/monitor"
 	"veer/functions/serial"
 )
@@ -304,6 +305,13 @@ func TestWorkforceBadInput(t *testing.T) {
 	_, err := EstimateSerial(ok, &FirstPass{Chart: chart.DefaultSpec(), Mode: monitor.Whiten, Target: 20, Seed: 1})
 	if !errors.Is(err, ErrTooFewWorkers) {
 		t.Errorf("strict first pass: %v", err)
+	}
+	// A cancelled first pass.
+	calls := 0
+	stop := func() bool { calls++; return calls > 1 }
+	big := scored(t, ref, workforce(600, serial.Params{Phi: 0.8, C: 0.6}, 9, 0, 0))
+	if _, err := EstimateSerial(big, &FirstPass{Chart: chart.DefaultSpec(), Mode: monitor.Whiten, Target: 50, Seed: 1, Stop: stop}); !errors.Is(err, limit.ErrStopped) {
+		t.Errorf("cancelled: %v", err)
 	}
 	// Set by the user.
 	if p, err := SetSerial(0.9, 0.6); err != nil || p.Phi != 0.9 || p.C != 0.6 || p.SEPhi != 0 {
