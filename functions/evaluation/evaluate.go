@@ -29,7 +29,7 @@ type Result struct {
 	// 100·HealthyFlagged/YearsAtRisk, with its exact Poisson interval
 	// (NaN when YearsAtRisk is 0).
 	FalsePer100 Interval
-	// Healthy is the Kaplan–Meier curve of the healthy workers' years from
+	// HealthyCurve is the Kaplan–Meier curve of the healthy workers' years from
 	// the first exam to the first signal, censored at the last exam.
 	HealthyCurve Curve
 }
