@@ -1,10 +1,10 @@
 // Package web is veer's add-in for spreadsheets that host JavaScript
 // add-ins (a custom-functions runtime plus a task pane). It holds the static
-// files (veer.js, the task pane) embedded in the binary, and generates from
-// the function catalogue everything that must stay in step with it: the
-// custom-functions metadata (functions.json), the runtime's function table
-// (catalog.js), a help page, the icons and the add-in manifest. There is no
-// second, hand-written list of functions.
+// files (veer.js, the task pane, the icons) embedded in the binary, and
+// generates from the function catalogue everything that must stay in step
+// with it: the custom-functions metadata (functions.json), the runtime's
+// function table (catalog.js), a help page and the add-in manifest. There is
+// no second, hand-written list of functions.
 //
 // `veer serve` serves Site at /addin/; `veer addin manifest` prints the
 // manifest. The add-in is a thin client: every cell call goes to the local

@@ -14,11 +14,13 @@ import (
 	"veer/functions/cell"
 )
 
-//go:embed index.html taskpane.html taskpane.js taskpane.css veer.js
+//go:embed index.html taskpane.html taskpane.js taskpane.css veer.js icon-*.png
 var files embed.FS
 
 // Files returns the add-in's static files: index.html, taskpane.html,
-// taskpane.js, taskpane.css and veer.js (the runtime).
+// taskpane.js, taskpane.css, veer.js (the runtime) and the icons
+// (icon-16.png, icon-32.png, icon-64.png and icon-80.png, the sizes the
+// manifest names; plain image files, edited with any image editor).
 func Files() fs.FS { return files }
 
 // SiteOptions configure Site.
@@ -35,7 +37,7 @@ type SiteOptions struct {
 
 // Site returns the files served at /addin/: Files plus the files generated
 // from the catalogue listing — functions.json (host metadata), catalog.js
-// (runtime table), help.html, manifest.xml and icon-N.png.
+// (runtime table), help.html and manifest.xml.
 func Site(l cell.Listing, opt SiteOptions) (fs.FS, error) {
 	if _, err := Metadata(l, ""); err != nil {
 		return nil, err
@@ -71,10 +73,6 @@ func Site(l cell.Listing, opt SiteOptions) (fs.FS, error) {
 			return Metadata(l, b+"/addin/help.html")
 		}),
 		"manifest.xml": lazy(func() ([]byte, error) { return Manifest(base()) }),
-	}
-	for _, n := range IconSizes {
-		b := Icon(n)
-		gen[fmt.Sprintf("icon-%d.png", n)] = func() ([]byte, error) { return b, nil }
 	}
 	mounts := map[string]fs.FS{}
 	for dir, f := range opt.Mount {

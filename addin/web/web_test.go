@@ -11,6 +11,7 @@ import (
 	"net/http"
 	"net/http/httptest"
 	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 	"testing/fstest"
@@ -316,21 +317,53 @@ func TestSiteServes(t *testing.T) {
 	}
 }
 
+// TestIcons checks every icon the manifest names: a PNG file the site
+// serves, of the size its name says, drawn in the centre and with cut
+// (transparent) corners.
 func TestIcons(t *testing.T) {
-	for _, n := range IconSizes {
-		img, err := png.Decode(bytes.NewReader(Icon(n)))
+	b, err := Manifest(DefaultBaseURL)
+	if err != nil {
+		t.Fatal(err)
+	}
+	site, err := Site(listing(t), SiteOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, urls, _ := manifestURLs(t, b)
+	iconRE := regexp.MustCompile(`/addin/(icon-([0-9]+)\.png)$`)
+	sizes := map[int]bool{}
+	for _, u := range urls {
+		m := iconRE.FindStringSubmatch(u)
+		if m == nil {
+			continue
+		}
+		n, _ := strconv.Atoi(m[2])
+		sizes[n] = true
+		data, err := fs.ReadFile(site, m[1])
 		if err != nil {
-			t.Fatal(err)
+			t.Errorf("%s: %v", m[1], err)
+			continue
+		}
+		img, err := png.Decode(bytes.NewReader(data))
+		if err != nil {
+			t.Errorf("%s: %v", m[1], err)
+			continue
 		}
 		if img.Bounds().Dx() != n || img.Bounds().Dy() != n {
-			t.Errorf("icon-%d.png is %v", n, img.Bounds())
+			t.Errorf("%s is %v", m[1], img.Bounds())
 		}
-		// The centre is drawn (opaque), a corner is cut (transparent).
 		if _, _, _, a := img.At(n/2, n/2).RGBA(); a < 0xff00 {
-			t.Errorf("icon-%d: centre not opaque", n)
+			t.Errorf("%s: centre not opaque", m[1])
 		}
 		if _, _, _, a := img.At(0, 0).RGBA(); a > 0x4000 {
-			t.Errorf("icon-%d: corner not cut", n)
+			t.Errorf("%s: corner not cut", m[1])
+		}
+	}
+	// The sizes the host asks for: 16, 32 and 80 for the ribbon, 32 and 64
+	// for the add-in lists.
+	for _, n := range []int{16, 32, 64, 80} {
+		if !sizes[n] {
+			t.Errorf("the manifest names no %dx%d icon", n, n)
 		}
 	}
 }
