@@ -142,9 +142,10 @@ type runtimeParam struct {
 	Optional bool   `json:"optional"`
 }
 
-// CatalogJS returns catalog.js, a script defining the global veerCatalog
-// that veer.js reads to register every function with the host at load time
-// (the host wants the registrations before it calls anything).
+// CatalogJS returns catalog.js, a JavaScript module whose default export is
+// the function table veer.js imports to register every function with the
+// host at load time (the host wants the registrations before it calls
+// anything).
 func CatalogJS(l cell.Listing) ([]byte, error) {
 	type table struct {
 		Namespace string            `json:"namespace"`
@@ -166,7 +167,7 @@ func CatalogJS(l cell.Listing) ([]byte, error) {
 		return nil, err
 	}
 	var buf bytes.Buffer
-	buf.WriteString("// veer's function table, generated from its function catalogue by the veer\n// server; do not edit. veer.js registers these functions with the host.\nvar veerCatalog = ")
+	buf.WriteString("// veer's function table, generated from its function catalogue by the veer\n// server; do not edit. veer.js registers these functions with the host.\nexport default ")
 	buf.Write(b)
 	buf.WriteString(";\n")
 	return buf.Bytes(), nil

@@ -14,13 +14,14 @@ import (
 	"veer/functions/cell"
 )
 
-//go:embed index.html taskpane.html taskpane.js taskpane.css veer.js icon-*.png
+//go:embed index.html taskpane.html taskpane.js taskpane.css veer.js client.js unsupported.js icon-*.png
 var files embed.FS
 
-// Files returns the add-in's static files: index.html, taskpane.html,
-// taskpane.js, taskpane.css, veer.js (the runtime) and the icons
-// (icon-16.png, icon-32.png, icon-64.png and icon-80.png, the sizes the
-// manifest names; plain image files, edited with any image editor).
+// Files returns the add-in's static files: index.html, the task pane
+// (taskpane.html, taskpane.js, taskpane.css), the runtime (veer.js and
+// client.js; JavaScript modules), unsupported.js (the message for webviews
+// without modules) and the icons (icon-16.png, icon-32.png, icon-64.png and
+// icon-80.png, the sizes the manifest names; plain image files).
 func Files() fs.FS { return files }
 
 // SiteOptions configure Site.

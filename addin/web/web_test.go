@@ -10,6 +10,7 @@ import (
 	"io/fs"
 	"net/http"
 	"net/http/httptest"
+	"path"
 	"regexp"
 	"strconv"
 	"strings"
@@ -135,8 +136,8 @@ func TestMetadataRejectsCollisions(t *testing.T) {
 	}
 }
 
-// TestCatalogJS checks the runtime's table: a script defining veerCatalog
-// with every function, its parameters and flags.
+// TestCatalogJS checks the runtime's table: a module whose default export
+// lists every function, its parameters and flags.
 func TestCatalogJS(t *testing.T) {
 	l := listing(t)
 	b, err := CatalogJS(l)
@@ -144,10 +145,10 @@ func TestCatalogJS(t *testing.T) {
 		t.Fatal(err)
 	}
 	s := string(b)
-	const prefix = "var veerCatalog = "
+	const prefix = "export default "
 	i := strings.Index(s, prefix)
 	if i < 0 || !strings.HasSuffix(s, ";\n") {
-		t.Fatalf("catalog.js does not define veerCatalog:\n%.200s", s)
+		t.Fatalf("catalog.js does not export the table:\n%.200s", s)
 	}
 	if strings.ContainsAny(s[i:], "<>") {
 		t.Error("catalog.js must not contain < or > (script safety)")
@@ -286,10 +287,12 @@ func TestSiteServes(t *testing.T) {
 	}{
 		{"taskpane.html", "text/html", `src="veer.js"`, 200},
 		{"veer.js", "text/javascript", "CF.associate(f.id", 200},
-		{"taskpane.js", "text/javascript", "showWorker", 200},
+		{"client.js", "text/javascript", "export class Client", 200},
+		{"unsupported.js", "text/javascript", "cannot run", 200},
+		{"taskpane.js", "text/javascript", "export async function showWorker", 200},
 		{"taskpane.css", "text/css", "--vermillion", 200},
 		{"functions.json", "application/json", `"helpUrl": "` + base + `/addin/help.html#VEER.ZSCORE"`, 200},
-		{"catalog.js", "text/javascript", `"name":"VEER.CHART"`, 200},
+		{"catalog.js", "text/javascript", `export default {"namespace":"VEER"`, 200},
 		{"help.html", "text/html", `id="VEER.ZSCORE"`, 200},
 		{"manifest.xml", "xml", base + "/addin/taskpane.html", 200},
 		{"icon-80.png", "image/png", "", 200},
@@ -407,6 +410,81 @@ func TestPagesReferToServedFiles(t *testing.T) {
 			if _, err := fs.Stat(site, u); err != nil {
 				t.Errorf("%s refers to %s, which is not served", page, u)
 			}
+		}
+	}
+}
+
+// TestScriptsLoadAsModules checks how the pane loads the add-in's code:
+// the runtime and the pane as modules (each on its own, so that a fault in
+// the pane cannot keep the functions from registering), the message for
+// webviews without modules as the one plain script, after the host's
+// library; and that every module imports only files the site serves.
+func TestScriptsLoadAsModules(t *testing.T) {
+	site, err := Site(listing(t), SiteOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	page, err := fs.ReadFile(site, "taskpane.html")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got []string
+	for _, m := range regexp.MustCompile(`<script([^>]*)>`).FindAllSubmatch(page, -1) {
+		got = append(got, strings.Join(strings.Fields(string(m[1])), " "))
+	}
+	want := []string{
+		`src="https://appsforoffice.microsoft.com/lib/1/hosted/office.js"`,
+		`type="module" src="veer.js"`,
+		`type="module" src="taskpane.js"`,
+		`nomodule defer src="unsupported.js"`,
+	}
+	if strings.Join(got, "\n") != strings.Join(want, "\n") {
+		t.Errorf("taskpane.html loads\n  %s\nwant\n  %s", strings.Join(got, "\n  "), strings.Join(want, "\n  "))
+	}
+
+	imports := regexp.MustCompile(`(?m)^import\s+(?:[^"';]*?\s+from\s+)?"([^"]+)";`)
+	seen := map[string]bool{}
+	var visit func(name string)
+	visit = func(name string) {
+		if seen[name] {
+			return
+		}
+		seen[name] = true
+		b, err := fs.ReadFile(site, name)
+		if err != nil {
+			t.Errorf("%s is imported but not served: %v", name, err)
+			return
+		}
+		for _, m := range imports.FindAllSubmatch(b, -1) {
+			spec := string(m[1])
+			if !strings.HasPrefix(spec, "./") {
+				t.Errorf("%s imports %q: only files of the add-in (./name.js) can be imported without a build step", name, spec)
+				continue
+			}
+			visit(path.Join(path.Dir(name), spec))
+		}
+	}
+	visit("veer.js")
+	visit("taskpane.js")
+	for _, name := range []string{"veer.js", "client.js", "catalog.js", "taskpane.js"} {
+		if !seen[name] {
+			t.Errorf("%s is not reached from the pane's modules", name)
+		}
+	}
+}
+
+// TestUnsupportedIsPlainScript checks that unsupported.js uses no syntax
+// later than ES5: it must run in Internet Explorer's webview, which the
+// browser tests cannot start.
+func TestUnsupportedIsPlainScript(t *testing.T) {
+	b, err := fs.ReadFile(Files(), "unsupported.js")
+	if err != nil {
+		t.Fatal(err)
+	}
+	code := regexp.MustCompile(`(?s)/\*.*?\*/`).ReplaceAllString(string(b), "")
+	for _, later := range []string{"=>", "`", "?.", "??", "const ", "let ", "class ", "import ", "export ", "async ", "await "} {
+		if strings.Contains(code, later) {
+			t.Errorf("unsupported.js uses %q, which Internet Explorer cannot run", later)
 		}
 	}
 }
