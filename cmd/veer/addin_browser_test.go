@@ -303,6 +303,24 @@ func TestWebAddinInBrowser(t *testing.T) {
 		if b.Frames != 1 || b.N != 20 || b.Errors != 0 {
 			t.Errorf("20 calls in one tick took %d frames (want 1), %d answers, %d errors", b.Frames, b.N, b.Errors)
 		}
+		// A slow function travels in a frame of its own: the quick calls of
+		// the same tick are answered while it still computes.
+		type alone struct {
+			Frames, Quick, Errors, Slow int
+		}
+		a := inPage[alone](t, ctx, 20*time.Second, fmt.Sprintf(`(async () => {
+			const f0 = veer.client.stats.frames;
+			const slow = testHost.invoke("VEER.LIMIT", [200, "demo-sbp", [["method=bootstrap; reps=100000; seed=%d"]]]);
+			const ids = [];
+			for (let i = 0; i < 3; i++) ids.push(testHost.invoke("VEER.ZSCORE", ["demo-sbp", [[40 + i]], [[128]], [["tower"]]]));
+			const rs = await Promise.all(ids.map(id => testHost.wait(id, 1, 15000)));
+			const out = {frames: veer.client.stats.frames - f0, quick: rs.length, errors: rs.filter(r => r[0].error).length, slow: testHost.results(slow).length};
+			testHost.cancel(slow);
+			return out;
+		})()`, time.Now().UnixNano()%1000000+1000000))
+		if a.Frames != 2 || a.Quick != 3 || a.Errors != 0 || a.Slow != 0 {
+			t.Errorf("a slow call and 3 quick ones in one tick: %d frames (want 2), %d quick answers (%d errors), the slow call answered %d times before them (want 0)", a.Frames, a.Quick, a.Errors, a.Slow)
+		}
 		noViolations(t, ctx)
 	})
 
