@@ -150,7 +150,7 @@ func demoOne(e *env, mk demoMarker, ref, work *table.Table, truth map[string]scr
 	if err != nil {
 		return nil, err
 	}
-	m, err := screening.Fit(refRows, screening.FitOptions{Name: mk.name, Curves: refcurve.Options{Transform: mk.transform}})
+	m, err := screening.Fit(context.Background(), refRows, screening.FitOptions{Name: mk.name, Curves: refcurve.Options{Transform: mk.transform}})
 	if err != nil {
 		return nil, err
 	}

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"os"
 	"strconv"
@@ -150,7 +151,7 @@ func runFit(e *env, args []string) error {
 		return err
 	}
 	p := newProgress(e)
-	m, err := screening.Fit(rows, screening.FitOptions{
+	m, err := screening.Fit(context.Background(), rows, screening.FitOptions{
 		Name: *name,
 		Curves: refcurve.Options{
 			Transform:  *transform,

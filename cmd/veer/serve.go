@@ -43,7 +43,7 @@ func builtinModels() (map[string][]byte, error) {
 			return nil, err
 		}
 		name := "demo-" + mk.name
-		m, err := screening.Fit(rows, screening.FitOptions{Name: name, Curves: refcurve.Options{Transform: mk.transform}})
+		m, err := screening.Fit(context.Background(), rows, screening.FitOptions{Name: name, Curves: refcurve.Options{Transform: mk.transform}})
 		if err != nil {
 			return nil, err
 		}

@@ -893,8 +893,11 @@ func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if opt.Curves.Bandwidth < 0 {
 		return nil, cell.NumError("VEER.FIT: bandwidth must be positive (or 0 to choose it)")
 	}
-	m, err := screening.Fit(rows, opt)
+	m, err := screening.Fit(ctx, rows, opt)
 	if err != nil {
+		if cerr := ctx.Err(); cerr != nil {
+			return nil, cerr
+		}
 		return nil, cellError("VEER.FIT", err)
 	}
 	doc, err := m.Encode()

@@ -119,7 +119,7 @@ func reference(t testing.TB) (exams, []byte) {
 	t.Helper()
 	refOnce.Do(func() {
 		refData = synth(1, 160, 120, 0)
-		m, err := screening.Fit(refData.rows(), screening.FitOptions{Name: "sbp"})
+		m, err := screening.Fit(context.Background(), refData.rows(), screening.FitOptions{Name: "sbp"})
 		if err != nil {
 			refErr = err
 			return

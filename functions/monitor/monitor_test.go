@@ -1,6 +1,7 @@
 package monitor
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -82,7 +83,7 @@ func realisedATS(t *testing.T, set Settings, h, target float64, n int, seed uint
 func TestRealisedATS(t *testing.T) {
 	const target = 50.0
 	ref := reference(1500, 8, 11)
-	est, err := serial.Estimate(ref)
+	est, err := serial.Estimate(context.Background(), ref)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -357,7 +358,7 @@ func TestDelayAndReproducible(t *testing.T) {
 // on 2 cores (reference of 1000 workers x 6 exams, default 4000 paths).
 func BenchmarkLimitBootstrap(b *testing.B) {
 	ref := reference(1000, 6, 31)
-	est, _ := serial.Estimate(ref)
+	est, _ := serial.Estimate(context.Background(), ref)
 	for _, mode := range []Mode{Direct, Whiten} {
 		for _, target := range []float64{100, 1000} {
 			c := Calibration{Settings: Settings{Chart: chart.DefaultSpec(), Mode: mode, Serial: est}, Method: Bootstrap, Reference: ref, Seed: 1}

@@ -48,6 +48,17 @@ func (m *Model) Items() []Item {
 		}
 	}
 	s, sd := m.Serial, m.SerialDiagnostics
+	finding := "serial correlation detected"
+	if s.NoCorrelationDetected() {
+		finding = "no serial correlation detected"
+	}
+	items = append(items, Item{"serial correlation", finding})
+	if t := s.Test; t != nil {
+		items = append(items,
+			Item{"consecutive exams correlation", t.Corr},
+			Item{"no-correlation test p-value (one-sided t)", t.P},
+		)
+	}
 	items = append(items,
 		Item{"serial correlation phi (per year)", s.Phi},
 		Item{"phi standard error (0: not available)", s.SEPhi},

@@ -1,6 +1,7 @@
 package screening
 
 import (
+	"context"
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
@@ -61,7 +62,7 @@ type Model struct {
 }
 
 // Fit fits a screening model from the exams of healthy reference workers.
-func Fit(rows []refcurve.Row, opt FitOptions) (*Model, error) {
+func Fit(ctx context.Context, rows []refcurve.Row, opt FitOptions) (*Model, error) {
 	if strings.TrimSpace(opt.Name) == "" {
 		return nil, errors.New("the model needs a name")
 	}
@@ -86,9 +87,9 @@ func Fit(rows []refcurve.Row, opt FitOptions) (*Model, error) {
 	if gapN == 0 {
 		return nil, errors.New("no reference worker has two or more exams, so the time between exams and the serial correlation cannot be estimated")
 	}
-	params, err := serial.Estimate(series)
+	params, err := serial.Estimate(ctx, series)
 	if err != nil {
-		return nil, fmt.Errorf("serial correlation: %v", err)
+		return nil, fmt.Errorf("serial correlation: %w", err)
 	}
 	// With (almost) no correlation the standard errors can be undefined;
 	// they are stored as 0, "not available", so the model stays valid JSON.
@@ -254,8 +255,8 @@ func Decode(data []byte) (*Model, error) {
 
 // Summary is a one-line description for people.
 func (m *Model) Summary() string {
-	return fmt.Sprintf("groups %s; serial correlation phi %.3f per year, persistent share c %.3f; mean gap %.2f years",
-		strings.Join(m.Curves.Groups(), ", "), m.Serial.Phi, m.Serial.C, m.MeanGap)
+	return fmt.Sprintf("groups %s; %s; mean gap %.2f years",
+		strings.Join(m.Curves.Groups(), ", "), m.Serial.Finding(), m.MeanGap)
 }
 
 func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }

@@ -2,6 +2,7 @@ package screening
 
 import (
 	"bytes"
+	"context"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -49,7 +50,7 @@ func exams(rows []refcurve.Row) []Exam {
 
 func fit(t testing.TB, rows []refcurve.Row) *Model {
 	t.Helper()
-	m, err := Fit(rows, FitOptions{Name: "sim"})
+	m, err := Fit(context.Background(), rows, FitOptions{Name: "sim"})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -10,13 +10,20 @@
 // so two exams d years apart correlate c*phi^d and e is N(0,1) marginally.
 //
 // Estimate fits phi and c to reference workers by maximum pairwise
-// likelihood with worker-level sandwich standard errors; Filter and
-// Innovations give the Kalman innovations, i.i.d. N(0,1) for a healthy
-// worker at any gaps; Simulate draws healthy workers; Diagnose checks the
-// reference innovations (mean, SD, lag-1 correlation and D'Agostino-Pearson
-// normality, with p-values).
+// likelihood with worker-level sandwich standard errors, and tests for no
+// correlation between consecutive exams. It reads the pairs of exams a few
+// times (to check and test, to bin them by gap, and for one or two exact
+// Newton steps); the search itself runs on the binned sums, whose size does
+// not grow with the number of pairs. Filter and Innovations give the Kalman
+// innovations, i.i.d. N(0,1) for a healthy worker at any gaps; Simulate
+// draws healthy workers; Diagnose checks the reference innovations (mean,
+// SD, lag-1 correlation and D'Agostino-Pearson normality, with p-values).
 //
 // Tests check the innovations against Cholesky whitening, the estimate
-// against scipy.optimize, and the p-values against scipy.stats
-// (testdata/make_fixtures.py), and recover phi and c from simulated workers.
+// against scipy.optimize (inside the parameter space and at its edge), the
+// sandwich standard errors against numpy central differences, and the
+// p-values against scipy.stats (testdata/make_fixtures.py); they recover
+// phi and c from simulated workers with known truth (no correlation, phi
+// near 0 and near 1, no noise, few pairs), and check the derivatives, the
+// binning error, row-order independence and cancellation.
 package serial

@@ -18,12 +18,15 @@ type Series struct {
 //
 // so that corr(e(t), e(t+d)) = C*Phi^d for d > 0. SEPhi and SEC are standard
 // errors (zero when the parameters were set by hand); Pairs and Workers count
-// the pairs of exams and workers (with at least one pair) behind the estimate.
+// the pairs of exams and workers (with at least one pair) behind the estimate,
+// and Test is the test of no serial correlation Estimate made (nil when the
+// parameters were set by hand or come from a model written before the test).
 type Params struct {
 	Phi, C     float64
 	SEPhi, SEC float64
 	Pairs      int
 	Workers    int
+	Test       *CorrelationTest `json:",omitempty"`
 }
 
 // Validate reports whether Phi is in [0,1) and C in [0,1].
@@ -40,6 +43,53 @@ func (p Params) Validate() error {
 // Independent reports whether the model implies uncorrelated exams
 // (c = 0 or phi = 0), in which case z is already white.
 func (p Params) Independent() bool { return p.C == 0 || p.Phi == 0 }
+
+// NoCorrelationDetected reports whether the estimate found no serial
+// correlation: the fitted model has none (Independent), or the test of no
+// correlation between consecutive exams did not reject it at TestLevel.
+// Parameters without a test are judged by Independent alone.
+func (p Params) NoCorrelationDetected() bool {
+	return p.Independent() || (p.Test != nil && !p.Test.Detected())
+}
+
+// Finding says in words what the estimate found about serial correlation,
+// for people: whether the test detected it (with the lag-1 correlation
+// and the p-value) and the fitted phi and c, or that the readings are
+// treated as independent. When the test finds none but the fitted model
+// is not independent, the model's correlation at the mean gap is given
+// too: near the edge of the parameter space phi and c alone can look
+// large (c 1.000 with phi 0.003) for a correlation that is negligible.
+// For example
+//
+//	no serial correlation detected (consecutive exams, 1.50 years apart on average, correlate -0.001, p = 0.57); readings of a worker are treated as independent
+//	serial correlation detected (consecutive exams, 1.50 years apart on average, correlate 0.331, p < 0.001): phi 0.705 per year, persistent share c 0.597
+func (p Params) Finding() string {
+	fitted := fmt.Sprintf("phi %.3f per year, persistent share c %.3f", p.Phi, p.C)
+	if p.Test == nil {
+		if p.Independent() {
+			return "no serial correlation: readings of a worker are treated as independent"
+		}
+		return "serial correlation " + fitted
+	}
+	t := p.Test
+	test := fmt.Sprintf("consecutive exams, %.2f years apart on average, correlate %.3f, %s", t.MeanGap, t.Corr, PValueText(t.P))
+	switch {
+	case p.Independent():
+		return "no serial correlation detected (" + test + "); readings of a worker are treated as independent"
+	case !t.Detected():
+		return fmt.Sprintf("no serial correlation detected (%s); the fitted model (%s) gives them a correlation of %.3f",
+			test, fitted, p.Corr(t.MeanGap))
+	}
+	return "serial correlation detected (" + test + "): " + fitted
+}
+
+// PValueText writes a p-value for people: "p < 0.001" or "p = 0.42".
+func PValueText(p float64) string {
+	if p < 0.001 {
+		return "p < 0.001"
+	}
+	return fmt.Sprintf("p = %.3g", p)
+}
 
 // Corr returns the model correlation of two exams d > 0 years apart, C*Phi^d.
 func (p Params) Corr(d float64) float64 { return p.C * math.Pow(p.Phi, d) }

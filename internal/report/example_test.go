@@ -2,6 +2,7 @@ package report_test
 
 import (
 	"bytes"
+	"context"
 	"fmt"
 	"log"
 	"strings"
@@ -36,7 +37,7 @@ func ExampleRender() {
 	for i, e := range ref {
 		rows[i] = refcurve.Row{Worker: e.Worker, Group: e.Group, Time: e.Time, Value: e.Value}
 	}
-	m, err := screening.Fit(rows, screening.FitOptions{Name: "sbp"})
+	m, err := screening.Fit(context.Background(), rows, screening.FitOptions{Name: "sbp"})
 	if err != nil {
 		log.Fatal(err)
 	}

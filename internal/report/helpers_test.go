@@ -94,7 +94,7 @@ func screenMarker(ref, wf *table.Table, mk demoMarker) (Section, error) {
 	for i, e := range re {
 		rows[i] = refcurve.Row{Worker: e.Worker, Group: e.Group, Time: e.Time, Value: e.Value}
 	}
-	m, err := screening.Fit(rows, screening.FitOptions{Name: "demo-" + mk.column, Curves: refcurve.Options{Transform: mk.transform}})
+	m, err := screening.Fit(context.Background(), rows, screening.FitOptions{Name: "demo-" + mk.column, Curves: refcurve.Options{Transform: mk.transform}})
 	if err != nil {
 		return Section{}, err
 	}

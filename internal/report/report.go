@@ -440,19 +440,51 @@ func describeChart(set screening.Settings, m *screening.Model) string {
 			article(dir), dir, num(c.Allowance, 3), sense)
 	}
 	var serial string
-	switch set.Serial {
-	case screening.SerialWhiten:
-		serial = fmt.Sprintf("Each worker's readings are first whitened with a Kalman filter of the fitted serial model "+
-			"(correlation φ = %s per year, persistent share c = %s), so the charted values of a healthy worker are independent.",
-			num(m.Serial.Phi, 3), num(m.Serial.C, 3))
-	case screening.SerialOff:
+	switch {
+	case set.Serial == screening.SerialOff:
 		serial = "Readings of a worker are treated as independent (serial correlation off)."
+	case m.Serial.Independent():
+		serial = serialFinding(m) + "; a worker's standardised readings are therefore charted as independent."
+	case set.Serial == screening.SerialWhiten:
+		serial = fmt.Sprintf("%s. Each worker's readings are first whitened with a Kalman filter of the fitted serial model "+
+			"(%s), so the charted values of a healthy worker are independent.", serialFinding(m), serialModel(m))
 	default:
-		serial = fmt.Sprintf("The standardised readings are charted directly; the limit allows for the correlation between "+
-			"a worker's successive exams (φ = %s per year, persistent share c = %s).", num(m.Serial.Phi, 3), num(m.Serial.C, 3))
+		serial = fmt.Sprintf("%s. The standardised readings are charted directly; the limit allows for the correlation between "+
+			"a worker's successive exams (%s).", serialFinding(m), serialModel(m))
 	}
 	return "Each reading is standardised against the reference of the worker's group at the worker's age: " +
 		"z = (reading − reference mean) / reference SD" + transformNote(m) + ". The chart is " + what + ". " + serial
+}
+
+// serialFinding says whether serial correlation was found in the reference
+// workers' exams, with the test behind it when the model has one.
+func serialFinding(m *screening.Model) string {
+	s := m.Serial
+	var test string
+	if t := s.Test; t != nil {
+		test = fmt.Sprintf(" (consecutive exams of a reference worker correlate %s; one-sided test of no correlation p %s)", num(t.Corr, 2), pvalText(t.P))
+	}
+	if s.NoCorrelationDetected() {
+		return "No serial correlation was detected between a worker's exams" + test
+	}
+	return "Serial correlation was detected between a worker's exams" + test
+}
+
+// serialModel describes the fitted serial model: phi, c and the
+// correlation it gives two exams the reference workers' mean gap apart.
+func serialModel(m *screening.Model) string {
+	s := m.Serial
+	return fmt.Sprintf("correlation φ = %s per year, persistent share c = %s; exams %s years apart correlate %s",
+		num(s.Phi, 3), num(s.C, 3), num(m.MeanGap, 2), num(s.Corr(m.MeanGap), 2))
+}
+
+// pvalText is pval after "p": "= 0.420" or "< 0.001".
+func pvalText(p float64) string {
+	v := pval(p)
+	if strings.HasPrefix(v, "<") {
+		return v
+	}
+	return "= " + v
 }
 
 func article(word string) string {
@@ -570,6 +602,7 @@ func diagnostics(m *screening.Model) ([]groupDiag, []kv, []string) {
 		{"Model", m.Name},
 		{"Exams fitted", thousands(m.Curves.Rows)},
 		{"Transform of the readings", tr},
+		{"Serial correlation", serialCell(m)},
 		{"Serial correlation φ (per year)", num(m.Serial.Phi, 3) + seNote(m.Serial.SEPhi)},
 		{"Persistent share of variance c", num(m.Serial.C, 3) + seNote(m.Serial.SEC)},
 		{"Mean time between reference exams", num(m.MeanGap, 3) + " years"},
@@ -581,6 +614,19 @@ func diagnostics(m *screening.Model) ([]groupDiag, []kv, []string) {
 		model = append(model, kv{"Model fingerprint", m.Hash[:12]})
 	}
 	return gd, model, warn
+}
+
+// serialCell is the model table's serial-correlation finding.
+func serialCell(m *screening.Model) string {
+	s := m.Serial
+	v := "detected"
+	if s.NoCorrelationDetected() {
+		v = "no serial correlation detected"
+	}
+	if t := s.Test; t != nil {
+		v += fmt.Sprintf(" (consecutive exams correlate %s, p %s)", num(t.Corr, 2), pvalText(t.P))
+	}
+	return v
 }
 
 func seNote(se float64) string {

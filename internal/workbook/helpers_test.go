@@ -42,7 +42,7 @@ func sbpModel(t testing.TB) *screening.Model {
 		for i, e := range ex {
 			rows[i] = refcurve.Row{Worker: e.Worker, Group: e.Group, Time: e.Time, Value: e.Value}
 		}
-		modelVal, modelErr = screening.Fit(rows, screening.FitOptions{Name: "sbp"})
+		modelVal, modelErr = screening.Fit(context.Background(), rows, screening.FitOptions{Name: "sbp"})
 	})
 	if modelErr != nil {
 		t.Fatal(modelErr)
