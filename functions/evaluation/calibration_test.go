@@ -81,7 +81,7 @@ func refRows(ws []simWorker) []refcurve.Row {
 func TestFalseSignalRateMatchesTarget(t *testing.T) {
 	par := serial.Params{Phi: 0.95, C: 0.8}
 	ref := simulate(1500, par, 0, 1, "R")
-	m, err := screening.Fit(refRows(ref), screening.FitOptions{Name: "sim"})
+	m, err := screening.Fit(context.Background(), refRows(ref), screening.FitOptions{Name: "sim"})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,6 +1,7 @@
 package published
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"math"
@@ -216,7 +217,7 @@ func estimateKept(series []serial.Series, keep []bool) (serial.Params, float64, 
 			kept = append(kept, serial.Series{Time: s.Time, Z: standardise(s.Z, loc, sc)})
 		}
 	}
-	p, err := serial.Estimate(kept)
+	p, err := serial.Estimate(context.Background(), kept)
 	if err != nil {
 		return p, loc, sc, fmt.Errorf("serial correlation from the workforce: %w", err)
 	}
