@@ -53,7 +53,7 @@ func (m *Model) Items() []Item {
 		finding = "no serial correlation detected"
 	}
 	items = append(items, Item{"serial correlation", finding})
-	if t := s.Test; t != nil {
+	if t := s.Test; s.Tested() {
 		items = append(items,
 			Item{"consecutive exams correlation", t.Corr},
 			Item{"no-correlation test p-value (one-sided t)", t.P},

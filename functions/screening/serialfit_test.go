@@ -29,7 +29,7 @@ func TestSerialFinding(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			rows := cohort(400, tc.par, 1, "R")
 			m := fit(t, rows)
-			if m.Serial.Test == nil {
+			if !m.Serial.Tested() {
 				t.Fatal("the fitted model has no test of serial correlation")
 			}
 			if got := !m.Serial.NoCorrelationDetected(); got != tc.detected {
@@ -60,7 +60,7 @@ func TestSerialFinding(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			if back.Serial.Test == nil || *back.Serial.Test != *m.Serial.Test || back.Summary() != m.Summary() {
+			if back.Serial != m.Serial || back.Summary() != m.Summary() {
 				t.Errorf("decoded model: %+v, fitted %+v", back.Serial, m.Serial)
 			}
 			shuffled := append([]refcurve.Row(nil), rows...)

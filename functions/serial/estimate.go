@@ -237,8 +237,7 @@ func Estimate(ctx context.Context, s []Series) (Params, error) {
 	if err != nil {
 		return Params{}, err
 	}
-	test := sc.test
-	p := Params{Pairs: sc.pairs, Workers: sc.workers, Test: &test}
+	p := Params{Pairs: sc.pairs, Workers: sc.workers, Test: sc.test}
 	phi, c, err := searchBinned(ctx, bins, float64(sc.pairs))
 	if err != nil {
 		return Params{}, err

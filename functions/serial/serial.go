@@ -19,14 +19,15 @@ type Series struct {
 // so that corr(e(t), e(t+d)) = C*Phi^d for d > 0. SEPhi and SEC are standard
 // errors (zero when the parameters were set by hand); Pairs and Workers count
 // the pairs of exams and workers (with at least one pair) behind the estimate,
-// and Test is the test of no serial correlation Estimate made (nil when the
-// parameters were set by hand or come from a model written before the test).
+// and Test is the test of no serial correlation Estimate made (zero, and
+// Tested false, when the parameters were set by hand or come from a model
+// written before the test).
 type Params struct {
 	Phi, C     float64
 	SEPhi, SEC float64
 	Pairs      int
 	Workers    int
-	Test       *CorrelationTest `json:",omitempty"`
+	Test       CorrelationTest `json:",omitzero"`
 }
 
 // Validate reports whether Phi is in [0,1) and C in [0,1].
@@ -49,8 +50,12 @@ func (p Params) Independent() bool { return p.C == 0 || p.Phi == 0 }
 // correlation between consecutive exams did not reject it at TestLevel.
 // Parameters without a test are judged by Independent alone.
 func (p Params) NoCorrelationDetected() bool {
-	return p.Independent() || (p.Test != nil && !p.Test.Detected())
+	return p.Independent() || (p.Tested() && !p.Test.Detected())
 }
+
+// Tested reports whether p carries a test of no correlation (Estimate
+// made it).
+func (p Params) Tested() bool { return p.Test.Workers > 0 }
 
 // Finding says in words what the estimate found about serial correlation,
 // for people: whether the test detected it (with the lag-1 correlation
@@ -65,7 +70,7 @@ func (p Params) NoCorrelationDetected() bool {
 //	serial correlation detected (consecutive exams, 1.50 years apart on average, correlate 0.331, p < 0.001): phi 0.705 per year, persistent share c 0.597
 func (p Params) Finding() string {
 	fitted := fmt.Sprintf("phi %.3f per year, persistent share c %.3f", p.Phi, p.C)
-	if p.Test == nil {
+	if !p.Tested() {
 		if p.Independent() {
 			return "no serial correlation: readings of a worker are treated as independent"
 		}

@@ -123,7 +123,7 @@ func TestSandwichAndTestMatchScipy(t *testing.T) {
 	}
 	tt := p.Test
 	if tt.Workers != f.TTest.Workers || !relClose(tt.T, f.TTest.T, 1e-10) || !relClose(tt.P, f.TTest.P, 1e-8) {
-		t.Errorf("test %+v, scipy ttest_1samp t %.10g p %.10g over %d workers", *tt, f.TTest.T, f.TTest.P, f.TTest.Workers)
+		t.Errorf("test %+v, scipy ttest_1samp t %.10g p %.10g over %d workers", tt, f.TTest.T, f.TTest.P, f.TTest.Workers)
 	}
 	if !tt.Detected() {
 		t.Errorf("correlated fixture workers: correlation not detected (p %v)", tt.P)

@@ -461,7 +461,7 @@ func describeChart(set screening.Settings, m *screening.Model) string {
 func serialFinding(m *screening.Model) string {
 	s := m.Serial
 	var test string
-	if t := s.Test; t != nil {
+	if t := s.Test; s.Tested() {
 		test = fmt.Sprintf(" (consecutive exams of a reference worker correlate %s; one-sided test of no correlation p %s)", num(t.Corr, 2), pvalText(t.P))
 	}
 	if s.NoCorrelationDetected() {
@@ -623,7 +623,7 @@ func serialCell(m *screening.Model) string {
 	if s.NoCorrelationDetected() {
 		v = "no serial correlation detected"
 	}
-	if t := s.Test; t != nil {
+	if t := s.Test; s.Tested() {
 		v += fmt.Sprintf(" (consecutive exams correlate %s, p %s)", num(t.Corr, 2), pvalText(t.P))
 	}
 	return v

@@ -24,9 +24,9 @@ func TestRenderSerialFinding(t *testing.T) {
 		p     serial.Params
 		wants []string
 	}{
-		{"independent", serial.Params{Test: &serial.CorrelationTest{Workers: 300, Pairs: 1500, MeanGap: 1.5, Corr: -0.004, T: -0.3, P: 0.62}},
+		{"independent", serial.Params{Test: serial.CorrelationTest{Workers: 300, Pairs: 1500, MeanGap: 1.5, Corr: -0.004, T: -0.3, P: 0.62}},
 			[]string{"No serial correlation was detected between a worker's exams", "p = 0.620", "charted as independent", "no serial correlation detected (consecutive exams correlate -0.004, p = 0.620)"}},
-		{"weak, not detected", serial.Params{Phi: 0.003, C: 1, Test: &serial.CorrelationTest{Workers: 300, Pairs: 1500, MeanGap: 1.5, Corr: 0.01, T: 0.9, P: 0.18}},
+		{"weak, not detected", serial.Params{Phi: 0.003, C: 1, Test: serial.CorrelationTest{Workers: 300, Pairs: 1500, MeanGap: 1.5, Corr: 0.01, T: 0.9, P: 0.18}},
 			[]string{"No serial correlation was detected between a worker's exams", "persistent share c = 1", "correlate 0"}},
 	}
 	for _, tc := range tests {
