@@ -22,7 +22,7 @@ func ExampleModel_EvaluateHistory() {
 	for i, e := range ref {
 		rows[i] = refcurve.Row{Worker: e.Worker, Group: e.Group, Time: e.Age, Value: e.SBP}
 	}
-	m, err := screening.Fit(rows, screening.FitOptions{Name: "sbp"})
+	m, err := screening.Fit(context.Background(), rows, screening.FitOptions{Name: "sbp"})
 	if err != nil {
 		fmt.Println(err)
 		return
