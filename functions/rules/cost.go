@@ -3,6 +3,9 @@ package rules
 import (
 	"math"
 
+	"github.com/google/cel-go/common/types/ref"
+	"github.com/google/cel-go/common/types/traits"
+
 	"github.com/google/cel-go/cel"
 	"github.com/google/cel-go/checker"
 	"github.com/google/cel-go/common/ast"
@@ -62,31 +65,97 @@ func (s sizeBound) EstimateSize(n checker.AstNode) *checker.SizeEstimate {
 	return nil
 }
 
-// EstimateCallCost mirrors helperCost for the helpers: min, max and mean
-// cost one unit per item plus one; last costs one unit and gives at most
-// n items (n a constant) and never more than its list.
+// EstimateCallCost gives the helpers' cost and result size from
+// helperTable, as helperCost does when they run; other calls keep
+// cel-go's own estimates.
 func (s sizeBound) EstimateCallCost(_, overloadID string, _ *checker.AstNode, args []checker.AstNode) *checker.CallEstimate {
-	switch overloadID {
-	case ovMin, ovMax, ovMean:
-		sz := checker.UnknownSizeEstimate()
-		if c := args[0].ComputedSize(); c != nil {
-			sz = *c
-		}
-		return &checker.CallEstimate{CostEstimate: sz.Add(checker.FixedSizeEstimate(1)).AsCost()}
-	case ovLast:
-		out := checker.UnknownSizeEstimate()
-		if c := args[0].ComputedSize(); c != nil {
-			out = *c
-		}
-		if e := args[1].Expr(); e.Kind() == ast.LiteralKind {
-			if n, ok := e.AsLiteral().(types.Int); ok && n >= 0 {
-				out.Max = min(out.Max, uint64(n))
-				out.Min = min(out.Min, out.Max)
+	o, ok := helperOverloads()[overloadID]
+	if !ok {
+		return nil
+	}
+	return &checker.CallEstimate{CostEstimate: o.cost.estimate(args), ResultSize: o.size.estimate(args)}
+}
+
+// helperCost is the runtime cost tracker's estimator: it charges the
+// helpers what helperTable says, so the cost limit also bounds work
+// hidden inside them; other calls keep cel-go's own charges.
+type helperCost struct{}
+
+func (helperCost) CallCost(_, overloadID string, args []ref.Val, _ ref.Val) *uint64 {
+	o, ok := helperOverloads()[overloadID]
+	if !ok {
+		return nil
+	}
+	c := o.cost.actual(args)
+	return &c
+}
+
+// callCost is what one call of a helper costs, in CEL cost units. Both
+// ways of counting it are written side by side: actual when the rule
+// runs (helperCost) and estimate for its worst case (sizeBound).
+type callCost uint8
+
+const (
+	// costUnset is the zero value: a helper declared without a cost.
+	// TestEveryHelperHasACost fails on it; counted as costOne meanwhile.
+	costUnset callCost = iota
+	// costOne is one unit whatever the arguments, as cel-go charges a
+	// simple function.
+	costOne
+	// costPerItem is one unit per item of the list argument (the first),
+	// plus one: the helper reads the whole list.
+	costPerItem
+)
+
+func (c callCost) actual(args []ref.Val) uint64 {
+	if c == costPerItem && len(args) > 0 {
+		if s, ok := args[0].(traits.Sizer); ok {
+			if n, ok := s.Size().(types.Int); ok && n >= 0 {
+				return uint64(n) + 1
 			}
 		}
-		return &checker.CallEstimate{CostEstimate: checker.CostEstimate{Min: 1, Max: 1}, ResultSize: &out}
 	}
-	return nil
+	return 1
+}
+
+func (c callCost) estimate(args []checker.AstNode) checker.CostEstimate {
+	if c == costPerItem && len(args) > 0 {
+		return argSize(args[0]).Add(checker.FixedSizeEstimate(1)).AsCost()
+	}
+	return checker.CostEstimate{Min: 1, Max: 1}
+}
+
+// resultSize says how long a helper's list result can be.
+type resultSize uint8
+
+const (
+	// sizeNone: the result is not a list (or its size is not bounded here).
+	sizeNone resultSize = iota
+	// sizeLastN: at most n items (n the second argument, when a
+	// constant) and never more than the list (the first).
+	sizeLastN
+)
+
+func (r resultSize) estimate(args []checker.AstNode) *checker.SizeEstimate {
+	if r != sizeLastN || len(args) < 2 {
+		return nil
+	}
+	out := argSize(args[0])
+	if e := args[1].Expr(); e.Kind() == ast.LiteralKind {
+		if n, ok := e.AsLiteral().(types.Int); ok && n >= 0 {
+			out.Max = min(out.Max, uint64(n))
+			out.Min = min(out.Min, out.Max)
+		}
+	}
+	return &out
+}
+
+// argSize is the size estimate of an argument, or unknown.
+func argSize(n checker.AstNode) checker.SizeEstimate {
+	if c := n.ComputedSize(); c != nil {
+		return *c
+	}
+	return checker.UnknownSizeEstimate()
 }
 
 // fastBound finds the largest history length for which the rule's

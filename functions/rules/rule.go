@@ -274,11 +274,7 @@ func compileProgram(env *cel.Env, expr string, want ResultKind, lim Limits, know
 	}
 	p := &program{expr: expr, want: want, kind: kind, lim: lim}
 	var err error
-	p.guarded, err = env.Program(ast,
-		cel.CostLimit(lim.MaxCost),
-		cel.CostTracking(helperCost{}),
-		cel.InterruptCheckFrequency(64),
-		cel.EvalOptions(cel.OptOptimize))
+	p.guarded, err = env.Program(ast, guardedOptions(lim)...)
 	if err != nil {
 		// OptOptimize checks constant regular expressions here.
 		return nil, fail("the rule cannot be prepared: " + runtimeMessage(err.Error()))
@@ -291,6 +287,18 @@ func compileProgram(env *cel.Env, expr string, want ResultKind, lim Limits, know
 		p.maxList = int(min(n, math.MaxInt32))
 	}
 	return p, nil
+}
+
+// guardedOptions are the program options of the guarded program: the cost
+// limit, with the helpers charged as helperTable says, and interrupt
+// checks inside loops.
+func guardedOptions(lim Limits) []cel.ProgramOption {
+	return []cel.ProgramOption{
+		cel.CostLimit(lim.MaxCost),
+		cel.CostTracking(helperCost{}),
+		cel.InterruptCheckFrequency(64),
+		cel.EvalOptions(cel.OptOptimize),
+	}
 }
 
 func kindOf(t *cel.Type) (ResultKind, bool) {
