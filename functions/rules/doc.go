@@ -107,6 +107,13 @@
 // true/false, but it gives a number"). Evaluation errors (*EvalError,
 // *RowErrors) name the row and worker.
 //
+// Unknown names and functions are found in the parsed expression, at the
+// nodes cel-go's type checker reports (diagnose.go); the closest known
+// names by edit distance (suggest.go). What only cel-go's message text
+// says (the kinds in a failed check, syntax errors, evaluation errors) is
+// reworded by patterns written against one cel-go release (messages.go,
+// celGoVersion), which a test checks against cel-go itself.
+//
 // # Compiling once
 //
 // Cache compiles each text once (keyed by text, wanted kind and, for

@@ -46,6 +46,15 @@ func TestCompileErrorMessages(t *testing.T) {
 		{"too long", "z > 1.0" + strings.Repeat(" ", 4000), Bool, 0, 0, "the rule is 4,007 characters long; the longest allowed is 4,000"},
 		{"second line", "z > 2.0\n  && zs.exists(q, q > qq)", Bool, 2, 23, `unknown name "qq"`},
 		{"count needs a name", "zs.count(1, true) > 1", Bool, 1, 10, "the first argument of count must be a simple name"},
+		{"helper after a value", "zs.mean() > 1.0", Bool, 1, 4, "mean is not written after a value; use it as mean(list)"},
+		{"method as plain call", `contains(group, "F")`, Bool, 1, 1, `contains(...) is written after the value it works on: value.contains(...)`},
+		{"space before bracket", "sqrt (z) > 1.0", Bool, 1, 1, `unknown function "sqrt"`},
+		{"method typo", "zs.sizee() > 1", Bool, 1, 4, `unknown function "sizee"; did you mean "size"?`},
+		{"loop variable outside its loop", "zs.all(v, v > 1.0) && v > 1.0", Bool, 1, 23, `unknown name "v"`},
+		{"loop variable in its range", "[v].exists(v, v > 1.0)", Bool, 1, 2, `unknown name "v"`},
+		{"nested loops", "zs.exists(v, zs.exists(w, v > w + q))", Bool, 1, 35, `unknown name "q"`},
+		{"type name is a name", "z > 2.0 || int", Bool, 1, 12, "expected true/false here, but found a type name int"},
+		{"unknown message type", "a.b{c: 1} == 1", Bool, 1, 4, `unknown name "a.b"`},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -88,6 +97,20 @@ func TestCompileErrorMessages(t *testing.T) {
 	}
 }
 
+// TestMacroAsFunctionAlone: the loop variable of a list function written
+// as a plain call is not reported again as an unknown name.
+func TestMacroAsFunctionAlone(t *testing.T) {
+	_, err := Compile("exists(zs, v, v > 2.0) && zz > 1.0", Bool)
+	var ce *CompileError
+	if !errors.As(err, &ce) {
+		t.Fatal(err)
+	}
+	if len(ce.Problems) != 2 || !strings.Contains(ce.Problems[0].Message, "exists(...) is written after the list") ||
+		!strings.Contains(ce.Problems[1].Message, `unknown name "zz"`) {
+		t.Errorf("problems %+v", ce.Problems)
+	}
+}
+
 func TestExcerptWindow(t *testing.T) {
 	long := strings.Repeat("z > 1.0 && ", 20) + "zz > 1.0"
 	_, err := Compile(long, Bool)
@@ -118,35 +141,5 @@ func TestSeveralProblems(t *testing.T) {
 	}
 	if !strings.Contains(ce.Error(), `"qq"`) {
 		t.Errorf("Error() should list every problem: %s", ce.Error())
-	}
-}
-
-func TestSuggest(t *testing.T) {
-	known := []string{"value", "values", "z", "zs", "prev_z", "prev_value", "chart", "chart_down", "years_since_first_signal"}
-	tests := []struct {
-		name string
-		want []string
-	}{
-		{"valu", []string{"value", "values"}},
-		{"PREV_Z", []string{"prev_z"}},
-		{"prev", []string{"prev_z", "prev_value"}},
-		{"years_since_signal", []string{"years_since_first_signal"}},
-		{"chrat", []string{"chart"}},
-		{"xyz", nil},
-	}
-	for _, tc := range tests {
-		got := suggest(tc.name, known, 3)
-		if strings.Join(got, ",") != strings.Join(tc.want, ",") {
-			t.Errorf("suggest(%q) = %v, want %v", tc.name, got, tc.want)
-		}
-	}
-	for _, c := range []struct {
-		a, b string
-		d    int
-	}{{"", "", 0}, {"kitten", "sitting", 3}, {"flaw", "lawn", 2}, {"z", "zs", 1}, {"é", "e", 1},
-		{"maen", "mean", 1}, {"ca", "abc", 3}, {"abc", "", 3}} {
-		if got := editDistance(c.a, c.b); got != c.d {
-			t.Errorf("editDistance(%q, %q) = %d, want %d", c.a, c.b, got, c.d)
-		}
 	}
 }

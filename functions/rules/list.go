@@ -115,15 +115,16 @@ func (l *boolList) Fold(f traits.Folder) {
 
 func (l *boolList) Iterator() traits.Iterator { return &boolIter{l: l.v} }
 
-// listIndex checks a CEL index against a list length, with the same
-// message cel-go's lists give so error translation treats both alike.
+// listIndex checks a CEL index against a list length, with the message
+// cel-go's interpreter gives for a position a list does not have, so that
+// error translation treats both alike.
 func listIndex(index ref.Val, n int) (int, ref.Val) {
 	i, err := types.IndexOrError(index)
 	if err != nil {
 		return 0, types.ValOrErr(index, "%v", err)
 	}
 	if i < 0 || i >= n {
-		return 0, types.NewErr("index '%d' out of range in list size '%d'", i, n)
+		return 0, types.NewErr("index out of bounds: %d", i)
 	}
 	return i, nil
 }

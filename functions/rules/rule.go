@@ -259,9 +259,13 @@ func compileProgram(env *cel.Env, expr string, want ResultKind, lim Limits, know
 	if strings.TrimSpace(expr) == "" {
 		return nil, fail("the rule is empty")
 	}
-	ast, iss := env.Compile(expr)
+	parsed, iss := env.Parse(expr)
 	if iss.Err() != nil {
-		return nil, issuesError(expr, iss, known, describe)
+		return nil, parseError(expr, iss)
+	}
+	ast, iss := env.Check(parsed)
+	if iss.Err() != nil {
+		return nil, checkError(env, expr, iss, known, describe)
 	}
 	kind, ok := kindOf(ast.OutputType())
 	if !ok {
@@ -390,7 +394,7 @@ func (p *program) useFast(act sizedActivation) bool {
 func (p *program) evalFast(ctx context.Context, act sizedActivation) (Value, error) {
 	out, _, err := p.fast.Eval(act)
 	if err != nil {
-		return Value{}, evalErr(err, p.lim, ctx)
+		return Value{}, evalErr(ctx, err, p.lim)
 	}
 	return p.result(out)
 }
@@ -400,14 +404,14 @@ func (p *program) evalFast(ctx context.Context, act sizedActivation) (Value, err
 func (p *program) evalGuarded(ctx context.Context, act sizedActivation) (Value, error) {
 	out, _, err := p.guarded.ContextEval(ctx, act)
 	if err != nil {
-		return Value{}, evalErr(err, p.lim, ctx)
+		return Value{}, evalErr(ctx, err, p.lim)
 	}
 	return p.result(out)
 }
 
 func (p *program) runOne(ctx context.Context, act sizedActivation) (Value, error) {
 	if err := ctx.Err(); err != nil {
-		return Value{}, evalErr(err, p.lim, ctx)
+		return Value{}, evalErr(ctx, err, p.lim)
 	}
 	if p.useFast(act) {
 		return p.evalFast(ctx, act)
@@ -516,7 +520,7 @@ func (p *program) batch(ctx context.Context, n int, act sizedActivation, bind fu
 	var failed []*EvalError
 	for i := range n {
 		if i&1023 == 0 && ctx.Err() != nil {
-			ee := evalErr(context.Cause(ctx), p.lim, ctx)
+			ee := evalErr(ctx, context.Cause(ctx), p.lim)
 			ee.Row, ee.Worker = i+1, worker(i)
 			return ee
 		}

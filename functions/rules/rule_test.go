@@ -265,7 +265,11 @@ func TestEvalErrorsMessages(t *testing.T) {
 		{"1 / (exam - 3) > 0", "division by zero"},
 		{"min(last(zs, 0)) > 0.0", "min of an empty list"},
 		{"size(last(zs, -1)) > 0", "last(list, n) needs n of 0 or more"},
-		{"zs[5] > 0.0", "position 5 is outside the list"},
+		{"zs[5] > 0.0", "position 5 is outside the list here (positions start at 0)"},
+		{"last(zs, 2)[exam] > 0.0", "position 3 is outside the list here"},
+		{"[1.0, 2.0][exam - 4] > 0.0", "position -1 is outside the list here"},
+		{"exam % (exam - 3) > 0", "remainder (%) by zero"},
+		{"exam * 9223372036854775807 > 0", "a whole-number result is too large: integer overflow"},
 	}
 	for _, tc := range tests {
 		r, err := Compile(tc.rule, Bool)
