@@ -2,14 +2,14 @@ package rules
 
 import (
 	"math"
-
-	"github.com/google/cel-go/common/types/ref"
-	"github.com/google/cel-go/common/types/traits"
+	"strings"
 
 	"github.com/google/cel-go/cel"
 	"github.com/google/cel-go/checker"
 	"github.com/google/cel-go/common/ast"
 	"github.com/google/cel-go/common/types"
+	"github.com/google/cel-go/common/types/ref"
+	"github.com/google/cel-go/common/types/traits"
 )
 
 // Two programs per rule.
@@ -26,6 +26,11 @@ import (
 // exam of a rule without such a bound (a loop inside a loop over a long
 // history), runs on the guarded program with cel.CostLimit and the time
 // limit. The choice never changes a result, only the guards.
+//
+// Both counts charge the helpers from one statement of their cost
+// (helperTable's callCost, read by sizeBound here and by helperCost when
+// the guarded program runs), so the estimate that lets a rule run
+// unguarded bounds what the helpers really do.
 
 // maxFastCost caps the worst case a rule may have to run unguarded, so
 // that the plain program is also quick (a few milliseconds at most) when
@@ -82,6 +87,9 @@ func (s sizeBound) EstimateCallCost(_, overloadID string, _ *checker.AstNode, ar
 type helperCost struct{}
 
 func (helperCost) CallCost(_, overloadID string, args []ref.Val, _ ref.Val) *uint64 {
+	if !strings.HasPrefix(overloadID, overloadPrefix) {
+		return nil
+	}
 	o, ok := helperOverloads()[overloadID]
 	if !ok {
 		return nil
@@ -97,7 +105,8 @@ type callCost uint8
 
 const (
 	// costUnset is the zero value: a helper declared without a cost.
-	// TestEveryHelperHasACost fails on it; counted as costOne meanwhile.
+	// TestEveryHelperHasACost fails on it; meanwhile its estimate is
+	// unbounded, so a rule calling it always runs guarded.
 	costUnset callCost = iota
 	// costOne is one unit whatever the arguments, as cel-go charges a
 	// simple function.
@@ -119,7 +128,10 @@ func (c callCost) actual(args []ref.Val) uint64 {
 }
 
 func (c callCost) estimate(args []checker.AstNode) checker.CostEstimate {
-	if c == costPerItem && len(args) > 0 {
+	switch {
+	case c == costUnset:
+		return checker.CostEstimate{Min: 1, Max: math.MaxUint64}
+	case c == costPerItem && len(args) > 0:
 		return argSize(args[0]).Add(checker.FixedSizeEstimate(1)).AsCost()
 	}
 	return checker.CostEstimate{Min: 1, Max: 1}

@@ -3,6 +3,7 @@ package rules
 import (
 	"context"
 	"fmt"
+	"strings"
 	"testing"
 
 	"github.com/google/cel-go/cel"
@@ -44,6 +45,11 @@ func TestEveryHelperHasACost(t *testing.T) {
 			case h.cost == costUnset:
 				t.Errorf("helper %s (overload %s) has no cost in helperTable", name, o.ID())
 			}
+		}
+	}
+	for id := range helperOverloads() {
+		if !strings.HasPrefix(id, overloadPrefix) {
+			t.Errorf("helper overload %s does not start with %q: the cost tracker would pass it over", id, overloadPrefix)
 		}
 	}
 	if want := len(helperOverloads()); added != want {

@@ -58,29 +58,33 @@ var helperTable = sync.OnceValue(func() []helper {
 	nums := cel.ListType(cel.DoubleType)
 	return []helper{
 		{Helper: Helper{"last", "last(list, n)", "the last n items of a list (all of it if shorter), e.g. last(zs, 4)"},
-			overloads: []helperOverload{{id: "rules_last_list_int", args: []*cel.Type{listT, cel.IntType}, result: listT,
+			overloads: []helperOverload{{id: overloadPrefix + "last_list_int", args: []*cel.Type{listT, cel.IntType}, result: listT,
 				binary: lastN, cost: costOne, size: sizeLastN}}},
 		{Helper: Helper{"count", "list.count(v, condition)", "how many items of a list meet the condition, e.g. last(zs, 4).count(v, v > 2.0)"},
 			macro: countMacro()},
 		{Helper: Helper{"abs", "abs(x)", "absolute value of a number"},
 			overloads: []helperOverload{
-				{id: "rules_abs_double", args: []*cel.Type{cel.DoubleType}, result: cel.DoubleType, unary: absOf, cost: costOne},
-				{id: "rules_abs_int", args: []*cel.Type{cel.IntType}, result: cel.IntType, unary: absOf, cost: costOne},
+				{id: overloadPrefix + "abs_double", args: []*cel.Type{cel.DoubleType}, result: cel.DoubleType, unary: absOf, cost: costOne},
+				{id: overloadPrefix + "abs_int", args: []*cel.Type{cel.IntType}, result: cel.IntType, unary: absOf, cost: costOne},
 			}},
 		{Helper: Helper{"min", "min(list)", "smallest number in a list of numbers (error if empty)"},
-			overloads: []helperOverload{{id: "rules_min_list", args: []*cel.Type{nums}, result: cel.DoubleType,
+			overloads: []helperOverload{{id: overloadPrefix + "min_list", args: []*cel.Type{nums}, result: cel.DoubleType,
 				unary: func(v ref.Val) ref.Val { return reduce(v, "min", math.Min) }, cost: costPerItem}}},
 		{Helper: Helper{"max", "max(list)", "largest number in a list of numbers (error if empty)"},
-			overloads: []helperOverload{{id: "rules_max_list", args: []*cel.Type{nums}, result: cel.DoubleType,
+			overloads: []helperOverload{{id: overloadPrefix + "max_list", args: []*cel.Type{nums}, result: cel.DoubleType,
 				unary: func(v ref.Val) ref.Val { return reduce(v, "max", math.Max) }, cost: costPerItem}}},
 		{Helper: Helper{"mean", "mean(list)", "average of a list of numbers (error if empty)"},
-			overloads: []helperOverload{{id: "rules_mean_list", args: []*cel.Type{nums}, result: cel.DoubleType,
+			overloads: []helperOverload{{id: overloadPrefix + "mean_list", args: []*cel.Type{nums}, result: cel.DoubleType,
 				unary: meanOf, cost: costPerItem}}},
 		{Helper: Helper{"missing", "missing(x)", "true when a number is not available (NaN), e.g. missing(prev_z)"},
-			overloads: []helperOverload{{id: "rules_missing_double", args: []*cel.Type{cel.DoubleType}, result: cel.BoolType,
+			overloads: []helperOverload{{id: overloadPrefix + "missing_double", args: []*cel.Type{cel.DoubleType}, result: cel.BoolType,
 				unary: missingOf, cost: costOne}}},
 	}
 })
+
+// overloadPrefix starts the identifier of every helper overload, so the
+// cost tracker can pass over cel-go's own functions without a lookup.
+const overloadPrefix = "rules_"
 
 // helperOverloads indexes the overloads of helperTable by identifier.
 var helperOverloads = sync.OnceValue(func() map[string]*helperOverload {
