@@ -1,7 +1,9 @@
 package evaluation
 
 import (
+	"cmp"
 	"math"
+	"slices"
 	"sort"
 )
 
@@ -40,19 +42,23 @@ func KaplanMeier(times []float64, event []bool) Curve {
 	if n == 0 {
 		return c
 	}
-	idx := make([]int, n)
-	for i := range idx {
-		idx[i] = i
+	type obs struct {
+		t     float64
+		event bool
 	}
-	sort.Slice(idx, func(a, b int) bool { return times[idx[a]] < times[idx[b]] })
-	c.Last = times[idx[n-1]]
+	o := make([]obs, n)
+	for i, t := range times {
+		o[i] = obs{t, event[i]}
+	}
+	slices.SortFunc(o, func(a, b obs) int { return cmp.Compare(a.t, b.t) })
+	c.Last = o[n-1].t
 	atRisk := n
 	s := 1.0
 	for i := 0; i < n; {
-		t := times[idx[i]]
+		t := o[i].t
 		d, all := 0, 0
-		for i < n && times[idx[i]] == t {
-			if event[idx[i]] {
+		for i < n && o[i].t == t {
+			if o[i].event {
 				d++
 			}
 			all++
