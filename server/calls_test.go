@@ -1,6 +1,8 @@
 package server
 
 import (
+	"veer/functions/cell"
+
 	"encoding/json"
 	"fmt"
 	"reflect"
@@ -13,10 +15,10 @@ import (
 type callCase struct {
 	name  string
 	fn    string
-	args  string // JSON array
-	value string // expected value JSON, or
-	code  string // expected error code
-	part  string // and a part of its message
+	args  string    // JSON array
+	value string    // expected value JSON, or
+	code  cell.Code // expected error code
+	part  string    // and a part of its message
 }
 
 // toyCases cover every toy function: single values, spills, errors and the
@@ -30,19 +32,19 @@ var toyCases = []callCase{
 	{"mean skips blank and text", "VEER.T.MEAN", `[[1, null, "x", 5]]`, `3`, "", ""},
 	{"mean of a block row", "VEER.T.MEAN", `[[[2, 4, 6]]]`, `4`, "", ""},
 	{"mean of nothing", "VEER.T.MEAN", `[["a", null]]`, "", "#DIV/0!", "'values' holds no numbers"},
-	{"mean propagates #N/A", "VEER.T.MEAN", `[[1, {"error": "#N/A"}]]`, "", "#N/A", "argument 'values' of VEER.T.MEAN, row 2: the error #N/A"},
+	{"mean propagates #N/A", "VEER.T.MEAN", `[[1, {"error": "#N/A"}]]`, "", "#N/A", "VEER.T.MEAN: argument 'values', row 2: the error #N/A"},
 	{"cusum spill", "VEER.T.CUSUM", `[["b","a","a","b"], [2, 3, 1, 1], [1, 2, 1, 0.5], "allowance=0.5"]`, `[[0.5],[2],[0.5],[0]]`, "", ""},
-	{"cusum blank value gives #N/A row", "VEER.T.CUSUM", `[["a","a"], [1, 2], [null, 1]]`, `[[{"error":"#N/A","message":"row 1 has no value"}],[0.5]]`, "", ""},
+	{"cusum blank value gives #N/A row", "VEER.T.CUSUM", `[["a","a"], [1, 2], [null, 1]]`, `[[{"error":"#N/A","message":"VEER.T.CUSUM: row 1 has no value"}],[0.5]]`, "", ""},
 	{"cusum down via options range", "VEER.T.CUSUM", `[["a","a"], [1, 2], [-1, -1], [["side","down"],["allowance",0]]]`, `[[-1],[-2]]`, "", ""},
 	{"table spill", "VEER.T.TABLE", `[2]`, `[["i","square"],[1,1],[2,4]]`, "", ""},
-	{"echo blank", "VEER.T.ECHO", `[null]`, "", "#VALUE!", "argument 'v' of VEER.T.ECHO is required but blank"},
+	{"echo blank", "VEER.T.ECHO", `[null]`, "", "#VALUE!", "VEER.T.ECHO: argument 'v' is required but blank"},
 	{"echo kinds", "VEER.T.ECHO", `[[[1, "a", true, null, {"error": "#div/0!"}]]]`, `[[1,"a",true,null,{"error":"#DIV/0!"}]]`, "", ""},
 	{"echo column", "VEER.T.ECHO", `[[1, 2]]`, `[[1],[2]]`, "", ""},
 	{"echo escapes", "VEER.T.ECHO", `["line\n\"q\" \u00e9 \ud83d\ude00"]`, `"line\n\"q\" é 😀"`, "", ""},
 	{"fail #N/A", "VEER.T.FAIL", `["#N/A", "nothing here"]`, "", "#N/A", "nothing here"},
 	{"fail #NUM!", "VEER.T.FAIL", `["#NUM!"]`, "", "#NUM!", "failed on purpose"},
 	{"go error is #VALUE!", "VEER.T.FAIL", `["go", "plain Go error"]`, "", "#VALUE!", "plain Go error"},
-	{"panic is contained", "VEER.T.PANIC", `[]`, "", "#VALUE!", "internal error in VEER.T.PANIC"},
+	{"panic is contained", "VEER.T.PANIC", `[]`, "", "#VALUE!", "VEER.T.PANIC: internal error"},
 	{"sneaky save refused", "VEER.T.SNEAK", `["m"]`, "", "#VALUE!", "not declared as writing"},
 	{"slow short", "VEER.T.SLOW", `[0.02]`, `0.02`, "", ""},
 	{"fit", "VEER.T.FIT", `["toy", [1, 2, 3]]`, `"toy@v1"`, "", ""},
@@ -50,29 +52,29 @@ var toyCases = []callCase{
 	{"read by handle", "VEER.T.READ", `["toy@v1", 2]`, `0`, "", ""},
 	// Bad input: each names the argument and has the right kind.
 	{"unknown function", "VEER.T.NOPE", `[]`, "", "#NAME?", `unknown function "VEER.T.NOPE"`},
-	{"too many args", "VEER.T.ADD", `[1, 2, 3]`, "", "#VALUE!", "VEER.T.ADD takes 1 to 2 arguments (a, [b]); got 3"},
+	{"too many args", "VEER.T.ADD", `[1, 2, 3]`, "", "#VALUE!", "VEER.T.ADD: the function takes 1 to 2 arguments (a, [b]); got 3"},
 	{"too few args", "VEER.T.ADD", `[]`, "", "#VALUE!", "takes 1 to 2 arguments"},
-	{"text for number", "VEER.T.ADD", `["x"]`, "", "#VALUE!", `argument 'a' of VEER.T.ADD must be a number; got text "x"`},
-	{"range for number", "VEER.T.ADD", `[[1, 2]]`, "", "#VALUE!", "argument 'a' of VEER.T.ADD must be a single number; got a 2x1 range"},
+	{"text for number", "VEER.T.ADD", `["x"]`, "", "#VALUE!", `VEER.T.ADD: argument 'a' must be a number; got text "x"`},
+	{"range for number", "VEER.T.ADD", `[[1, 2]]`, "", "#VALUE!", "VEER.T.ADD: argument 'a' must be a single number; got a 2x1 range"},
 	{"mismatched lengths", "VEER.T.CUSUM", `[["a","a","a"], [1, 2], [1, 2, 3]]`, "", "#VALUE!", "argument 'times' has 2 rows but argument 'ids' has 3"},
-	{"text in numeric range", "VEER.T.CUSUM", `[["a","a"], [1, "two"], [1, 2]]`, "", "#VALUE!", `argument 'times' of VEER.T.CUSUM, row 2: expected a number; got text "two"`},
-	{"blank in strict range", "VEER.T.FIT", `["m2", [1, null, 3]]`, "", "#VALUE!", "argument 'values' of VEER.T.FIT, row 2: expected a number; got a blank cell"},
+	{"text in numeric range", "VEER.T.CUSUM", `[["a","a"], [1, "two"], [1, 2]]`, "", "#VALUE!", `VEER.T.CUSUM: argument 'times', row 2: expected a number; got text "two"`},
+	{"blank in strict range", "VEER.T.FIT", `["m2", [1, null, 3]]`, "", "#VALUE!", "VEER.T.FIT: argument 'values', row 2: expected a number; got a blank cell"},
 	{"unknown option", "VEER.T.CUSUM", `[["a"], [1], [1], "side=up; lamda=0.2"]`, "", "#VALUE!", `unknown option "lamda"; known options: side, allowance`},
 	{"bad option value", "VEER.T.CUSUM", `[["a"], [1], [1], "allowance=-1"]`, "", "#NUM!", "allowance"},
-	{"ragged range", "VEER.T.MEAN", `[[[1, 2], [3]]]`, "", "#VALUE!", "argument 'values' of VEER.T.MEAN: the range is not rectangular: row 2 has 1 cells but row 1 has 2"},
-	{"rows and cells mixed", "VEER.T.MEAN", `[[[1], 2]]`, "", "#VALUE!", "argument 'values' of VEER.T.MEAN: the array mixes rows and single cells"},
+	{"ragged range", "VEER.T.MEAN", `[[[1, 2], [3]]]`, "", "#VALUE!", "VEER.T.MEAN: argument 'values': the range is not rectangular: row 2 has 1 cells but row 1 has 2"},
+	{"rows and cells mixed", "VEER.T.MEAN", `[[[1], 2]]`, "", "#VALUE!", "VEER.T.MEAN: argument 'values': the array mixes rows and single cells"},
 	{"too deep", "VEER.T.MEAN", `[[[[1]]]]`, "", "#VALUE!", "arrays nest at most two deep"},
-	{"bad cell object", "VEER.T.ECHO", `[{"x": 1}]`, "", "#VALUE!", "argument 'v' of VEER.T.ECHO: an object in a cell must be an error value"},
+	{"bad cell object", "VEER.T.ECHO", `[{"x": 1}]`, "", "#VALUE!", "VEER.T.ECHO: argument 'v': an object in a cell must be an error value"},
 	{"unknown model", "VEER.T.READ", `["nosuch", 1]`, "", "#REF!", `there is no model named "nosuch"`},
 	{"unknown version", "VEER.T.READ", `["toy@v9", 1]`, "", "#REF!", `model "toy" has no version 9`},
 	{"bad model name", "VEER.T.READ", `["a/b", 1]`, "", "#REF!", "is not a model name"},
-	{"whole number", "VEER.T.TABLE", `[1.5]`, "", "#NUM!", "argument 'n' of VEER.T.TABLE must be a whole number from 0 to 1000; got 1.5"},
+	{"whole number", "VEER.T.TABLE", `[1.5]`, "", "#NUM!", "VEER.T.TABLE: argument 'n' must be a whole number from 0 to 1000; got 1.5"},
 }
 
 func checkAnswer(t *testing.T, c callCase, a answer, via string) {
 	t.Helper()
 	if c.code != "" {
-		if a.code() != c.code || !strings.Contains(a.Error.Message, c.part) {
+		if a.code() != string(c.code) || !strings.Contains(a.Error.Message, c.part) {
 			t.Errorf("%s %s: got value %s error %+v; want %s containing %q", via, c.name, a.Value, a.Error, c.code, c.part)
 		}
 		return
@@ -164,7 +166,7 @@ func TestBatchOrder(t *testing.T) {
 					t.Errorf("%s: answer %d = %s", via, i, a.Value)
 				}
 			case 1:
-				if a.code() != "#N/A" || a.Error.Message != fmt.Sprint("call ", i) {
+				if a.code() != "#N/A" || a.Error.Message != fmt.Sprint("VEER.T.FAIL: call ", i) {
 					t.Errorf("%s: answer %d = %+v", via, i, a.Error)
 				}
 			case 2:

@@ -77,7 +77,7 @@ func errOutcome(e *cell.Error) *outcome { return &outcome{err: e} }
 // call answers one decoded request.
 func (e *engine) call(ctx context.Context, req *request, opts callOpts) *outcome {
 	if req.fn == "" && req.shape == nil {
-		return errOutcome(cell.ValueError("the call has no \"fn\" (function name)"))
+		return errOutcome(cell.WrongArgument.Errorf("the call has no \"fn\" (function name)"))
 	}
 	f, ok := e.cat.Lookup(req.fn)
 	if req.shape != nil {
@@ -85,14 +85,18 @@ func (e *engine) call(ctx context.Context, req *request, opts callOpts) *outcome
 		if req.shape.arg >= 0 {
 			arg := "argument " + strconv.Itoa(req.shape.arg+1)
 			if ok {
-				arg = "argument " + f.ArgName(req.shape.arg) + " of " + f.Name
+				arg = "argument " + f.ArgName(req.shape.arg)
 			}
 			msg = arg + ": " + msg
 		}
-		return errOutcome(cell.ValueError("%s", msg))
+		e := cell.WrongArgument.Errorf("%s", msg)
+		if ok {
+			e = e.In(f.Name)
+		}
+		return errOutcome(e)
 	}
 	if !ok {
-		return errOutcome(cell.NameError("unknown function %s; GET /v1/functions lists the functions", quoteName(req.fn)))
+		return errOutcome(cell.UnknownFunction.Errorf("unknown function %s; GET /v1/functions lists the functions", quoteName(req.fn)))
 	}
 	for i, v := range req.args {
 		rows, cols := v.Dims()
@@ -100,19 +104,19 @@ func (e *engine) call(ctx context.Context, req *request, opts callOpts) *outcome
 			rows = cols
 		}
 		if rows > e.lim.MaxRows {
-			return errOutcome(cell.ValueError("argument %s of %s has %d rows; the limit is %d rows per argument", f.ArgName(i), f.Name, rows, e.lim.MaxRows))
+			return errOutcome(cell.WrongArgument.Errorf("argument %s has %d rows; the limit is %d rows per argument", f.ArgName(i), rows, e.lim.MaxRows).In(f.Name))
 		}
 	}
 	args, err := cell.Bind(f, req.args)
 	if err != nil {
-		return errOutcome(cell.AsError(err))
+		return errOutcome(cell.AsError(err).In(f.Name))
 	}
 	if f.Writes && !opts.authorized {
-		msg := "%s saves models and needs the install token: run `veer token` and paste it into the add-in settings (HTTP: header " + TokenHeader + ")"
+		msg := "the function saves models and needs the install token: run `veer token` and paste it into the add-in settings (HTTP: header " + TokenHeader + ")"
 		if req.token != "" || opts.tokenSent {
-			msg = "%s saves models and the token sent is wrong: run `veer token` and paste it into the add-in settings"
+			msg = "the function saves models and the token sent is wrong: run `veer token` and paste it into the add-in settings"
 		}
-		return errOutcome(cell.ValueError(msg, f.Name))
+		return errOutcome(cell.WrongArgument.Errorf("%s", msg).In(f.Name))
 	}
 	key := cacheKey(f, args)
 	if o, ok := e.results.Get(key); ok && e.valid(o.deps) {
@@ -216,7 +220,7 @@ func (e *engine) shared(ctx context.Context, key string, f *cell.Func, args cell
 			return fl.out
 		case <-ctx.Done():
 			e.leave(key, fl)
-			return errOutcome(cell.BusyError("the call was cancelled"))
+			return errOutcome(cell.Busy.Errorf("the call was cancelled").In(f.Name))
 		}
 	}
 	timeout := e.lim.CallTimeout
@@ -244,7 +248,7 @@ func (e *engine) shared(ctx context.Context, key string, f *cell.Func, args cell
 		e.run(&fl.ctx, fl, key, f, args, timeout)
 	}
 	if left {
-		return errOutcome(cell.BusyError("the call was cancelled"))
+		return errOutcome(cell.Busy.Errorf("the call was cancelled").In(f.Name))
 	}
 	return fl.out
 }
@@ -263,7 +267,10 @@ func (e *engine) leave(key string, fl *flight) {
 	}
 }
 
-// run computes one flight.
+// run computes one flight. It is where a call's errors get their context:
+// the error of the call and the errors inside its result name the function
+// once (cell.Error.In, cell.EncodeResult); cell functions never name
+// themselves.
 func (e *engine) run(ctx *flightCtx, fl *flight, key string, f *cell.Func, args cell.Args, timeout time.Duration) {
 	defer ctx.release()
 	start := time.Now()
@@ -287,15 +294,17 @@ func (e *engine) run(ctx *flightCtx, fl *flight, key string, f *cell.Func, args 
 		<-e.sem
 		switch {
 		case panicked:
-			out.err = cell.ValueError("internal error in %s; please report it (the server log names the place)", f.Name)
+			out.err = cell.WrongArgument.Errorf("internal error; please report it (the server log names the place)").In(f.Name)
+		case err != nil && ctx.Err() != nil:
+			// A call that failed after its context ended is answered as
+			// cancelled or late, whatever the failure said: it is never
+			// kept as an answer.
+			out.err = ctxError(ctx, f, timeout)
 		case err != nil:
-			out.err = cell.AsError(err)
-			if cerr := ctx.Err(); cerr != nil && (errors.Is(err, cerr) || out.err.Code == cell.CodeBusy) {
-				out.err = ctxError(ctx, f, timeout)
-			}
+			out.err = cell.AsError(err).In(f.Name)
 		default:
 			var enc []byte
-			enc, out.err = cell.EncodeResult(make([]byte, 0, 64), v)
+			enc, out.err = cell.EncodeResult(make([]byte, 0, 64), f.Name, v)
 			if out.err == nil {
 				out.val = enc
 			}
@@ -308,9 +317,9 @@ func (e *engine) run(ctx *flightCtx, fl *flight, key string, f *cell.Func, args 
 			e.results.Put(key, out, int64(len(key)+len(out.val)+200+64*len(out.deps)))
 		}
 	} else if errors.Is(ctx.Err(), context.DeadlineExceeded) {
-		out.err = cell.BusyError("all %d computation slots stayed busy for the whole %s time limit of %s; recalculate later", e.lim.MaxConcurrent, timeout, f.Name)
+		out.err = cell.Busy.Errorf("all %d computation slots stayed busy for the whole %s time limit; recalculate later", e.lim.MaxConcurrent, timeout).In(f.Name)
 	} else {
-		out.err = cell.BusyError("the call was cancelled")
+		out.err = cell.Busy.Errorf("the call was cancelled").In(f.Name)
 	}
 	e.mu.Lock()
 	fl.out = out
@@ -328,7 +337,7 @@ func (e *engine) run(ctx *flightCtx, fl *flight, key string, f *cell.Func, args 
 		lvl = slog.LevelInfo
 	}
 	if e.log.Enabled(context.Background(), lvl) {
-		code := ""
+		var code cell.Code
 		if out.err != nil {
 			code = out.err.Code
 		}
@@ -339,9 +348,9 @@ func (e *engine) run(ctx *flightCtx, fl *flight, key string, f *cell.Func, args 
 // ctxError explains why a computation's context ended.
 func ctxError(ctx context.Context, f *cell.Func, timeout time.Duration) *cell.Error {
 	if errors.Is(ctx.Err(), context.DeadlineExceeded) {
-		return cell.BusyError("%s took longer than its time limit of %s", f.Name, timeout)
+		return cell.Busy.Errorf("the computation took longer than its time limit of %s", timeout).In(f.Name)
 	}
-	return cell.BusyError("the call was cancelled")
+	return cell.Busy.Errorf("the call was cancelled").In(f.Name)
 }
 
 // invoke runs f.Call, turning a panic into an error (logged with the code
@@ -453,7 +462,7 @@ func (c *callEnv) Names() []string {
 // SaveModel implements cell.Env.
 func (c *callEnv) SaveModel(name string, doc []byte) (string, error) {
 	if !c.f.Writes {
-		return "", cell.ValueError("internal error: %s saves a model but is not declared as writing", c.f.Name)
+		return "", cell.WrongArgument.Errorf("internal error: the function saves a model but is not declared as writing")
 	}
 	if err := c.ctx.Err(); err != nil {
 		return "", err
@@ -506,7 +515,7 @@ func (c *callEnv) Once(key string, fn func() (any, error)) (any, error) {
 		func() {
 			defer func() {
 				if r := recover(); r != nil {
-					of.err = cell.ValueError("internal error in %s; please report it", c.f.Name)
+					of.err = cell.WrongArgument.Errorf("internal error; please report it")
 					e.mu.Lock()
 					delete(e.onceFlights, key)
 					e.mu.Unlock()

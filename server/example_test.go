@@ -52,7 +52,7 @@ func Example() {
 	stop()
 	fmt.Println(<-done)
 	// Output:
-	// [{"value":42},{"error":{"code":"#VALUE!","message":"argument 'x' of VEER.EXAMPLE.TWICE must be a number; got text \"x\""}}]
+	// [{"value":42},{"error":{"code":"#VALUE!","message":"VEER.EXAMPLE.TWICE: argument 'x' must be a number; got text \"x\""}}]
 	// <nil>
 }
 

@@ -103,7 +103,7 @@ func (s *Server) handleCall(w http.ResponseWriter, r *http.Request) {
 	s.runBatch(len(reqs), func(i int) bool { return s.slowCall(&reqs[i]) }, func(i int) {
 		req := &reqs[i]
 		if req.cancel != nil {
-			outs[i] = errOutcome(cell.ValueError("\"cancel\" works only over the websocket"))
+			outs[i] = errOutcome(cell.WrongArgument.Errorf("\"cancel\" works only over the websocket"))
 			return
 		}
 		opts := callOpts{authorized: headerOK || tokenOK(s.token, req.token), tokenSent: r.Header.Get(TokenHeader) != ""}

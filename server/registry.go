@@ -131,7 +131,7 @@ var modelNameRE = regexp.MustCompile(`^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$`)
 // digits, '.', '_' or '-', starting with a letter or digit.
 func CheckModelName(name string) error {
 	if !modelNameRE.MatchString(name) {
-		return cell.ValueError("%q cannot name a model: use 1 to 64 letters, digits, '.', '_' or '-', starting with a letter or digit", name)
+		return cell.WrongArgument.Errorf("%q cannot name a model: use 1 to 64 letters, digits, '.', '_' or '-', starting with a letter or digit", name)
 	}
 	return nil
 }
@@ -313,7 +313,7 @@ func (r *Registry) Save(name string, doc []byte) (string, bool, error) {
 		return "", false, err
 	}
 	if len(doc) > MaxModelBytes {
-		return "", false, cell.ValueError("the model document has %d bytes; the limit is %d", len(doc), MaxModelBytes)
+		return "", false, cell.WrongArgument.Errorf("the model document has %d bytes; the limit is %d", len(doc), MaxModelBytes)
 	}
 	key := strings.ToLower(name)
 	sum := sha256.Sum256(doc)
@@ -329,7 +329,7 @@ func (r *Registry) Save(name string, doc []byte) (string, bool, error) {
 	if m != nil {
 		if m.builtin {
 			r.mu.RUnlock()
-			return "", false, cell.RefError("model %q is built in and read-only; save under another name", m.name)
+			return "", false, cell.UnknownModel.Errorf("model %q is built in and read-only; save under another name", m.name)
 		}
 		if v := m.latest(); v != nil {
 			if v.sha == sha {
@@ -363,7 +363,7 @@ func (r *Registry) Save(name string, doc []byte) (string, bool, error) {
 		}
 		if err != nil {
 			r.log.Error("saving model failed", "err", err.Error())
-			return "", false, cell.ValueError("could not save the model: %v", err)
+			return "", false, cell.WrongArgument.Errorf("could not save the model: %v", err)
 		}
 		path = filepath.Join(r.dir, file)
 		break
@@ -394,7 +394,7 @@ func (r *Registry) Save(name string, doc []byte) (string, bool, error) {
 func (r *Registry) Get(ref string) (cell.ModelRef, error) {
 	name, n, ok := cell.SplitHandle(strings.TrimSpace(ref))
 	if !ok || CheckModelName(name) != nil {
-		return cell.ModelRef{}, cell.RefError("%q is not a model name or handle (like bp or bp@v3)", ref)
+		return cell.ModelRef{}, cell.UnknownModel.Errorf("%q is not a model name or handle (like bp or bp@v3)", ref)
 	}
 	key := strings.ToLower(name)
 	r.mu.RLock()
@@ -410,9 +410,9 @@ func (r *Registry) Get(ref string) (cell.ModelRef, error) {
 	if v == nil {
 		r.mu.RUnlock()
 		if m != nil && len(m.versions) > 0 {
-			return cell.ModelRef{}, cell.RefError("model %q has no version %d (latest is %d)", m.name, n, m.latest().n)
+			return cell.ModelRef{}, cell.UnknownModel.Errorf("model %q has no version %d (latest is %d)", m.name, n, m.latest().n)
 		}
-		return cell.ModelRef{}, cell.RefError("there is no model named %q; fit one or check the name", name)
+		return cell.ModelRef{}, cell.UnknownModel.Errorf("there is no model named %q; fit one or check the name", name)
 	}
 	ref2 := cell.ModelRef{Name: m.name, Version: v.n, Handle: handle(m.name, v.n), Doc: v.doc, SHA256: v.sha, Saved: v.saved, Builtin: m.builtin}
 	path := v.path
@@ -428,7 +428,7 @@ func (r *Registry) Get(ref string) (cell.ModelRef, error) {
 				err = errors.New("checksum changed")
 			}
 			r.log.Warn("stored model version unreadable", "err", err.Error())
-			return cell.ModelRef{}, cell.RefError("model %s cannot be read from disk (damaged file); refit it", ref2.Handle)
+			return cell.ModelRef{}, cell.UnknownModel.Errorf("model %s cannot be read from disk (damaged file); refit it", ref2.Handle)
 		}
 		r.oldDocs.Put(path, doc, int64(len(doc)))
 		ref2.Doc = doc
@@ -466,7 +466,7 @@ func (r *Registry) Resolve(ref string) (string, bool) {
 // the files. Version numbers of a deleted name are not reused.
 func (r *Registry) Delete(name string) error {
 	if _, n, ok := cell.SplitHandle(name); !ok || n != 0 {
-		return cell.ValueError("delete takes a model name, not a handle like %q: all versions are deleted", name)
+		return cell.WrongArgument.Errorf("delete takes a model name, not a handle like %q: all versions are deleted", name)
 	}
 	if err := CheckModelName(name); err != nil {
 		return err
@@ -478,11 +478,11 @@ func (r *Registry) Delete(name string) error {
 	m := r.models[key]
 	if m == nil || len(m.versions) == 0 {
 		r.mu.RUnlock()
-		return cell.RefError("there is no model named %q", name)
+		return cell.UnknownModel.Errorf("there is no model named %q", name)
 	}
 	if m.builtin {
 		r.mu.RUnlock()
-		return cell.RefError("model %q is built in and cannot be deleted", m.name)
+		return cell.UnknownModel.Errorf("model %q is built in and cannot be deleted", m.name)
 	}
 	upTo := m.latest().n
 	disp := m.name
@@ -494,7 +494,7 @@ func (r *Registry) Delete(name string) error {
 
 	tb, _ := json.Marshal(tombstone{Format: tombstoneFormat, Name: disp, UpTo: upTo})
 	if err := atomicfile.WriteFile(filepath.Join(r.dir, key+tombstoneExt), tb, 0o600); err != nil {
-		return cell.ValueError("could not delete the model: %v", err)
+		return cell.WrongArgument.Errorf("could not delete the model: %v", err)
 	}
 	for _, p := range paths {
 		r.oldDocs.Remove(p)

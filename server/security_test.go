@@ -275,7 +275,7 @@ func TestLimits(t *testing.T) {
 
 	rows := make([]float64, 51)
 	a := h.callHTTP("VEER.T.MEAN", rows)
-	if a.code() != "#VALUE!" || !strings.Contains(a.Error.Message, "argument 'values' of VEER.T.MEAN has 51 rows; the limit is 50") {
+	if a.code() != "#VALUE!" || !strings.Contains(a.Error.Message, "VEER.T.MEAN: argument 'values' has 51 rows; the limit is 50") {
 		t.Errorf("rows limit: %+v", a)
 	}
 	a = h.callHTTP("VEER.T.CUSUM", make([]float64, 45), make([]float64, 45), make([]float64, 45))

@@ -51,7 +51,7 @@ func toyCatalogue(st *toyState) *cell.Catalogue {
 					return nil, err
 				}
 				if len(xs) == 0 {
-					return nil, cell.Div0Error("'values' holds no numbers")
+					return nil, cell.Errorf(cell.CodeDiv0, "'values' holds no numbers")
 				}
 				s := 0.0
 				for _, x := range xs {
@@ -95,7 +95,7 @@ func toyCatalogue(st *toyState) *cell.Catalogue {
 				if code == "go" {
 					return nil, errors.New(msg)
 				}
-				return nil, cell.Errorf(code, "%s", msg)
+				return nil, cell.Errorf(cell.Code(code), "%s", msg)
 			},
 		},
 		cell.Func{
@@ -144,7 +144,7 @@ func toyCatalogue(st *toyState) *cell.Catalogue {
 					return nil, err
 				}
 				if len(xs) < 2 {
-					return nil, cell.NumError("'values' needs at least 2 numbers; got %d", len(xs))
+					return nil, cell.OutOfRange.Errorf("'values' needs at least 2 numbers; got %d", len(xs))
 				}
 				var m, ss float64
 				for _, x := range xs {
@@ -172,7 +172,7 @@ func toyCatalogue(st *toyState) *cell.Catalogue {
 					st.modelParses.Add(1)
 					var tm toyModel
 					if err := json.Unmarshal(m.Doc, &tm); err != nil {
-						return nil, cell.ValueError("model %s is not a toy model", m.Handle)
+						return nil, cell.WrongArgument.Errorf("model %s is not a toy model", m.Handle)
 					}
 					return &tm, nil
 				})
@@ -224,7 +224,7 @@ func toyCusum(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	}
 	k := o.Number(cell.OptionAllowance, 0.5)
 	if k < 0 {
-		return nil, cell.NumError("option \"allowance\" must be 0 or more; got %g", k)
+		return nil, cell.OutOfRange.Errorf("option \"allowance\" must be 0 or more; got %g", k)
 	}
 	down := o.Text(cell.OptionSide, "up") == "down"
 	order := make([]int, len(ids))
@@ -245,7 +245,7 @@ func toyCusum(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 			s = 0
 		}
 		if math.IsNaN(xs[i]) {
-			out[i] = cell.NAError("row %d has no value", i+1)
+			out[i] = cell.BlankInput.Errorf("row %d has no value", i+1)
 			continue
 		}
 		if down {

@@ -919,7 +919,7 @@ func appendAnswer(b []byte, id []byte, val []byte, e *cell.Error, update bool) [
 	}
 	if e != nil {
 		b = append(b, `"error":{"code":`...)
-		b = cell.AppendString(b, e.Code)
+		b = cell.AppendString(b, string(e.Code))
 		b = append(b, `,"message":`...)
 		b = cell.AppendString(b, e.Message)
 		b = append(b, '}')

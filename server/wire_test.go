@@ -267,7 +267,7 @@ func TestAppendAnswer(t *testing.T) {
 		want string
 	}{
 		{appendAnswer(nil, []byte("7"), []byte("[[1],[2]]"), nil, false), `{"id":7,"value":[[1],[2]]}`},
-		{appendAnswer(nil, nil, nil, cell.NAError("a \"b\""), false), `{"error":{"code":"#N/A","message":"a \"b\""}}`},
+		{appendAnswer(nil, nil, nil, cell.BlankInput.Errorf("a \"b\""), false), `{"error":{"code":"#N/A","message":"a \"b\""}}`},
 		{appendAnswer(nil, []byte(`"x"`), []byte("1"), nil, true), `{"id":"x","value":1,"update":true}`},
 		{appendProgress(nil, []byte("3"), 0.41234), `{"id":3,"progress":0.412}`},
 		{appendCancelled(nil, []byte("3"), true), `{"id":3,"cancelled":true}`},

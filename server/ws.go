@@ -166,7 +166,7 @@ func (conn *wsConn) reader() {
 		conn.bytesIn.Add(int64(len(data)))
 		reqs, batch, derr := decodeRequests(data, conn.s.decodeLimits())
 		if derr != nil {
-			conn.send(appendAnswer(nil, nil, nil, cell.ValueError("%s", derr.Error()), false))
+			conn.send(appendAnswer(nil, nil, nil, cell.WrongArgument.Errorf("%s", derr.Error()), false))
 			continue
 		}
 		if !batch && conn.inline(&reqs[0]) {
@@ -346,7 +346,7 @@ func (conn *wsConn) tokenOnly(req *request) []byte {
 		conn.authorized.Store(true)
 		return appendAnswer(nil, req.id, []byte("true"), nil, false)
 	}
-	return appendAnswer(nil, req.id, nil, cell.ValueError("the token is wrong: run `veer token` and paste it into the add-in settings"), false)
+	return appendAnswer(nil, req.id, nil, cell.WrongArgument.Errorf("the token is wrong: run `veer token` and paste it into the add-in settings"), false)
 }
 
 // cancelCall cancels a call in progress or a subscription by id and answers

@@ -422,6 +422,10 @@ class MessageLog(object):
         self._items = []  # newest last: [time, function, code, message, count]
 
     def add(self, fn, code, message):
+        # The server's messages start with the function's name; the table
+        # shows it in its own column, so it is not repeated.
+        if message.startswith(fn + ": "):
+            message = message[len(fn) + 2:]
         with self._lock:
             if self._items and self._items[-1][1:4] == [fn, code, message]:
                 self._items[-1][0] = time.time()

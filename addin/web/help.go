@@ -15,7 +15,7 @@ func Help(l cell.Listing) ([]byte, error) {
 	type code struct{ Code, Meaning string }
 	var codes []code
 	for c, m := range l.Codes {
-		codes = append(codes, code{c, m})
+		codes = append(codes, code{string(c), m})
 	}
 	sort.Slice(codes, func(i, j int) bool { return codes[i].Code < codes[j].Code })
 	var buf bytes.Buffer

@@ -148,9 +148,9 @@ type runtimeParam struct {
 // anything).
 func CatalogJS(l cell.Listing) ([]byte, error) {
 	type table struct {
-		Namespace string            `json:"namespace"`
-		Functions []runtimeFunc     `json:"functions"`
-		Codes     map[string]string `json:"codes"`
+		Namespace string               `json:"namespace"`
+		Functions []runtimeFunc        `json:"functions"`
+		Codes     map[cell.Code]string `json:"codes"`
 	}
 	t := table{Namespace: Namespace, Functions: []runtimeFunc{}, Codes: l.Codes}
 	for _, f := range l.Functions {

@@ -136,7 +136,10 @@ function showErrors() {
     const li = document.createElement("li");
     const code = document.createElement("code");
     code.textContent = e.code;
-    li.append(code, ` ${e.fn ? `${e.fn}: ` : ""}${e.message}`);
+    // The server's messages start with the function's name; a message made
+    // here (no server reached) gets it in front, so it shows once.
+    const named = !e.fn || e.message.startsWith(`${e.fn}:`);
+    li.append(code, ` ${named ? "" : `${e.fn}: `}${e.message}`);
     return li;
   }));
 }

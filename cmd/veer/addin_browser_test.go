@@ -376,6 +376,10 @@ func TestWebAddinInBrowser(t *testing.T) {
 		if last.Code != "#NUM!" || last.Fn != "VEER.CENTILE" || !strings.Contains(last.Message, "outside the reference range") {
 			t.Errorf("the pane's error list has %+v; want the #NUM! message of VEER.CENTILE", last)
 		}
+		// The server names the function once, at the start.
+		if !strings.HasPrefix(last.Message, "VEER.CENTILE: ") || strings.Count(last.Message, "VEER.CENTILE") != 1 {
+			t.Errorf("message %q should name the function once, at the start", last.Message)
+		}
 		// Text in a numeric range names the row and the text.
 		wantCellError(t, hostCall(t, ctx, "VEER.ZSCORE", "demo-sbp", oneCol(40, 41), oneCol[any](120, "abc"), oneCol("tower")), "#VALUE!", "row 2", "abc")
 		// A missing argument.

@@ -839,13 +839,18 @@ func calcBadInput(t *testing.T, o *calcOffice, ls *calcServer) {
 		}
 		return rc.Seconds
 	}
-	// messages returns VEER.ERRORS' message column (newest first).
+	// messages returns VEER.ERRORS' rows (newest first) as "function:
+	// message"; the message itself does not repeat the function's name.
 	messages := func() []string {
 		a := read("K1:O12")
 		var out []string
 		for r := 1; r < len(a.Values); r++ {
+			fn, _ := a.Values[r][1].(string)
 			if s, ok := a.Values[r][3].(string); ok && s != "" {
-				out = append(out, s)
+				if fn != "" && strings.Contains(s, fn) {
+					t.Errorf("VEER.ERRORS names %s twice: %q", fn, s)
+				}
+				out = append(out, fn+": "+s)
 			}
 		}
 		return out

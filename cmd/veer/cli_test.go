@@ -266,7 +266,7 @@ func TestCLIExitCodes(t *testing.T) {
 		{"limit without model or gap", []string{"limit", "--target", "20"}, 2, []string{"--gap"}, "", false},
 		{"limit bad side", []string{"limit", "--target", "20", "--gap", "1", "--side", "sideways"}, 2, []string{"sideways"}, "", false},
 		{"limit bad method", []string{"limit", "--target", "20", "--gap", "1", "--method", "magic"}, 2, []string{"--method"}, "", false},
-		{"limit target below gap", []string{"limit", "--target", "0.5", "--gap", "1"}, 1, []string{"shorter than one mean gap"}, "", false},
+		{"limit target below gap", []string{"limit", "--target", "0.5", "--gap", "1"}, 1, []string{"at least one mean gap"}, "", false},
 		{"delay needs limit or target", []string{"delay", "--gap", "1", "--shift", "1"}, 2, []string{"--limit", "--target"}, "", false},
 		{"limit ok", []string{"limit", "--target", "20", "--gap", "1"}, 0, []string{"limit"}, "", true},
 		{"fit ok", fitArgs(f.refCSV), 0, []string{"fitted", "written"}, "", false},

@@ -282,13 +282,13 @@ func expected(t testing.TB, env cell.Env, fn string, args ...any) answer {
 	}
 	bound, err := cell.Bind(f, vals)
 	if err != nil {
-		return answer{Error: cell.AsError(err)}
+		return answer{Error: cell.AsError(err).In(f.Name)}
 	}
 	res, err := f.Call(context.Background(), env, bound)
 	if err != nil {
-		return answer{Error: cell.AsError(err)}
+		return answer{Error: cell.AsError(err).In(f.Name)}
 	}
-	enc, e := cell.EncodeResult(nil, res)
+	enc, e := cell.EncodeResult(nil, f.Name, res)
 	if e != nil {
 		return answer{Error: e}
 	}

@@ -2,6 +2,7 @@ package catalog
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"strconv"
@@ -25,6 +26,15 @@ var chartOptions = []string{
 }
 
 var lookupOptions = []string{cell.OptionExtrapolate}
+
+// lookupFailures are the failures a lookup answers in the row they concern.
+var lookupFailures = []cell.Failure{cell.BlankInput, cell.UnknownGroup, cell.OutsideReference}
+
+// sheetHelp says what VEER.CHART and VEER.RULE answer for rows that cannot
+// be charted and which failures stop the call, from the error contract.
+var sheetHelp = cell.RowHelp(cell.BlankInput, cell.UnknownGroup, cell.OutsideReference, cell.OutOfDomain) +
+	" The worker's other exams are charted without that row. " + cell.CallHelp(cell.WrongArgument, cell.BadData) +
+	" Messages name the rows."
 
 // New returns the catalogue of veer's cell functions.
 func New() *cell.Catalogue {
@@ -78,29 +88,30 @@ func funcs() []cell.Func {
 		{
 			Name:    "VEER.REFMEAN",
 			Summary: "Reference mean at an age (on the model's scale).",
-			Help:    "The mean curve of healthy workers of the group at each age. For a model fitted with a log or Box-Cox transform the mean is on the transformed scale; use VEER.CENTILE with 50 for the median in the reading's own unit.",
+			Help: "The mean curve of healthy workers of the group at each age. For a model fitted with a log or Box-Cox transform the mean is on the transformed scale; use VEER.CENTILE with 50 for the median in the reading's own unit. " +
+				cell.RowHelp(lookupFailures...),
 			Params: []cell.Param{modelParam(),
 				{Name: "ages", Type: cell.TypeRange, Help: "age or ages in years"},
 				{Name: "groups", Type: cell.TypeRange, Optional: true, Help: "group or groups (needed when the model has several)"},
 				{Name: "options", Type: cell.TypeAny, Optional: true, Help: "extrapolate=true to allow ages outside the reference range"}},
 			Options: lookupOptions, Result: cell.ShapeColumn, Streaming: true,
-			Call: lookup("mean"),
+			Call: callMean,
 		},
 		{
 			Name:    "VEER.REFSD",
 			Summary: "Reference standard deviation at an age (on the model's scale).",
-			Help:    "The SD curve of healthy workers of the group at each age.",
+			Help:    "The SD curve of healthy workers of the group at each age. " + cell.RowHelp(lookupFailures...),
 			Params: []cell.Param{modelParam(),
 				{Name: "ages", Type: cell.TypeRange, Help: "age or ages in years"},
 				{Name: "groups", Type: cell.TypeRange, Optional: true, Help: "group or groups"},
 				{Name: "options", Type: cell.TypeAny, Optional: true, Help: "extrapolate=true to allow ages outside the reference range"}},
 			Options: lookupOptions, Result: cell.ShapeColumn, Streaming: true,
-			Call: lookup("sd"),
+			Call: callSD,
 		},
 		{
 			Name:    "VEER.CENTILE",
 			Summary: "Reference centile at an age, in the reading's own unit.",
-			Help:    "The reading below which p percent of healthy workers of the group fall at that age.",
+			Help:    "The reading below which p percent of healthy workers of the group fall at that age. " + cell.RowHelp(append(lookupFailures, cell.OutOfDomain)...),
 			Params: []cell.Param{modelParam(),
 				{Name: "ages", Type: cell.TypeRange, Help: "age or ages in years"},
 				{Name: "p", Type: cell.TypeNumber, Help: "centile in percent, between 0 and 100, e.g. 97.5"},
@@ -112,7 +123,8 @@ func funcs() []cell.Func {
 		{
 			Name:    "VEER.ZSCORE",
 			Summary: "Standardised score of a reading against healthy workers of the same age.",
-			Help:    "z = (reading − reference mean) / reference SD at the worker's age, on the model's scale. Blank cells give #N/A in their row, an age outside the reference range #NUM! in its row (unless extrapolate=true); text in a numeric range is #VALUE! naming the cell.",
+			Help: "z = (reading − reference mean) / reference SD at the worker's age, on the model's scale. " +
+				cell.RowHelp(append(lookupFailures, cell.OutOfDomain)...) + " " + cell.CallHelp(cell.WrongArgument),
 			Params: []cell.Param{modelParam(),
 				{Name: "ages", Type: cell.TypeRange, Help: "age or ages in years"},
 				{Name: "values", Type: cell.TypeRange, Help: "reading or readings"},
@@ -124,7 +136,8 @@ func funcs() []cell.Func {
 		{
 			Name:    "VEER.CHART",
 			Summary: "Chart statistic over a whole sheet of exams: z, innovation, chart, limit, signal, first signal.",
-			Help:    "Give every exam row (any order); each worker's exams are ordered by age inside. Spills one row per input row with columns z, innovation, chart, limit, signal, first_signal. Options must give target (years to a false signal) or limit. A row with a blank id, age, reading or group is #N/A and a row outside the reference age range #NUM! (unless extrapolate=true); the worker's other exams are charted without it. Text in a numeric range, or two exams of a worker at the same age, fail the call with a message naming the rows." + caution,
+			Help: "Give every exam row (any order); each worker's exams are ordered by age inside. Spills one row per input row with columns z, innovation, chart, limit, signal, first_signal. Options must give target (years to a false signal) or limit. " +
+				sheetHelp + caution,
 			Params: []cell.Param{modelParam(),
 				{Name: "ids", Type: cell.TypeRange, Help: "worker ids, one per exam"},
 				{Name: "ages", Type: cell.TypeRange, Help: "age at each exam, in years"},
@@ -167,12 +180,12 @@ func loadModel(env cell.Env, name string) (*screening.Model, cell.ModelRef, erro
 		return nil, ref, err
 	}
 	if isRuleSet(ref.Doc) {
-		return nil, ref, cell.RefError("%s is a rule set saved with VEER.SAVERULES, not a model; give a model fitted with VEER.FIT", ref.Handle)
+		return nil, ref, cell.UnknownModel.Errorf("%s is a rule set saved with VEER.SAVERULES, not a model; give a model fitted with VEER.FIT", ref.Handle)
 	}
 	v, err := env.Once("veer.model:"+ref.Handle+":"+ref.SHA256, func() (any, error) {
 		m, err := screening.Decode(ref.Doc)
 		if err != nil {
-			return nil, cell.Errorf(cell.CodeRef, "model %s cannot be read: %v", ref.Handle, err)
+			return nil, cell.UnknownModel.Errorf("model %s cannot be read: %v", ref.Handle, err)
 		}
 		return m, nil
 	})
@@ -188,7 +201,7 @@ func modelArg(ctx context.Context, env cell.Env, a cell.Args, i int) (*screening
 		return nil, cell.ModelRef{}, err
 	}
 	if strings.TrimSpace(name) == "" {
-		return nil, cell.ModelRef{}, cell.ValueError("%s: the model name (argument %s) is empty", a.Func().Name, a.Func().ArgName(i))
+		return nil, cell.ModelRef{}, cell.WrongArgument.Errorf("the model name (argument %s) is empty", a.Func().ArgName(i))
 	}
 	return loadModel(env, strings.TrimSpace(name))
 }
@@ -227,105 +240,104 @@ func groupsArg(a cell.Args, i, n int) ([]string, error) {
 		}
 		return out, nil
 	}
-	return nil, cell.ValueError("%s: %s has %d cells but there are %d rows; give one group per row or a single group", a.Func().Name, a.Func().ArgName(i), len(g), n)
-}
-
-// rowCheck reports why the reading y (NaN: no reading) of group at age t
-// cannot be scored against m, or nil: an age outside the group's reference
-// range without extrapolation is #NUM!, a group the model does not know
-// #N/A, a reading the model's transform cannot take (log of a non-positive
-// number) #NUM!; a blank group cell (groupGiven: the groups argument was
-// given) of a model with groups is #N/A like any blank input. row is the
-// 1-based row for the message (0: none).
-func rowCheck(fn string, m *screening.Model, group string, groupGiven bool, t, y float64, ext bool, row int) *cell.Error {
-	where := fn + ": "
-	if row > 0 {
-		where = fmt.Sprintf("%s: row %d: ", fn, row)
-	}
-	lo, hi, err := m.Curves.Range(group)
-	if err != nil {
-		if group == "" && groupGiven {
-			return cell.NAError("%sthe group is blank; %v", where, err)
-		}
-		return cell.AsError(cellError(strings.TrimSuffix(where, ": "), err))
-	}
-	if !ext && (t < lo || t > hi) {
-		g := "the reference data"
-		if group != "" {
-			g = "group " + strconv.Quote(group)
-		}
-		return cell.NumError(`%sage %s is outside the reference range %s to %s of %s; add "extrapolate=true" to the options to hold the curves at their ends`,
-			where, cell.FormatNumber(t), cell.FormatNumber(round2(lo)), cell.FormatNumber(round2(hi)), g)
-	}
-	if !math.IsNaN(y) {
-		if _, err := m.Curves.Z(group, t, y, ext); err != nil {
-			return cell.NumError("%s%v", where, err)
-		}
-	}
-	return nil
+	return nil, cell.WrongArgument.Errorf("%s has %d cells but there are %d rows; give one group per row or a single group", a.Func().ArgName(i), len(g), n)
 }
 
 func round2(x float64) float64 { return math.Round(x*100) / 100 }
 
-// cellError turns an engine error into a spreadsheet error: a value outside
-// what the model covers is #NUM!, anything else #VALUE!.
-func cellError(fn string, err error) error {
-	if _, ok := err.(*cell.Error); ok {
-		return err
-	}
-	msg := err.Error()
-	code := cell.CodeValue
-	if strings.Contains(msg, "outside the reference range") || strings.Contains(msg, "cannot reach") {
-		code = cell.CodeNum
-	}
-	if strings.Contains(msg, "unknown group") || strings.Contains(msg, "no group") {
-		code = cell.CodeNA
-	}
-	return cell.Errorf(code, "%s: %s", fn, msg)
+// lookupRows is the one per-row loop of VEER.REFMEAN, VEER.REFSD,
+// VEER.CENTILE and VEER.ZSCORE: for every row of ages (and values, when
+// given) it answers at(group, age, value), or the row's error. A blank age
+// or reading is #N/A in its row; other failures get the code of their kind
+// (rowError). scalar: every argument was a single cell, so the answer is
+// one value and its error fails the cell.
+type lookupRows struct {
+	m          *screening.Model
+	ages       []float64
+	values     []float64 // nil: no readings
+	groups     []string
+	groupGiven bool
+	scalar     bool
 }
 
-func lookup(what string) func(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
-	return func(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
-		m, _, err := modelArg(ctx, env, a, 0)
+func (l lookupRows) answer(at func(group string, age, value float64) (float64, error)) (any, error) {
+	out := make([]any, len(l.ages))
+	for i, t := range l.ages {
+		y := math.NaN()
+		if l.values != nil {
+			y = l.values[i]
+		}
+		switch {
+		case l.values != nil && (math.IsNaN(t) || math.IsNaN(y)):
+			out[i] = cell.BlankInput.Errorf("row %d: the age or the reading is blank", i+1)
+			continue
+		case math.IsNaN(t):
+			out[i] = cell.BlankInput.Errorf("row %d: the age is blank", i+1)
+			continue
+		}
+		v, err := at(l.groups[i], t, y)
 		if err != nil {
-			return nil, err
+			out[i] = rowError(err, rowLabel(len(l.ages), i), l.groupGiven)
+			continue
 		}
-		ages, err := a.Numbers(1, cell.PolicyMissing)
-		if err != nil {
-			return nil, err
-		}
-		groups, err := groupsArg(a, 2, len(ages))
-		if err != nil {
-			return nil, err
-		}
-		opts, err := a.Options(3)
-		if err != nil {
-			return nil, err
-		}
-		ext := opts.Bool(cell.OptionExtrapolate, false)
-		out := make([]any, len(ages))
-		for i, t := range ages {
-			if math.IsNaN(t) {
-				out[i] = cell.NAError("row %d: the age is blank", i+1)
-				continue
-			}
-			if e := rowCheck(a.Func().Name, m, groups[i], !a.Missing(2), t, math.NaN(), ext, rowLabel(len(ages), i)); e != nil {
-				out[i] = e
-				continue
-			}
-			mean, sd, err := m.Curves.At(groups[i], t, ext)
-			if err != nil {
-				out[i] = cellError(a.Func().Name, err)
-				continue
-			}
-			if what == "mean" {
-				out[i] = mean
-			} else {
-				out[i] = sd
-			}
-		}
-		return single(out, isScalarArgs(a, 1, 2))
+		out[i] = v
 	}
+	return single(out, l.scalar)
+}
+
+// lookupArgs reads the model (argument 0), the ages (1), the readings
+// (values >= 0: that argument), the groups and the options of a lookup.
+func lookupArgs(ctx context.Context, env cell.Env, a cell.Args, values, groups, options int) (lookupRows, cell.Options, error) {
+	var l lookupRows
+	m, _, err := modelArg(ctx, env, a, 0)
+	if err != nil {
+		return l, cell.Options{}, err
+	}
+	l.m = m
+	if l.ages, err = a.Numbers(1, cell.PolicyMissing); err != nil {
+		return l, cell.Options{}, err
+	}
+	scalarArgs := []int{1, groups}
+	if values >= 0 {
+		if l.values, err = a.Numbers(values, cell.PolicyMissing); err != nil {
+			return l, cell.Options{}, err
+		}
+		if len(l.values) != len(l.ages) {
+			return l, cell.Options{}, cell.WrongArgument.Errorf("ages has %d cells but values has %d; give one age per reading", len(l.ages), len(l.values))
+		}
+		scalarArgs = append(scalarArgs, values)
+	}
+	if l.groups, err = groupsArg(a, groups, len(l.ages)); err != nil {
+		return l, cell.Options{}, err
+	}
+	l.groupGiven = !a.Missing(groups)
+	l.scalar = isScalarArgs(a, scalarArgs...)
+	o, err := a.Options(options)
+	return l, o, err
+}
+
+func callMean(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
+	l, o, err := lookupArgs(ctx, env, a, -1, 2, 3)
+	if err != nil {
+		return nil, err
+	}
+	ext := o.Bool(cell.OptionExtrapolate, false)
+	return l.answer(func(g string, t, _ float64) (float64, error) {
+		mean, _, err := l.m.Curves.At(g, t, ext)
+		return mean, err
+	})
+}
+
+func callSD(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
+	l, o, err := lookupArgs(ctx, env, a, -1, 2, 3)
+	if err != nil {
+		return nil, err
+	}
+	ext := o.Bool(cell.OptionExtrapolate, false)
+	return l.answer(func(g string, t, _ float64) (float64, error) {
+		_, sd, err := l.m.Curves.At(g, t, ext)
+		return sd, err
+	})
 }
 
 // rowLabel is the 1-based row for messages about row i of n, or 0 for a
@@ -350,11 +362,7 @@ func single(out []any, scalar bool) (any, error) {
 }
 
 func callCentile(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
-	m, _, err := modelArg(ctx, env, a, 0)
-	if err != nil {
-		return nil, err
-	}
-	ages, err := a.Numbers(1, cell.PolicyMissing)
+	l, o, err := lookupArgs(ctx, env, a, -1, 3, 4)
 	if err != nil {
 		return nil, err
 	}
@@ -363,84 +371,24 @@ func callCentile(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		return nil, err
 	}
 	if !(p > 0 && p < 100) {
-		return nil, cell.NumError("VEER.CENTILE: the centile p must be between 0 and 100 (percent), not %s", cell.FormatNumber(p))
+		return nil, cell.OutOfRange.Errorf("the centile p must be between 0 and 100 (percent), not %s", cell.FormatNumber(p))
 	}
-	groups, err := groupsArg(a, 3, len(ages))
-	if err != nil {
-		return nil, err
-	}
-	opts, err := a.Options(4)
-	if err != nil {
-		return nil, err
-	}
-	ext := opts.Bool(cell.OptionExtrapolate, false)
-	out := make([]any, len(ages))
-	for i, t := range ages {
-		if math.IsNaN(t) {
-			out[i] = cell.NAError("row %d: the age is blank", i+1)
-			continue
-		}
-		if e := rowCheck("VEER.CENTILE", m, groups[i], !a.Missing(3), t, math.NaN(), ext, rowLabel(len(ages), i)); e != nil {
-			out[i] = e
-			continue
-		}
-		v, err := m.Curves.Centile(groups[i], t, p, ext)
-		if err != nil {
-			out[i] = cellError(a.Func().Name, err)
-			continue
-		}
-		out[i] = v
-	}
-	return single(out, isScalarArgs(a, 1, 3))
+	ext := o.Bool(cell.OptionExtrapolate, false)
+	return l.answer(func(g string, t, _ float64) (float64, error) { return l.m.Curves.Centile(g, t, p, ext) })
 }
 
 func callZ(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
-	m, _, err := modelArg(ctx, env, a, 0)
+	l, o, err := lookupArgs(ctx, env, a, 2, 3, 4)
 	if err != nil {
 		return nil, err
 	}
-	ages, err := a.Numbers(1, cell.PolicyMissing)
-	if err != nil {
-		return nil, err
-	}
-	vals, err := a.Numbers(2, cell.PolicyMissing)
-	if err != nil {
-		return nil, err
-	}
-	if len(vals) != len(ages) {
-		return nil, cell.ValueError("VEER.ZSCORE: ages has %d cells but values has %d; give one age per reading", len(ages), len(vals))
-	}
-	groups, err := groupsArg(a, 3, len(ages))
-	if err != nil {
-		return nil, err
-	}
-	opts, err := a.Options(4)
-	if err != nil {
-		return nil, err
-	}
-	ext := opts.Bool(cell.OptionExtrapolate, false)
-	out := make([]any, len(ages))
-	for i := range ages {
-		if math.IsNaN(ages[i]) || math.IsNaN(vals[i]) {
-			out[i] = cell.NAError("row %d: the age or the reading is blank", i+1)
-			continue
-		}
-		if e := rowCheck("VEER.ZSCORE", m, groups[i], !a.Missing(3), ages[i], vals[i], ext, rowLabel(len(ages), i)); e != nil {
-			out[i] = e
-			continue
-		}
-		z, err := m.Curves.Z(groups[i], ages[i], vals[i], ext)
-		if err != nil {
-			out[i] = cellError(a.Func().Name, err)
-			continue
-		}
-		out[i] = z
-	}
-	return single(out, isScalarArgs(a, 1, 2, 3))
+	ext := o.Bool(cell.OptionExtrapolate, false)
+	return l.answer(func(g string, t, y float64) (float64, error) { return l.m.Curves.Z(g, t, y, ext) })
 }
 
-// chartSettings reads the chart options shared by CHART, LIMIT and DELAY.
-func chartSettings(fn string, o cell.Options) (screening.Settings, screening.LimitOptions, error) {
+// chartSettings reads the chart options shared by CHART, RULE, LIMIT and
+// DELAY.
+func chartSettings(o cell.Options) (screening.Settings, screening.LimitOptions, error) {
 	d := chart.DefaultSpec()
 	s := screening.Settings{
 		Chart: chart.Spec{
@@ -459,15 +407,15 @@ func chartSettings(fn string, o cell.Options) (screening.Settings, screening.Lim
 		Extrapolate: o.Bool(cell.OptionExtrapolate, false),
 	}
 	if err := s.Chart.Validate(); err != nil {
-		return s, screening.LimitOptions{}, cell.NumError("%s: %v", fn, err)
+		return s, screening.LimitOptions{}, cellError(err, cell.OutOfRange)
 	}
 	seed := o.Number(cell.OptionSeed, screening.DefaultSeed)
 	if seed != math.Trunc(seed) || seed < 0 || seed > 1<<53 {
-		return s, screening.LimitOptions{}, cell.NumError("%s: the seed option must be a whole number from 0 to 9007199254740992, not %s", fn, cell.FormatNumber(seed))
+		return s, screening.LimitOptions{}, cell.OutOfRange.Errorf("the seed option must be a whole number from 0 to 9007199254740992, not %s", cell.FormatNumber(seed))
 	}
 	reps := o.Number(cell.OptionReps, 0)
 	if reps != math.Trunc(reps) || reps < 0 || reps > 1_000_000 {
-		return s, screening.LimitOptions{}, cell.NumError("%s: reps must be a whole number from 1 to 1,000,000 (0 or absent: the default), not %s", fn, cell.FormatNumber(reps))
+		return s, screening.LimitOptions{}, cell.OutOfRange.Errorf("reps must be a whole number from 1 to 1,000,000 (0 or absent: the default), not %s", cell.FormatNumber(reps))
 	}
 	lo := screening.LimitOptions{
 		Method:  monitor.Method(o.Text(cell.OptionMethod, string(monitor.Normal))),
@@ -477,60 +425,103 @@ func chartSettings(fn string, o cell.Options) (screening.Settings, screening.Lim
 		Paths:   int(reps),
 	}
 	if lo.Gap < 0 {
-		return s, lo, cell.NumError("%s: the gap option must be a positive number of years", fn)
+		return s, lo, cell.OutOfRange.Errorf("the gap option must be a positive number of years")
 	}
 	return s, lo, nil
 }
 
-// settingsKey is a canonical text of the options, for cache keys.
-func settingsKey(s screening.Settings, lo screening.LimitOptions) string {
-	return fmt.Sprintf("%+v|%+v|%s|%g|%d|%d|%s", s.Chart, s.Serial, lo.Method, lo.Gap, lo.Seed, lo.Paths, lo.Horizon)
+// chartCall is what VEER.CHART, VEER.RULE, VEER.LIMIT and VEER.DELAY
+// share: the model (nil when none was given) and its stored version, the
+// options, and the chart and limit settings read from them. Its Monte Carlo
+// work reports progress to env and stops when the call's context ends.
+type chartCall struct {
+	env  cell.Env
+	m    *screening.Model
+	ref  cell.ModelRef
+	opts cell.Options
+	set  screening.Settings
+	lim  screening.LimitOptions
+}
+
+// newChartCall reads the optional model (argument model) and the options
+// (argument options) of VEER.LIMIT or VEER.DELAY.
+func newChartCall(ctx context.Context, env cell.Env, a cell.Args, model, options int) (*chartCall, error) {
+	c := &chartCall{env: env, ref: cell.ModelRef{Handle: "-"}}
+	if !a.Missing(model) {
+		if err := c.readModel(ctx, a, model); err != nil {
+			return nil, err
+		}
+	}
+	if err := c.readOptions(ctx, a, options); err != nil {
+		return nil, err
+	}
+	return c, nil
+}
+
+// readModel reads the model argument i.
+func (c *chartCall) readModel(ctx context.Context, a cell.Args, i int) error {
+	var err error
+	c.m, c.ref, err = modelArg(ctx, c.env, a, i)
+	return err
+}
+
+// readOptions reads the options argument i and the settings they give.
+func (c *chartCall) readOptions(ctx context.Context, a cell.Args, i int) error {
+	var err error
+	if c.opts, err = a.Options(i); err != nil {
+		return err
+	}
+	if c.set, c.lim, err = chartSettings(c.opts); err != nil {
+		return err
+	}
+	c.lim.Stop = func() bool { return ctx.Err() != nil }
+	c.lim.Progress = func(done, total int) {
+		if total > 0 {
+			c.env.Progress(float64(done) / float64(total))
+		}
+	}
+	return nil
+}
+
+// key is a cache key of the model version and every setting, after prefix.
+func (c *chartCall) key(prefix string) string {
+	return fmt.Sprintf("%s:%s:%s:%+v|%+v|%s|%g|%d|%d|%s", prefix, c.ref.Handle, c.ref.SHA256,
+		c.set.Chart, c.set.Serial, c.lim.Method, c.lim.Gap, c.lim.Seed, c.lim.Paths, c.lim.Horizon)
 }
 
 // resolveLimit returns the limit from the options: given directly, or
 // computed for the target (once per distinct input).
-func resolveLimit(env cell.Env, fn string, m *screening.Model, ref cell.ModelRef, o cell.Options, s screening.Settings, lo screening.LimitOptions) (float64, error) {
-	hasT, hasL := o.Has(cell.OptionTarget), o.Has(cell.OptionLimit)
+func (c *chartCall) resolveLimit() (float64, error) {
+	hasT, hasL := c.opts.Has(cell.OptionTarget), c.opts.Has(cell.OptionLimit)
 	switch {
 	case hasT && hasL:
-		return 0, cell.ValueError("%s: give either target or limit in the options, not both", fn)
+		return 0, cell.WrongArgument.Errorf("give either target or limit in the options, not both")
 	case hasL:
-		h := o.Number(cell.OptionLimit, 0)
+		h := c.opts.Number(cell.OptionLimit, 0)
 		if err := chart.ValidateLimit(h); err != nil {
-			return 0, cell.NumError("%s: %v", fn, err)
+			return 0, cellError(err, cell.OutOfRange)
 		}
 		return h, nil
 	case hasT:
-		r, err := computeLimit(env, fn, m, ref, s, lo, o.Number(cell.OptionTarget, 0))
+		r, err := c.limit(c.opts.Number(cell.OptionTarget, 0))
 		if err != nil {
 			return 0, err
 		}
 		return r.H, nil
 	}
-	return 0, cell.ValueError(`%s: the options must give target (average years to a false signal, e.g. "target=20") or limit`, fn)
+	return 0, cell.WrongArgument.Errorf(`the options must give target (average years to a false signal, e.g. "target=20") or limit`)
 }
 
-func computeLimit(env cell.Env, fn string, m *screening.Model, ref cell.ModelRef, s screening.Settings, lo screening.LimitOptions, target float64) (monitor.LimitResult, error) {
-	key := "veer.limit:" + ref.Handle + ":" + ref.SHA256 + ":" + settingsKey(s, lo) + ":" + strconv.FormatFloat(target, 'g', -1, 64)
-	lo.Progress = func(done, total int) {
-		if total > 0 {
-			env.Progress(float64(done) / float64(total))
-		}
-	}
-	v, err := env.Once(key, func() (any, error) {
-		var r monitor.LimitResult
-		var err error
-		if m == nil {
-			c, cerr := calibrationWithoutModel(fn, s, lo)
-			if cerr != nil {
-				return nil, cerr
-			}
-			r, err = monitor.Limit(c, target)
-		} else {
-			r, err = m.Limit(s, lo, target)
-		}
+// limit computes the limit for target years, once per distinct input.
+func (c *chartCall) limit(target float64) (monitor.LimitResult, error) {
+	v, err := c.env.Once(c.key("veer.limit")+":"+strconv.FormatFloat(target, 'g', -1, 64), func() (any, error) {
+		cal, err := c.calibration()
 		if err != nil {
-			return nil, cell.NumError("%s: %v", fn, err)
+			return nil, err
+		}
+		r, err := monitor.Limit(cal, target)
+		if err != nil {
+			return nil, cellError(err, cell.OutOfRange)
 		}
 		return r, nil
 	})
@@ -540,47 +531,49 @@ func computeLimit(env cell.Env, fn string, m *screening.Model, ref cell.ModelRef
 	return v.(monitor.LimitResult), nil
 }
 
-func calibrationWithoutModel(fn string, s screening.Settings, lo screening.LimitOptions) (monitor.Calibration, error) {
-	if lo.Gap <= 0 {
-		return monitor.Calibration{}, cell.ValueError(`%s: without a model, give the years between exams as an option, e.g. "gap=1"`, fn)
+// delay computes the expected years to a signal after a shift, once per
+// distinct input.
+func (c *chartCall) delay(h, shift, onset float64) (float64, error) {
+	return onceFloat(c.env, c.key("veer.delay")+fmt.Sprintf(":%g:%g:%g", h, shift, onset), func() (float64, error) {
+		cal, err := c.calibration()
+		if err != nil {
+			return 0, err
+		}
+		d, err := monitor.Delay(cal, h, shift, onset)
+		if err != nil {
+			return 0, cellError(err, cell.OutOfRange)
+		}
+		return d.Years, nil
+	})
+}
+
+func onceFloat(env cell.Env, key string, f func() (float64, error)) (float64, error) {
+	v, err := env.Once(key, func() (any, error) { return f() })
+	if err != nil {
+		return 0, err
 	}
-	if lo.Method == monitor.Bootstrap {
-		return monitor.Calibration{}, cell.ValueError("%s: method bootstrap needs a model (it resamples the reference workers)", fn)
+	return v.(float64), nil
+}
+
+// calibration is the model's calibration for the settings or, without a
+// model, independent N(0,1) scores at the gap the options give.
+func (c *chartCall) calibration() (monitor.Calibration, error) {
+	if c.m != nil {
+		cal, err := c.m.Calibration(c.set, c.lim)
+		return cal, cellError(err, cell.OutOfRange)
+	}
+	if c.lim.Gap <= 0 {
+		return monitor.Calibration{}, cell.WrongArgument.Errorf(`without a model, give the years between exams as an option, e.g. "gap=1"`)
+	}
+	if c.lim.Method == monitor.Bootstrap {
+		return monitor.Calibration{}, cell.WrongArgument.Errorf("method bootstrap needs a model (it resamples the reference workers)")
 	}
 	// Without a model no serial correlation is known: every serial mode
 	// charts independent N(0,1) scores (the textbook horizon).
-	c := monitor.Calibration{Method: monitor.Normal, Gap: lo.Gap, Seed: lo.Seed, Paths: lo.Paths, Progress: lo.Progress}
-	c.Settings.Chart, c.Settings.Mode = s.Chart, monitor.Direct
-	return c, nil
-}
-
-// optionalModel reads an optional model argument.
-func optionalModel(ctx context.Context, env cell.Env, a cell.Args, i int) (*screening.Model, cell.ModelRef, error) {
-	if a.Missing(i) {
-		return nil, cell.ModelRef{Handle: "-"}, nil
-	}
-	return modelArg(ctx, env, a, i)
-}
-
-// modelAndChart reads the optional model (argument 1) and the chart options
-// (argument 2) of VEER.LIMIT and VEER.DELAY; the Monte Carlo work stops when
-// the call is cancelled.
-func modelAndChart(ctx context.Context, env cell.Env, a cell.Args) (*screening.Model, cell.ModelRef, cell.Options, screening.Settings, screening.LimitOptions, error) {
-	fn := a.Func().Name
-	m, ref, err := optionalModel(ctx, env, a, 1)
-	if err != nil {
-		return nil, ref, cell.Options{}, screening.Settings{}, screening.LimitOptions{}, err
-	}
-	o, err := a.Options(2)
-	if err != nil {
-		return nil, ref, o, screening.Settings{}, screening.LimitOptions{}, err
-	}
-	s, lo, err := chartSettings(fn, o)
-	if err != nil {
-		return nil, ref, o, s, lo, err
-	}
-	lo.Stop = func() bool { return ctx.Err() != nil }
-	return m, ref, o, s, lo, nil
+	cal := monitor.Calibration{Method: monitor.Normal, Gap: c.lim.Gap, Seed: c.lim.Seed, Paths: c.lim.Paths,
+		Progress: c.lim.Progress, Stop: c.lim.Stop}
+	cal.Settings.Chart, cal.Settings.Mode = c.set.Chart, monitor.Direct
+	return cal, nil
 }
 
 func callLimit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
@@ -588,14 +581,14 @@ func callLimit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
-	m, ref, o, s, lo, err := modelAndChart(ctx, env, a)
+	c, err := newChartCall(ctx, env, a, 1, 2)
 	if err != nil {
 		return nil, err
 	}
-	if o.Has(cell.OptionTarget) || o.Has(cell.OptionLimit) {
-		return nil, cell.ValueError("VEER.LIMIT: the target is the first argument; do not give target or limit as options")
+	if c.opts.Has(cell.OptionTarget) || c.opts.Has(cell.OptionLimit) {
+		return nil, cell.WrongArgument.Errorf("the target is the first argument; do not give target or limit as options")
 	}
-	r, err := computeLimit(env, "VEER.LIMIT", m, ref, s, lo, target)
+	r, err := c.limit(target)
 	if err != nil {
 		return nil, err
 	}
@@ -607,46 +600,19 @@ func callDelay(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
-	m, ref, o, s, lo, err := modelAndChart(ctx, env, a)
+	c, err := newChartCall(ctx, env, a, 1, 2)
 	if err != nil {
 		return nil, err
 	}
-	h, err := resolveLimit(env, "VEER.DELAY", m, ref, o, s, lo)
+	h, err := c.resolveLimit()
 	if err != nil {
 		return nil, err
 	}
-	onset := o.Number(cell.OptionOnset, 0)
+	onset := c.opts.Number(cell.OptionOnset, 0)
 	if onset < 0 {
-		return nil, cell.NumError("VEER.DELAY: onset must not be negative")
+		return nil, cell.OutOfRange.Errorf("onset must not be negative")
 	}
-	key := "veer.delay:" + ref.Handle + ":" + ref.SHA256 + ":" + settingsKey(s, lo) + fmt.Sprintf(":%g:%g:%g", h, shift, onset)
-	v, err := env.Once(key, func() (any, error) {
-		var c monitor.Calibration
-		var err error
-		if m == nil {
-			c, err = calibrationWithoutModel("VEER.DELAY", s, lo)
-		} else {
-			c, err = m.Calibration(s, lo)
-		}
-		if err != nil {
-			return nil, err
-		}
-		c.Stop = lo.Stop
-		c.Progress = func(done, total int) {
-			if total > 0 {
-				env.Progress(float64(done) / float64(total))
-			}
-		}
-		d, err := monitor.Delay(c, h, shift, onset)
-		if err != nil {
-			return nil, cell.NumError("VEER.DELAY: %v", err)
-		}
-		return d.Years, nil
-	})
-	if err != nil {
-		return nil, err
-	}
-	return v, nil
+	return c.delay(h, shift, onset)
 }
 
 // sheet is a table of exam rows read from ids, ages, values and groups
@@ -666,7 +632,6 @@ type sheet struct {
 // makes its row #N/A, text or TRUE/FALSE in a numeric column fails the call
 // naming the cell.
 func examsArgs(a cell.Args, i int) (*sheet, error) {
-	fn := a.Func().Name
 	ids, err := a.Texts(i, cell.PolicyMissing)
 	if err != nil {
 		return nil, err
@@ -681,10 +646,10 @@ func examsArgs(a cell.Args, i int) (*sheet, error) {
 	}
 	n := len(ids)
 	if len(ages) != n || len(vals) != n {
-		return nil, cell.ValueError("%s: ids, ages and values must have the same number of rows (they have %d, %d and %d)", fn, n, len(ages), len(vals))
+		return nil, cell.WrongArgument.Errorf("ids, ages and values must have the same number of rows (they have %d, %d and %d)", n, len(ages), len(vals))
 	}
 	if n == 0 {
-		return nil, cell.ValueError("%s: there are no exam rows", fn)
+		return nil, cell.WrongArgument.Errorf("there are no exam rows")
 	}
 	groups, err := groupsArg(a, i+3, n)
 	if err != nil {
@@ -695,18 +660,18 @@ func examsArgs(a cell.Args, i int) (*sheet, error) {
 		id := strings.TrimSpace(ids[r])
 		switch {
 		case id == "":
-			sh.failed[r] = cell.NAError("row %d: the worker id is blank", r+1)
+			sh.failed[r] = cell.BlankInput.Errorf("row %d: the worker id is blank", r+1)
 		case math.IsNaN(ages[r]):
-			sh.failed[r] = cell.NAError("row %d: the age is blank", r+1)
+			sh.failed[r] = cell.BlankInput.Errorf("row %d: the age is blank", r+1)
 		case math.IsNaN(vals[r]):
-			sh.failed[r] = cell.NAError("row %d: the reading is blank", r+1)
+			sh.failed[r] = cell.BlankInput.Errorf("row %d: the reading is blank", r+1)
 		default:
 			sh.exams = append(sh.exams, screening.Exam{Worker: id, Group: groups[r], Time: ages[r], Value: vals[r]})
 			sh.rowOf = append(sh.rowOf, r)
 		}
 	}
 	if len(sh.exams) == 0 {
-		return nil, cell.ValueError("%s: every exam row has a blank id, age or reading", fn)
+		return nil, cell.WrongArgument.Errorf("every exam row has a blank id, age or reading")
 	}
 	return sh, nil
 }
@@ -730,9 +695,10 @@ func (sh *sheet) firstFailed() *cell.Error {
 // cannot take) to the failed rows, each with its own error, so the rest of
 // the sheet is still charted; the other exams of such a worker are charted
 // without that row.
-func (sh *sheet) screenable(fn string, m *screening.Model, ext bool) error {
+func (sh *sheet) screenable(m *screening.Model, ext bool) error {
 	// The usual row passes with a range check against its group's span,
-	// looked up once per group (rowCheck words the failures).
+	// looked up once per group; a row that fails it is scored alone to
+	// find why (rowError words it).
 	type span struct {
 		lo, hi float64
 		ok     bool
@@ -755,8 +721,8 @@ func (sh *sheet) screenable(fn string, m *screening.Model, ext bool) error {
 			last, lastGroup, haveLast = sp, e.Group, true
 		}
 		if !last.ok || (!ext && (e.Time < last.lo || e.Time > last.hi)) || (positive && !(e.Value > 0)) {
-			if ce := rowCheck(fn, m, e.Group, sh.groupGiven, e.Time, e.Value, ext, r+1); ce != nil {
-				sh.failed[r] = ce
+			if _, err := m.Curves.Z(e.Group, e.Time, e.Value, ext); err != nil {
+				sh.failed[r] = rowError(err, r+1, sh.groupGiven)
 				continue
 			}
 		}
@@ -770,59 +736,66 @@ func (sh *sheet) screenable(fn string, m *screening.Model, ext bool) error {
 	return nil
 }
 
-// screen runs the engine over the screenable rows. An engine error about
-// two exams of one worker at the same age is reworded with the sheet's
-// row numbers (the engine counts the screenable rows only).
-func (sh *sheet) screen(fn string, m *screening.Model, s screening.Settings, h float64) ([]screening.Result, error) {
+// screen runs the engine over the screenable rows. Two exams of one worker
+// at the same age fail the call; the engine's error names them by their
+// place among the screenable rows, which are mapped back to sheet rows.
+func (sh *sheet) screen(m *screening.Model, s screening.Settings, h float64) ([]screening.Result, error) {
 	res, err := m.Screen(sh.exams, s, h)
-	if err == nil {
+	var dup *refcurve.DuplicateError
+	switch {
+	case err == nil:
 		return res, nil
+	case errors.As(err, &dup):
+		return nil, cell.BadData.Errorf("worker %q has two exams at the same age %s (rows %d and %d); remove or merge one",
+			dup.Worker, cell.FormatNumber(dup.Time), sh.rowOf[dup.Rows[0]-1]+1, sh.rowOf[dup.Rows[1]-1]+1)
 	}
-	type key struct {
-		worker string
-		age    float64
+	return nil, cellError(err, cell.BadData)
+}
+
+// screened is a sheet charted by VEER.CHART or VEER.RULE: its rows, the
+// call's settings, the limit and the results of the screenable rows.
+type screened struct {
+	*sheet
+	call *chartCall
+	h    float64
+	res  []screening.Result
+}
+
+// screenSheet reads the model (argument model), the exams (arguments exams
+// on) and the options (argument options) of VEER.CHART or VEER.RULE, and
+// screens the sheet.
+func screenSheet(ctx context.Context, env cell.Env, a cell.Args, model, exams, options int) (*screened, error) {
+	c := &chartCall{env: env}
+	if err := c.readModel(ctx, a, model); err != nil {
+		return nil, err
 	}
-	seen := make(map[key]int, len(sh.exams))
-	for k, e := range sh.exams {
-		kk := key{e.Worker, e.Time}
-		if j, dup := seen[kk]; dup {
-			return nil, cell.ValueError("%s: worker %q has two exams at the same age %s (rows %d and %d); remove or merge one",
-				fn, e.Worker, cell.FormatNumber(e.Time), sh.rowOf[j]+1, sh.rowOf[k]+1)
-		}
-		seen[kk] = k
+	sh, err := examsArgs(a, exams)
+	if err != nil {
+		return nil, err
 	}
-	return nil, cellError(fn, err)
+	if err := c.readOptions(ctx, a, options); err != nil {
+		return nil, err
+	}
+	h, err := c.resolveLimit()
+	if err != nil {
+		return nil, err
+	}
+	if err := sh.screenable(c.m, c.set.Extrapolate); err != nil {
+		return nil, err
+	}
+	res, err := sh.screen(c.m, c.set, h)
+	if err != nil {
+		return nil, err
+	}
+	return &screened{sheet: sh, call: c, h: h, res: res}, nil
 }
 
 func callChart(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
-	m, ref, err := modelArg(ctx, env, a, 0)
+	sc, err := screenSheet(ctx, env, a, 0, 1, 5)
 	if err != nil {
 		return nil, err
 	}
-	sh, err := examsArgs(a, 1)
-	if err != nil {
-		return nil, err
-	}
-	o, err := a.Options(5)
-	if err != nil {
-		return nil, err
-	}
-	s, lo, err := chartSettings("VEER.CHART", o)
-	if err != nil {
-		return nil, err
-	}
-	lo.Stop = func() bool { return ctx.Err() != nil }
-	h, err := resolveLimit(env, "VEER.CHART", m, ref, o, s, lo)
-	if err != nil {
-		return nil, err
-	}
-	if err := sh.screenable("VEER.CHART", m, s.Extrapolate); err != nil {
-		return nil, err
-	}
-	res, err := sh.screen("VEER.CHART", m, s, h)
-	if err != nil {
-		return nil, err
-	}
+	sh, h, res := sc.sheet, sc.h, sc.res
 	out := make([][]any, sh.n)
 	for r, e := range sh.failed {
 		out[r] = []any{e, e, e, e, e, e}
@@ -841,22 +814,22 @@ func callChart(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 // set under the name of a model. A name keeps the kind of its first
 // version; reading that exact version (not the bare name) keeps the call's
 // result valid in the server's cache after the save.
-func checkKind(env cell.Env, fn, name string, ruleSet bool) error {
+func checkKind(env cell.Env, name string, ruleSet bool) error {
 	ref, err := env.Model(name + "@v1")
 	if err != nil || isRuleSet(ref.Doc) == ruleSet {
 		return nil
 	}
 	if ruleSet {
-		return cell.ValueError("%s: %s is the name of a model fitted with VEER.FIT; give the rule set another name", fn, ref.Name)
+		return cell.WrongArgument.Errorf("%s is the name of a model fitted with VEER.FIT; give the rule set another name", ref.Name)
 	}
-	return cell.ValueError("%s: %s is the name of a rule set saved with VEER.SAVERULES; give the model another name", fn, ref.Name)
+	return cell.WrongArgument.Errorf("%s is the name of a rule set saved with VEER.SAVERULES; give the model another name", ref.Name)
 }
 
 // checkName checks the name of a model or rule set to save.
-func checkName(fn, what, name string) (string, error) {
+func checkName(what, name string) (string, error) {
 	name = strings.TrimSpace(name)
 	if name == "" || strings.ContainsAny(name, "@/\\") {
-		return "", cell.ValueError("%s: the %s name must be non-empty text without @, / or \\", fn, what)
+		return "", cell.WrongArgument.Errorf("the %s name must be non-empty text without @, / or \\", what)
 	}
 	return name, nil
 }
@@ -866,7 +839,7 @@ func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
-	if name, err = checkName("VEER.FIT", "model", name); err != nil {
+	if name, err = checkName("model", name); err != nil {
 		return nil, err
 	}
 	sh, err := examsArgs(a, 1)
@@ -874,7 +847,7 @@ func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		return nil, err
 	}
 	if e := sh.firstFailed(); e != nil {
-		return nil, cell.ValueError("VEER.FIT: %s; every reference row needs an id, an age and a reading", e.Message)
+		return nil, cell.BadData.Errorf("%s; every reference row needs an id, an age and a reading", e.Message)
 	}
 	o, err := a.Options(5)
 	if err != nil {
@@ -891,20 +864,20 @@ func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		Progress:   func(stage string, done float64) { env.Progress(done) },
 	}}
 	if opt.Curves.Bandwidth < 0 {
-		return nil, cell.NumError("VEER.FIT: bandwidth must be positive (or 0 to choose it)")
+		return nil, cell.OutOfRange.Errorf("bandwidth must be positive (or 0 to choose it)")
 	}
 	m, err := screening.Fit(ctx, rows, opt)
 	if err != nil {
 		if cerr := ctx.Err(); cerr != nil {
 			return nil, cerr
 		}
-		return nil, cellError("VEER.FIT", err)
+		return nil, cellError(err, cell.BadData)
 	}
 	doc, err := m.Encode()
 	if err != nil {
 		return nil, err
 	}
-	if err := checkKind(env, "VEER.FIT", name, false); err != nil {
+	if err := checkKind(env, name, false); err != nil {
 		return nil, err
 	}
 	return env.SaveModel(name, doc)
@@ -934,7 +907,7 @@ type ModelLister interface {
 func callModels(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	l, ok := env.(ModelLister)
 	if !ok {
-		return nil, cell.ValueError("VEER.MODELS: this server cannot list its models; GET /v1/models lists them")
+		return nil, cell.WrongArgument.Errorf("this server cannot list its models; GET /v1/models lists them")
 	}
 	out := [][]any{{"name", "handle", "versions", "groups", "exams"}}
 	for _, name := range l.Names() {

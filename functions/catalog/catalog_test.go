@@ -135,7 +135,7 @@ func TestFitErrors(t *testing.T) {
 	for _, c := range []struct {
 		name  string
 		args  []any
-		code  string
+		code  cell.Code
 		parts []string
 	}{
 		{"blank age", []any{"x", ref.ids, withAge(2, nil), ref.vals, ref.groups}, cell.CodeValue,
@@ -158,7 +158,7 @@ func TestFitErrors(t *testing.T) {
 		{"blank name", []any{"  ", ref.ids, ref.ages, ref.vals, ref.groups}, cell.CodeValue, []string{"name"}},
 		{"too few workers", []any{"x", few.ids, few.ages, few.vals, few.groups}, cell.CodeValue, []string{"workers"}},
 		{"negative bandwidth", []any{"x", ref.ids, ref.ages, ref.vals, ref.groups, "bandwidth=-1"}, cell.CodeNum, []string{"bandwidth"}},
-		{"missing values argument", []any{"x", ref.ids, ref.ages}, cell.CodeValue, []string{"VEER.FIT takes"}},
+		{"missing values argument", []any{"x", ref.ids, ref.ages}, cell.CodeValue, []string{"VEER.FIT: the function takes 4 to 6 arguments"}},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			env := &cell.MemoryEnv{}
@@ -276,7 +276,7 @@ func TestLookupErrors(t *testing.T) {
 		name  string
 		fn    string
 		args  []any
-		code  string
+		code  cell.Code
 		parts []string
 	}{
 		{"text in ages", "VEER.REFMEAN", []any{"sbp", []any{30.0, 40.0, "fifty"}, "office"}, cell.CodeValue, []string{"'ages'", "row 3", `"fifty"`}},
@@ -453,7 +453,7 @@ func TestChartRowsPolicy(t *testing.T) {
 	}
 	for _, c := range []struct {
 		row   int
-		code  string
+		code  cell.Code
 		parts []string
 	}{
 		{2, cell.CodeNA, []string{"row 2", "age is blank"}},
@@ -523,7 +523,7 @@ func TestChartErrors(t *testing.T) {
 		name  string
 		e     exams
 		opts  any
-		code  string
+		code  cell.Code
 		parts []string
 	}{
 		{"no target or limit", s, nil, cell.CodeValue, []string{"target", "limit"}},
@@ -618,7 +618,7 @@ func TestLimit(t *testing.T) {
 	for _, c := range []struct {
 		name  string
 		args  []any
-		code  string
+		code  cell.Code
 		parts []string
 	}{
 		{"no model and no gap", []any{20}, cell.CodeValue, []string{"gap=1"}},
@@ -686,7 +686,7 @@ func TestDelay(t *testing.T) {
 	for _, c := range []struct {
 		name  string
 		args  []any
-		code  string
+		code  cell.Code
 		parts []string
 	}{
 		{"no target or limit", []any{1, "sbp"}, cell.CodeValue, []string{"target", "limit"}},

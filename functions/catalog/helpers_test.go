@@ -152,7 +152,9 @@ func newEnv(t testing.TB) (*cell.MemoryEnv, *screening.Model) {
 // converted from Go values (a cell.Value is passed as is, nil is an absent
 // argument), bound and checked against the parameters, the function is
 // called, and its result is encoded to JSON to prove it is a valid cell
-// result. It returns the result and the spreadsheet error, if any.
+// result. It returns the result and the spreadsheet error, if any, in the
+// function's context as the dispatcher gives it (errors inside a spilled
+// result are returned as the function made them).
 func call(t testing.TB, env cell.Env, fn string, args ...any) (any, *cell.Error) {
 	t.Helper()
 	return callCtx(context.Background(), t, env, fn, args...)
@@ -174,13 +176,13 @@ func callCtx(ctx context.Context, t testing.TB, env cell.Env, fn string, args ..
 	}
 	bound, err := cell.Bind(f, vals)
 	if err != nil {
-		return nil, cell.AsError(err)
+		return nil, cell.AsError(err).In(f.Name)
 	}
 	res, err := f.Call(ctx, env, bound)
 	if err != nil {
-		return nil, cell.AsError(err)
+		return nil, cell.AsError(err).In(f.Name)
 	}
-	if _, e := cell.EncodeResult(nil, res); e != nil {
+	if _, e := cell.EncodeResult(nil, f.Name, res); e != nil {
 		return nil, e
 	}
 	return res, nil
@@ -198,7 +200,7 @@ func mustCall(t testing.TB, env cell.Env, fn string, args ...any) any {
 
 // wantErr checks a spreadsheet error's code and that its message holds
 // every given piece.
-func wantErr(t testing.TB, e *cell.Error, code string, pieces ...string) {
+func wantErr(t testing.TB, e *cell.Error, code cell.Code, pieces ...string) {
 	t.Helper()
 	if e == nil {
 		t.Fatalf("no error; want %s containing %q", code, pieces)

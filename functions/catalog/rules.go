@@ -19,7 +19,8 @@ func ruleFuncs(cache *rules.Cache) []cell.Func {
 			Name:    "VEER.RULE",
 			Summary: "Evaluates an alert rule (a CEL expression) for every exam of a sheet.",
 			Help: "The rule sees " + ruleVariables() + ". " +
-				`It gives true/false, a label or a number per exam, in the same order as VEER.CHART. The rule may also name a stored rule as "@set/name" (see VEER.SAVERULES). Options as for VEER.CHART (target or limit).` + caution,
+				`It gives true/false, a label or a number per exam, in the same order as VEER.CHART. The rule may also name a stored rule as "@set/name" (see VEER.SAVERULES). Options as for VEER.CHART (target or limit). ` +
+				sheetHelp + " A row the rule cannot evaluate is " + string(cell.WrongArgument.Code()) + " with the reason." + caution,
 			Params: []cell.Param{
 				{Name: "rule", Type: cell.TypeText, Help: `CEL expression, e.g. "chart > limit || centile > 99.0", or "@set/name"`},
 				modelParam(),
@@ -78,7 +79,7 @@ func callSaveRules(env cell.Env, a cell.Args, cache *rules.Cache) (any, error) {
 	if err != nil {
 		return nil, err
 	}
-	if name, err = checkName("VEER.SAVERULES", "rule set", name); err != nil {
+	if name, err = checkName("rule set", name); err != nil {
 		return nil, err
 	}
 	lines, err := a.Texts(1, cell.PolicySkip)
@@ -88,12 +89,12 @@ func callSaveRules(env cell.Env, a cell.Args, cache *rules.Cache) (any, error) {
 	text := strings.Join(lines, "\n")
 	rs, err := rules.ParseRuleSet([]byte(text))
 	if err != nil {
-		return nil, cell.ValueError("VEER.SAVERULES: %v", err)
+		return nil, cell.WrongArgument.Errorf("%v", err)
 	}
 	if _, err := cache.CompileSet(rs); err != nil {
-		return nil, cell.ValueError("VEER.SAVERULES: %v", err)
+		return nil, cell.WrongArgument.Errorf("%v", err)
 	}
-	if err := checkKind(env, "VEER.SAVERULES", name, true); err != nil {
+	if err := checkKind(env, name, true); err != nil {
 		return nil, err
 	}
 	return env.SaveModel(name, append([]byte(ruleSetPrefix), rs.Format()...))
@@ -108,18 +109,18 @@ func resolveRule(env cell.Env, text string) (string, error) {
 	}
 	set, name, ok := strings.Cut(text[1:], "/")
 	if !ok || set == "" || name == "" {
-		return "", cell.ValueError(`a stored rule is named "@set/name", e.g. "@bp-rules/high"`)
+		return "", cell.WrongArgument.Errorf(`a stored rule is named "@set/name", e.g. "@bp-rules/high"`)
 	}
 	ref, err := env.Model(set)
 	if err != nil {
 		return "", err
 	}
 	if !isRuleSet(ref.Doc) {
-		return "", cell.RefError("%s is a model, not a rule set saved with VEER.SAVERULES", ref.Handle)
+		return "", cell.UnknownModel.Errorf("%s is a model, not a rule set saved with VEER.SAVERULES", ref.Handle)
 	}
 	rs, err := rules.ParseRuleSet(ref.Doc[len(ruleSetPrefix):])
 	if err != nil {
-		return "", cell.RefError("rule set %s cannot be read: %v", ref.Handle, err)
+		return "", cell.UnknownModel.Errorf("rule set %s cannot be read: %v", ref.Handle, err)
 	}
 	r, ok := rs.Lookup(name)
 	if !ok {
@@ -127,22 +128,23 @@ func resolveRule(env cell.Env, text string) (string, error) {
 		for _, x := range rs.Rules {
 			names = append(names, x.Name)
 		}
-		return "", cell.NAError("rule set %s has no rule %q; it has: %s", ref.Handle, name, strings.Join(names, ", "))
+		return "", cell.UnknownRule.Errorf("rule set %s has no rule %q; it has: %s", ref.Handle, name, strings.Join(names, ", "))
 	}
 	return r.Expr, nil
 }
 
-func compileError(fn string, err error) error {
+func compileError(err error) error {
 	var ce *rules.CompileError
 	if errors.As(err, &ce) {
-		return cell.ValueError("%s: %s", fn, ce.Short())
+		return cell.WrongArgument.Errorf("%s", ce.Short())
 	}
-	return cell.ValueError("%s: %v", fn, err)
+	return cell.WrongArgument.Errorf("%v", err)
 }
 
 // ruleValues turns rule results into cells; rows the rule could not
-// evaluate become #VALUE! with the reason.
-func ruleValues(fn string, vals []rules.Value, err error) ([]any, error) {
+// evaluate become #VALUE! with the reason. A rule stopped by its cost or
+// time limit fails the call (OutOfRange); a cancelled call is Busy.
+func ruleValues(vals []rules.Value, err error) ([]any, error) {
 	out := make([]any, len(vals))
 	for i, v := range vals {
 		if v.IsEmpty() {
@@ -158,16 +160,16 @@ func ruleValues(fn string, vals []rules.Value, err error) ([]any, error) {
 	if errors.As(err, &re) {
 		for _, e := range re.Rows {
 			if e.Row >= 1 && e.Row <= len(out) {
-				out[e.Row-1] = cell.ValueError("%s: %s", fn, e.Message)
+				out[e.Row-1] = cell.WrongArgument.Errorf("%s", e.Message)
 			}
 		}
 		return out, nil
 	}
 	var ee *rules.EvalError
 	if errors.As(err, &ee) && ee.Limit {
-		return nil, cell.NumError("%s: %s", fn, ee.Message)
+		return nil, cell.OutOfRange.Errorf("%s", ee.Message)
 	}
-	return nil, cell.AsError(err)
+	return nil, cellError(err, cell.WrongArgument)
 }
 
 func callRule(ctx context.Context, env cell.Env, a cell.Args, cache *rules.Cache) (any, error) {
@@ -180,42 +182,19 @@ func callRule(ctx context.Context, env cell.Env, a cell.Args, cache *rules.Cache
 	}
 	rule, err := cache.Compile(text, rules.Any)
 	if err != nil {
-		return nil, compileError("VEER.RULE", err)
+		return nil, compileError(err)
 	}
-	m, ref, err := modelArg(ctx, env, a, 1)
+	sc, err := screenSheet(ctx, env, a, 1, 2, 6)
 	if err != nil {
 		return nil, err
 	}
-	sh, err := examsArgs(a, 2)
-	if err != nil {
-		return nil, err
-	}
-	o, err := a.Options(6)
-	if err != nil {
-		return nil, err
-	}
-	s, lo, err := chartSettings("VEER.RULE", o)
-	if err != nil {
-		return nil, err
-	}
-	lo.Stop = func() bool { return ctx.Err() != nil }
-	h, err := resolveLimit(env, "VEER.RULE", m, ref, o, s, lo)
-	if err != nil {
-		return nil, err
-	}
-	if err := sh.screenable("VEER.RULE", m, s.Extrapolate); err != nil {
-		return nil, err
-	}
-	res, err := sh.screen("VEER.RULE", m, s, h)
-	if err != nil {
-		return nil, err
-	}
+	sh, h, res := sc.sheet, sc.h, sc.res
 	vars, err := screening.RuleExams(sh.exams, res, h)
 	if err != nil {
 		return nil, err
 	}
 	vals := make([]rules.Value, len(vars))
-	got, err := ruleValues("VEER.RULE", vals, rules.EvalAll(ctx, rule, vars, vals))
+	got, err := ruleValues(vals, rules.EvalAll(ctx, rule, vars, vals))
 	if err != nil {
 		return nil, err
 	}
@@ -236,12 +215,12 @@ func callRuleCols(ctx context.Context, a cell.Args, cache *rules.Cache) (any, er
 	}
 	data := a.Range(1)
 	if len(data) < 2 {
-		return nil, cell.ValueError("VEER.RULECOLS: the data range needs a header row and at least one data row")
+		return nil, cell.WrongArgument.Errorf("the data range needs a header row and at least one data row")
 	}
 	header := make([]string, len(data[0]))
 	for j, c := range data[0] {
 		if c.Kind != cell.KindText || strings.TrimSpace(c.Str) == "" {
-			return nil, cell.ValueError("VEER.RULECOLS: header cell %d must be a column name (text), got %s", j+1, c)
+			return nil, cell.WrongArgument.Errorf("header cell %d must be a column name (text), got %s", j+1, c)
 		}
 		header[j] = c.Str
 	}
@@ -268,8 +247,8 @@ func callRuleCols(ctx context.Context, a cell.Args, cache *rules.Cache) (any, er
 	}
 	rule, err := cache.CompileColumnsTyped(text, cols, rules.Any)
 	if err != nil {
-		return nil, compileError("VEER.RULECOLS", err)
+		return nil, compileError(err)
 	}
 	vals := make([]rules.Value, len(rows))
-	return ruleValues("VEER.RULECOLS", vals, rules.EvalRows(ctx, rule, rows, vals))
+	return ruleValues(vals, rules.EvalRows(ctx, rule, rows, vals))
 }

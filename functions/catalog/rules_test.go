@@ -97,7 +97,7 @@ func TestRule(t *testing.T) {
 	col = ruleOf(t, env, "zs[1] > 0.0", sheet, "limit=4")
 	for i, v := range col {
 		if examNo[i] == 1 {
-			wantErr(t, cellErr(t, v), cell.CodeValue, "VEER.RULE")
+			wantErr(t, cellErr(t, v), cell.CodeValue, "outside the list")
 		} else if _, ok := v.(bool); !ok {
 			t.Errorf("row %d (exam %v) = %v; want true or false", i+1, examNo[i], v)
 		}
@@ -111,7 +111,7 @@ func TestRuleErrors(t *testing.T) {
 		name  string
 		rule  string
 		opts  any
-		code  string
+		code  cell.Code
 		parts []string
 	}{
 		{"typo in a name", "chrt > limit", "target=20", cell.CodeValue, []string{"column 1", `"chrt"`, `"chart"`}},
@@ -194,7 +194,7 @@ func TestStoredRules(t *testing.T) {
 		name  string
 		fn    string
 		args  []any
-		code  string
+		code  cell.Code
 		parts []string
 	}{
 		{"unknown rule in a set", "VEER.RULE", []any{"@bp-rules/low", "sbp", s.ids, s.ages, s.vals, s.groups, "limit=4"}, cell.CodeNA, []string{`"low"`, "high, jump"}},
@@ -251,7 +251,7 @@ func TestRuleCols(t *testing.T) {
 		name  string
 		rule  string
 		data  any
-		code  string
+		code  cell.Code
 		parts []string
 	}{
 		{"typo in a column name", "systolic > 140.0", data, cell.CodeValue, []string{"column 1", `"systolic"`, "systolic_bp"}},

@@ -8,8 +8,9 @@ import (
 
 // Args are the arguments of one call, bound to the function's parameters.
 // The helpers convert spreadsheet cells to Go values; every error they return
-// is an *Error whose message names the function, the argument and, inside a
-// range, the cell position (1-based, relative to the range).
+// is an *Error whose message names the argument and, inside a range, the
+// cell position (1-based, relative to the range); the dispatcher adds the
+// function's name (Error.In).
 type Args struct {
 	f    *Func
 	vals []Value
@@ -31,14 +32,14 @@ func Bind(f *Func, vals []Value) (Args, error) {
 		n--
 	}
 	if n > total || n < required {
-		return Args{}, ValueError("%s takes %s; got %d", f.Name, arityText(f, required, total), len(vals))
+		return Args{}, WrongArgument.Errorf("the function takes %s; got %d", arityText(f, required, total), len(vals))
 	}
 	a := Args{f: f, vals: vals[:n:n]}
 	for i, p := range f.Params {
 		v := a.Value(i)
 		if v.IsMissing() {
 			if !p.Optional {
-				return Args{}, ValueError("argument '%s' of %s is required but blank", p.Name, f.Name)
+				return Args{}, WrongArgument.Errorf("argument '%s' is required but blank", p.Name)
 			}
 			continue
 		}
@@ -105,13 +106,6 @@ func (a Args) Values() []Value { return a.vals }
 // Missing reports whether argument i was omitted or blank.
 func (a Args) Missing(i int) bool { return a.Value(i).IsMissing() }
 
-func (a Args) fname() string {
-	if a.f == nil {
-		return "the function"
-	}
-	return a.f.Name
-}
-
 func (a Args) argName(i int) string {
 	if a.f == nil {
 		return strconv.Itoa(i + 1)
@@ -119,12 +113,7 @@ func (a Args) argName(i int) string {
 	return a.f.ArgName(i)
 }
 
-func (a Args) name(i int) string {
-	if a.f == nil {
-		return "argument " + strconv.Itoa(i+1)
-	}
-	return "argument " + a.f.ArgName(i) + " of " + a.f.Name
-}
+func (a Args) name(i int) string { return "argument " + a.argName(i) }
 
 // single returns argument i as one cell.
 func (a Args) single(i int, want string) (Cell, error) {
@@ -132,10 +121,10 @@ func (a Args) single(i int, want string) (Cell, error) {
 	c, ok := v.Cell()
 	if !ok {
 		r, cols := v.Dims()
-		return Cell{}, ValueError("%s must be a single %s; got %s", a.name(i), want, describeRange(r, cols))
+		return Cell{}, WrongArgument.Errorf("%s must be a single %s; got %s", a.name(i), want, describeRange(r, cols))
 	}
 	if c.Kind == KindError {
-		return Cell{}, Errorf(c.Str, "%s is the error %s", a.name(i), c.Str)
+		return Cell{}, Errorf(Code(c.Str), "%s is the error %s", a.name(i), c.Str)
 	}
 	return c, nil
 }
@@ -147,7 +136,7 @@ func (a Args) Number(i int) (float64, error) {
 		return 0, err
 	}
 	if c.Kind != KindNumber {
-		return 0, ValueError("%s must be a number; got %s", a.name(i), c)
+		return 0, WrongArgument.Errorf("%s must be a number; got %s", a.name(i), c)
 	}
 	return c.Num, nil
 }
@@ -167,7 +156,7 @@ func (a Args) Int(i int, min, max int) (int, error) {
 		return 0, err
 	}
 	if f != math.Trunc(f) || f < float64(min) || f > float64(max) {
-		return 0, NumError("%s must be a whole number from %d to %d; got %s", a.name(i), min, max, FormatNumber(f))
+		return 0, OutOfRange.Errorf("%s must be a whole number from %d to %d; got %s", a.name(i), min, max, FormatNumber(f))
 	}
 	return int(f), nil
 }
@@ -185,7 +174,7 @@ func (a Args) Text(i int) (string, error) {
 	case KindNumber:
 		return FormatNumber(c.Num), nil
 	}
-	return "", ValueError("%s must be text; got %s", a.name(i), c)
+	return "", WrongArgument.Errorf("%s must be text; got %s", a.name(i), c)
 }
 
 // OptText returns argument i as text, or def when omitted or blank.
@@ -206,7 +195,7 @@ func (a Args) Bool(i int) (bool, error) {
 	if b, ok := boolOf(c); ok {
 		return b, nil
 	}
-	return false, ValueError("%s must be TRUE or FALSE; got %s", a.name(i), c)
+	return false, WrongArgument.Errorf("%s must be TRUE or FALSE; got %s", a.name(i), c)
 }
 
 // OptBool returns argument i as a boolean, or def when omitted or blank.
@@ -263,7 +252,7 @@ func (a Args) column(i int) ([]Cell, int, int, error) {
 	}
 	rows, cols := v.Dims()
 	if rows > 1 && cols > 1 {
-		return nil, rows, cols, ValueError("%s must be one column or one row; got %s", a.name(i), describeRange(rows, cols))
+		return nil, rows, cols, WrongArgument.Errorf("%s must be one column or one row; got %s", a.name(i), describeRange(rows, cols))
 	}
 	return v.Flat(), rows, cols, nil
 }
@@ -298,9 +287,9 @@ func (a Args) Numbers(i int, p Policy) ([]float64, error) {
 				out = append(out, math.NaN())
 				continue
 			}
-			return nil, Errorf(c.Str, "%s, %s: the error %s", a.name(i), a.pos(rows, cols, k), c.Str)
+			return nil, Errorf(Code(c.Str), "%s, %s: the error %s", a.name(i), a.pos(rows, cols, k), c.Str)
 		}
-		return nil, ValueError("%s, %s: expected a number; got %s%s", a.name(i), a.pos(rows, cols, k), c, policyHint(p))
+		return nil, WrongArgument.Errorf("%s, %s: expected a number; got %s%s", a.name(i), a.pos(rows, cols, k), c, policyHint(p))
 	}
 	return out, nil
 }
@@ -338,9 +327,9 @@ func (a Args) Texts(i int, p Policy) ([]string, error) {
 				out = append(out, "")
 				continue
 			}
-			return nil, Errorf(c.Str, "%s, %s: the error %s", a.name(i), a.pos(rows, cols, k), c.Str)
+			return nil, Errorf(Code(c.Str), "%s, %s: the error %s", a.name(i), a.pos(rows, cols, k), c.Str)
 		}
-		return nil, ValueError("%s, %s: expected text or a number; got %s%s", a.name(i), a.pos(rows, cols, k), c, policyHint(p))
+		return nil, WrongArgument.Errorf("%s, %s: expected text or a number; got %s%s", a.name(i), a.pos(rows, cols, k), c, policyHint(p))
 	}
 	return out, nil
 }
@@ -386,7 +375,7 @@ func (a Args) SameRows(idx ...int) error {
 			continue
 		}
 		if a.Rows(i) != a.Rows(first) {
-			return ValueError("%s: argument %s has %d rows but argument %s has %d; they must be columns of the same table", a.fname(), a.argName(i), a.Rows(i), a.argName(first), a.Rows(first))
+			return WrongArgument.Errorf("argument %s has %d rows but argument %s has %d; they must be columns of the same table", a.argName(i), a.Rows(i), a.argName(first), a.Rows(first))
 		}
 	}
 	return nil

@@ -35,7 +35,7 @@ func TestBind(t *testing.T) {
 	tests := []struct {
 		name string
 		args []any
-		code string
+		code Code
 		part string
 	}{
 		{"ok minimal", []any{[]float64{1}, 2.0}, "", ""},
@@ -43,14 +43,14 @@ func TestBind(t *testing.T) {
 		{"trailing blanks dropped", []any{[]float64{1}, 2.0, nil, nil, nil, nil}, "", ""},
 		{"too few", []any{[]float64{1}}, CodeValue, "takes 2 to 5 arguments (values, target, [label], [flag], [options]); got 1"},
 		{"too many", []any{1.0, 2.0, "x", true, "", 7.0}, CodeValue, "got 6"},
-		{"required blank", []any{nil, 2.0}, CodeValue, "argument 'values' of VEER.TEST.ARGS is required but blank"},
-		{"number is text", []any{1.0, "abc"}, CodeValue, `argument 'target' of VEER.TEST.ARGS must be a number; got text "abc"`},
+		{"required blank", []any{nil, 2.0}, CodeValue, "argument 'values' is required but blank"},
+		{"number is text", []any{1.0, "abc"}, CodeValue, `argument 'target' must be a number; got text "abc"`},
 		{"number is bool", []any{1.0, true}, CodeValue, "must be a number; got TRUE"},
 		{"number is range", []any{1.0, []float64{1, 2}}, CodeValue, "must be a single number; got a 2x1 range"},
 		{"number 1x1 range", []any{1.0, []float64{3}}, "", ""},
-		{"error propagates", []any{1.0, NAError("")}, CodeNA, "argument 'target' of VEER.TEST.ARGS is the error #N/A"},
+		{"error propagates", []any{1.0, BlankInput.Errorf("")}, CodeNA, "argument 'target' is the error #N/A"},
 		{"text from number", []any{1.0, 2.0, 1001.0}, "", ""},
-		{"text is bool", []any{1.0, 2.0, false}, CodeValue, "argument 'label' of VEER.TEST.ARGS must be text; got FALSE"},
+		{"text is bool", []any{1.0, 2.0, false}, CodeValue, "argument 'label' must be text; got FALSE"},
 		{"bool from text", []any{1.0, 2.0, "a", "yes"}, "", ""},
 		{"bool bad", []any{1.0, 2.0, "a", "maybe"}, CodeValue, `must be TRUE or FALSE; got text "maybe"`},
 	}
@@ -107,22 +107,22 @@ func TestScalarGetters(t *testing.T) {
 func TestNumbersPolicies(t *testing.T) {
 	f := argFunc()
 	nan := math.NaN()
-	col := []any{1.0, nil, "x", true, NAError(""), 2.0}
+	col := []any{1.0, nil, "x", true, BlankInput.Errorf(""), 2.0}
 	tests := []struct {
 		name   string
 		in     any
 		policy Policy
 		want   []float64
-		code   string
+		code   Code
 		part   string
 	}{
 		{"clean column", []float64{1, 2, 3}, PolicyError, []float64{1, 2, 3}, "", ""},
 		{"one row", [][]float64{{1, 2, 3}}, PolicyError, []float64{1, 2, 3}, "", ""},
 		{"single cell", 4.0, PolicyError, []float64{4}, "", ""},
-		{"blank strict", []any{1.0, nil}, PolicyError, nil, CodeValue, "argument 'values' of VEER.TEST.ARGS, row 2: expected a number; got a blank cell (blank, text and TRUE/FALSE cells are not allowed here)"},
+		{"blank strict", []any{1.0, nil}, PolicyError, nil, CodeValue, "argument 'values', row 2: expected a number; got a blank cell (blank, text and TRUE/FALSE cells are not allowed here)"},
 		{"text strict in a row", [][]any{{1.0, "x"}}, PolicyError, nil, CodeValue, "column 2: expected a number; got text \"x\""},
-		{"error strict", []any{1.0, 2.0, NAError("")}, PolicyError, nil, CodeNA, "row 3: the error #N/A"},
-		{"blank missing", []any{1.0, nil, NAError(""), 2.0}, PolicyMissing, []float64{1, nan, nan, 2}, "", ""},
+		{"error strict", []any{1.0, 2.0, BlankInput.Errorf("")}, PolicyError, nil, CodeNA, "row 3: the error #N/A"},
+		{"blank missing", []any{1.0, nil, BlankInput.Errorf(""), 2.0}, PolicyMissing, []float64{1, nan, nan, 2}, "", ""},
 		{"text missing", []any{1.0, "n/a"}, PolicyMissing, nil, CodeValue, `row 2: expected a number; got text "n/a" (blank cells are allowed and give #N/A for their row`},
 		{"skip", col[:4], PolicySkip, []float64{1}, "", ""},
 		{"skip keeps errors", col, PolicySkip, nil, CodeNA, "row 5"},
@@ -161,11 +161,11 @@ func TestTexts(t *testing.T) {
 		in     []any
 		policy Policy
 		want   []string
-		code   string
+		code   Code
 	}{
 		{[]any{"w1", 1001.0, 2.5}, PolicyError, []string{"w1", "1001", "2.5"}, ""},
 		{[]any{"w1", nil}, PolicyError, nil, CodeValue},
-		{[]any{"w1", nil, NAError("")}, PolicyMissing, []string{"w1", "", ""}, ""},
+		{[]any{"w1", nil, BlankInput.Errorf("")}, PolicyMissing, []string{"w1", "", ""}, ""},
 		{[]any{"w1", nil, true}, PolicySkip, []string{"w1"}, ""},
 		{[]any{"w1", true}, PolicyMissing, nil, CodeValue},
 	}
@@ -187,7 +187,7 @@ func TestSameRows(t *testing.T) {
 	f := argFunc()
 	a := NewArgs(f, mustValue(t, []float64{1, 2, 3}), mustValue(t, []float64{1, 2}), mustValue(t, [][]float64{{1, 2, 3}}))
 	err := a.SameRows(0, 1)
-	if e := AsError(err); e == nil || e.Code != CodeValue || !strings.Contains(e.Message, "VEER.TEST.ARGS: argument 'target' has 2 rows but argument 'values' has 3") {
+	if e := AsError(err); e == nil || e.Code != CodeValue || !strings.Contains(e.Message, "argument 'target' has 2 rows but argument 'values' has 3") {
 		t.Errorf("SameRows error = %v", err)
 	}
 	if err := a.SameRows(0, 2, 4); err != nil {

@@ -6,8 +6,11 @@ import (
 	"unicode/utf8"
 )
 
-// EncodeResult appends the JSON encoding of a cell function's result to b,
-// or returns the spreadsheet error the result stands for.
+// EncodeResult appends the JSON encoding of the result v of the cell
+// function fn to b, or returns the spreadsheet error the result stands for.
+// Errors are put in fn's context (Error.In): the returned one, and the error
+// cells inside a spilled result, whose messages then start with "fn: "
+// (fn "" adds no context).
 //
 // Results and their encodings:
 //
@@ -24,7 +27,12 @@ import (
 //
 // Inside a spilled column or table, an error (or NaN, ±Inf) becomes an error
 // cell {"error": "#N/A", "message": "..."} and does not fail the whole call.
-func EncodeResult(b []byte, v any) ([]byte, *Error) {
+func EncodeResult(b []byte, fn string, v any) ([]byte, *Error) {
+	b, e := encodeResult(b, fn, v)
+	return b, e.In(fn)
+}
+
+func encodeResult(b []byte, fn string, v any) ([]byte, *Error) {
 	switch t := v.(type) {
 	case *Error:
 		if t == nil {
@@ -35,23 +43,23 @@ func EncodeResult(b []byte, v any) ([]byte, *Error) {
 		return b, &t
 	case Cell:
 		if t.Kind == KindError {
-			return b, &Error{Code: t.Str, Message: "the result is the error " + t.Str}
+			return b, &Error{Code: Code(t.Str), Message: "the result is the error " + t.Str}
 		}
 		if t.Kind == KindNumber && !finite(t.Num) {
-			return b, NumError("the result is not a finite number")
+			return b, OutOfRange.Errorf("the result is not a finite number")
 		}
 	case float64:
 		if !finite(t) {
-			return b, NumError("the result is not a finite number")
+			return b, OutOfRange.Errorf("the result is not a finite number")
 		}
 	case float32:
 		if !finite(float64(t)) {
-			return b, NumError("the result is not a finite number")
+			return b, OutOfRange.Errorf("the result is not a finite number")
 		}
 	}
-	out, ok := appendAny(b, v, 0)
+	out, ok := appendAny(b, fn, v, 0)
 	if !ok {
-		return b, ValueError("internal error: a cell function returned an unsupported result type %T", v)
+		return b, WrongArgument.Errorf("internal error: a cell function returned an unsupported result type %T", v)
 	}
 	return out, nil
 }
@@ -60,7 +68,7 @@ func finite(f float64) bool { return !math.IsNaN(f) && !math.IsInf(f, 0) }
 
 // appendAny encodes v at nesting depth (0 = top, 1 = column/row element,
 // 2 = cell in a row).
-func appendAny(b []byte, v any, depth int) ([]byte, bool) {
+func appendAny(b []byte, fn string, v any, depth int) ([]byte, bool) {
 	switch t := v.(type) {
 	case nil:
 		return append(b, "null"...), true
@@ -88,9 +96,9 @@ func appendAny(b []byte, v any, depth int) ([]byte, bool) {
 		if t == nil {
 			return append(b, "null"...), true
 		}
-		return appendErrorCell(b, t.Code, t.Message), true
+		return appendErrorCell(b, t.Code, t.Func, fn, t.Message), true
 	case Error:
-		return appendErrorCell(b, t.Code, t.Message), true
+		return appendErrorCell(b, t.Code, t.Func, fn, t.Message), true
 	case Value:
 		out, _ := t.MarshalJSON()
 		return append(b, out...), true
@@ -110,23 +118,23 @@ func appendAny(b []byte, v any, depth int) ([]byte, bool) {
 	case []Cell:
 		return appendSlice(b, len(t), depth, func(b []byte, i int) ([]byte, bool) { return appendCell(b, t[i]), true }), true
 	case []*Error:
-		return appendSlice(b, len(t), depth, func(b []byte, i int) ([]byte, bool) { return appendAny(b, t[i], 2) }), true
+		return appendSlice(b, len(t), depth, func(b []byte, i int) ([]byte, bool) { return appendAny(b, fn, t[i], 2) }), true
 	}
 	if depth == 1 {
 		if t, ok := v.([]any); ok {
-			return appendRow(b, len(t), func(b []byte, i int) ([]byte, bool) { return appendAny(b, t[i], 2) })
+			return appendRow(b, len(t), func(b []byte, i int) ([]byte, bool) { return appendAny(b, fn, t[i], 2) })
 		}
 		return b, false
 	}
 	switch t := v.(type) {
 	case [][]float64:
-		return appendRows(b, len(t), func(b []byte, i int) ([]byte, bool) { return appendAny(b, t[i], 1) })
+		return appendRows(b, len(t), func(b []byte, i int) ([]byte, bool) { return appendAny(b, fn, t[i], 1) })
 	case [][]string:
-		return appendRows(b, len(t), func(b []byte, i int) ([]byte, bool) { return appendAny(b, t[i], 1) })
+		return appendRows(b, len(t), func(b []byte, i int) ([]byte, bool) { return appendAny(b, fn, t[i], 1) })
 	case [][]Cell:
-		return appendRows(b, len(t), func(b []byte, i int) ([]byte, bool) { return appendAny(b, t[i], 1) })
+		return appendRows(b, len(t), func(b []byte, i int) ([]byte, bool) { return appendAny(b, fn, t[i], 1) })
 	case [][]any:
-		return appendRows(b, len(t), func(b []byte, i int) ([]byte, bool) { return appendAny(b, t[i], 1) })
+		return appendRows(b, len(t), func(b []byte, i int) ([]byte, bool) { return appendAny(b, fn, t[i], 1) })
 	case []any:
 		rows := false
 		for _, e := range t {
@@ -138,13 +146,13 @@ func appendAny(b []byte, v any, depth int) ([]byte, bool) {
 		if rows {
 			return appendRows(b, len(t), func(b []byte, i int) ([]byte, bool) {
 				if !isSlice(t[i]) {
-					return appendRow(b, 1, func(b []byte, _ int) ([]byte, bool) { return appendAny(b, t[i], 2) })
+					return appendRow(b, 1, func(b []byte, _ int) ([]byte, bool) { return appendAny(b, fn, t[i], 2) })
 				}
-				return appendAny(b, t[i], 1)
+				return appendAny(b, fn, t[i], 1)
 			})
 		}
 		return appendRows(b, len(t), func(b []byte, i int) ([]byte, bool) {
-			return appendRow(b, 1, func(b []byte, _ int) ([]byte, bool) { return appendAny(b, t[i], 2) })
+			return appendRow(b, 1, func(b []byte, _ int) ([]byte, bool) { return appendAny(b, fn, t[i], 2) })
 		})
 	}
 	return b, false
@@ -204,15 +212,27 @@ func appendCell(b []byte, c Cell) []byte {
 	case KindBool:
 		return strconv.AppendBool(b, c.B)
 	case KindError:
-		return appendErrorCell(b, c.Str, "")
+		return appendErrorCell(b, Code(c.Str), "", "", "")
 	}
 	return append(b, "null"...)
 }
 
-func appendErrorCell(b []byte, code, msg string) []byte {
+// appendErrorCell encodes an error cell; its message is put in the context
+// of the function fn unless it already names one (own), as Error.In does.
+func appendErrorCell(b []byte, code Code, own, fn, msg string) []byte {
 	b = append(b, `{"error":`...)
-	b = appendString(b, code)
-	if msg != "" {
+	b = appendString(b, string(code))
+	if own != "" {
+		fn = ""
+	}
+	switch {
+	case fn != "" && msg != "":
+		b = append(b, `,"message":`...)
+		b = appendString(b, fn+": "+msg)
+	case fn != "":
+		b = append(b, `,"message":`...)
+		b = appendString(b, fn)
+	case msg != "":
 		b = append(b, `,"message":`...)
 		b = appendString(b, msg)
 	}
@@ -224,7 +244,7 @@ func appendErrorCell(b []byte, code, msg string) []byte {
 // JSON cannot hold, become a #NUM! error cell.
 func appendNumber(b []byte, f float64) []byte {
 	if !finite(f) {
-		return appendErrorCell(b, CodeNum, "not a finite number")
+		return appendErrorCell(b, CodeNum, "", "", "not a finite number")
 	}
 	abs := math.Abs(f)
 	format := byte('f')

@@ -82,7 +82,7 @@ type MemoryEnv struct {
 func (m *MemoryEnv) Model(ref string) (ModelRef, error) {
 	name, ver, ok := SplitHandle(ref)
 	if !ok {
-		return ModelRef{}, RefError("%s is not a model name or handle like name@v3", quoteShort(ref))
+		return ModelRef{}, UnknownModel.Errorf("%s is not a model name or handle like name@v3", quoteShort(ref))
 	}
 	m.mu.Lock()
 	defer m.mu.Unlock()
@@ -91,13 +91,13 @@ func (m *MemoryEnv) Model(ref string) (ModelRef, error) {
 	}
 	vs := m.models[lowerASCII(name)]
 	if len(vs) == 0 {
-		return ModelRef{}, RefError("there is no model named %s", quoteShort(name))
+		return ModelRef{}, UnknownModel.Errorf("there is no model named %s", quoteShort(name))
 	}
 	if ver == 0 {
 		return vs[len(vs)-1], nil
 	}
 	if ver > len(vs) {
-		return ModelRef{}, RefError("model %s has no version %d", quoteShort(name), ver)
+		return ModelRef{}, UnknownModel.Errorf("model %s has no version %d", quoteShort(name), ver)
 	}
 	return vs[ver-1], nil
 }

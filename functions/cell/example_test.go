@@ -21,7 +21,7 @@ func Example() {
 				return nil, err
 			}
 			if len(xs) == 0 {
-				return nil, cell.Div0Error("no numbers in 'values'")
+				return nil, cell.Errorf(cell.CodeDiv0, "no numbers in 'values'")
 			}
 			s := 0.0
 			for _, x := range xs {
@@ -40,7 +40,7 @@ func Example() {
 		return
 	}
 	res, err := f.Call(context.Background(), &cell.MemoryEnv{}, args)
-	out, _ := cell.EncodeResult(nil, res)
+	out, _ := cell.EncodeResult(nil, f.Name, res)
 	fmt.Println(string(out), err)
 	// Output: 3 <nil>
 }
@@ -55,17 +55,30 @@ func ExampleParseOptions() {
 	fmt.Println(err)
 	// Output:
 	// up 0.5 <nil>
-	// #VALUE!: argument 'options' of VEER.EXAMPLE: unknown option "sied"; known options: side, allowance
+	// #VALUE!: argument 'options': unknown option "sied"; known options: side, allowance
 }
 
+// The dispatcher encodes a result in the context of the function called:
+// the error of a failed call and the errors inside a spilled column both
+// name it once.
 func ExampleEncodeResult() {
-	b, _ := cell.EncodeResult(nil, []any{1.5, cell.NAError("row 2 is blank"), "ok"})
+	b, _ := cell.EncodeResult(nil, "VEER.EXAMPLE", []any{1.5, cell.BlankInput.Errorf("row 2: the age is blank"), "ok"})
 	fmt.Println(string(b))
-	_, e := cell.EncodeResult(nil, cell.RefError("there is no model named \"bp\""))
-	fmt.Println(e.Code)
+	_, e := cell.EncodeResult(nil, "VEER.EXAMPLE", cell.UnknownModel.Errorf("there is no model named \"bp\""))
+	fmt.Println(e)
 	// Output:
-	// [[1.5],[{"error":"#N/A","message":"row 2 is blank"}],["ok"]]
-	// #REF!
+	// [[1.5],[{"error":"#N/A","message":"VEER.EXAMPLE: row 2: the age is blank"}],["ok"]]
+	// #REF!: VEER.EXAMPLE: there is no model named "bp"
+}
+
+// Failures map to codes by the contract, whatever the wording.
+func ExampleFailure() {
+	e := cell.OutsideReference.Errorf("age %g is outside the reference range 25 to 65", 70.0)
+	fmt.Println(e.Code, cell.BlankInput.Code(), cell.Busy.Code())
+	fmt.Println(e.In("VEER.ZSCORE"))
+	// Output:
+	// #NUM! #N/A #BUSY!
+	// #NUM!: VEER.ZSCORE: age 70 is outside the reference range 25 to 65
 }
 
 func ExampleArgs_Numbers() {
@@ -74,5 +87,5 @@ func ExampleArgs_Numbers() {
 	v, _ := cell.ValueOf([]any{1.0, nil, "x"})
 	_, err := cell.NewArgs(f, v).Numbers(0, cell.PolicyMissing)
 	fmt.Println(err)
-	// Output: #VALUE!: argument 'values' of VEER.EXAMPLE.Z, row 3: expected a number; got text "x" (blank cells are allowed and give #N/A for their row; text and TRUE/FALSE are not)
+	// Output: #VALUE!: argument 'values', row 3: expected a number; got text "x" (blank cells are allowed and give #N/A for their row; text and TRUE/FALSE are not)
 }

@@ -207,7 +207,7 @@ type FuncInfo struct {
 type Listing struct {
 	Functions []FuncInfo `json:"functions"`
 	// Codes lists the error codes cells may show and what they mean.
-	Codes map[string]string `json:"codes"`
+	Codes map[Code]string `json:"codes"`
 }
 
 // Info returns the function's listing entry.
@@ -235,20 +235,6 @@ func (c *Catalogue) Listing() Listing {
 
 // MarshalJSON encodes the listing.
 func (c *Catalogue) MarshalJSON() ([]byte, error) { return json.Marshal(c.Listing()) }
-
-// CodeMeanings returns veer's error codes with a one-line meaning each.
-func CodeMeanings() map[string]string {
-	return map[string]string{
-		CodeValue: "an argument has the wrong type, count or content",
-		CodeNA:    "a value is not available (blank or error input row, time or group outside the model)",
-		CodeNum:   "a number is out of range or a computation did not converge",
-		CodeName:  "unknown function name",
-		CodeRef:   "unknown, deleted or read-only model",
-		CodeDiv0:  "division by zero",
-		CodeNull:  "a required range is empty",
-		CodeBusy:  "the server could not finish within its limits (busy, time limit, cancelled, shutting down); recalculate later",
-	}
-}
 
 // ArgName names argument i (0-based) of f for messages: "'values'" or, past
 // the declared parameters, "argument 7".

@@ -116,7 +116,7 @@ func TestCatalogueLookupAndListing(t *testing.T) {
 	if o := l.Functions[0].Options; len(o) != 2 || o[0].Name != "side" || strings.Join(o[0].Choices, ",") != "up,down,both" {
 		t.Errorf("options = %+v", o)
 	}
-	if l.Functions[0].Result != "value" || l.Codes[CodeNA] == "" {
+	if l.Functions[0].Result != "value" || l.Codes[string(CodeNA)] == "" {
 		t.Errorf("listing = %s", b)
 	}
 }

@@ -115,7 +115,7 @@ func FuzzCoercion(f *testing.F) {
 			v, _ := RangeValue(rows)
 			ParseOptions("VEER.F", []string{OptionSide, OptionLambda, OptionSerial, OptionGroup}, v, "'options'")
 		}
-		EncodeResult(nil, cells)
+		EncodeResult(nil, "", cells)
 	})
 }
 

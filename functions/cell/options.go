@@ -82,7 +82,7 @@ var sharedOptions = []Option{
 	{Name: OptionGroup, Type: OptText, Help: "group (for example sex or job group) whose reference curve is used"},
 	{Name: OptionUnit, Type: OptNumber, Help: "time unit, in years, of the gap-aware EWMA weight 1-(1-lambda)^(gap/unit)"},
 	{Name: OptionRestart, Type: OptBool, Help: "on: the chart statistic starts again after a signal; off: it carries on"},
-	{Name: OptionExtrapolate, Type: OptBool, Help: "on: answer times outside the reference age range from the nearest end of the curves; off: #N/A there"},
+	{Name: OptionExtrapolate, Type: OptBool, Help: "on: answer times outside the reference age range from the nearest end of the curves; off: " + string(OutsideReference.Code()) + " there"},
 	{Name: OptionBandwidth, Type: OptNumber, Help: "smoothing bandwidth of the reference curves, in years; 0 or absent: chosen by cross-validation"},
 	{Name: OptionMinWorkers, Type: OptNumber, Help: "fewest reference workers a group needs to get its own curves"},
 	{Name: OptionOnset, Type: OptNumber, Help: "years after the first exam at which a sustained shift starts"},
@@ -187,7 +187,7 @@ func (o Options) Names() []string {
 // An unknown option is an error listing the known ones; so is an option given
 // twice or a value of the wrong type. argName names the argument in messages.
 func ParseOptions(fn string, allowed []string, v Value, argName string) (Options, error) {
-	p := optParser{fn: fn, allowed: allowed, arg: argName, o: Options{fn: fn, allowed: allowed, vals: map[string]Cell{}}}
+	p := optParser{allowed: allowed, arg: argName, o: Options{fn: fn, allowed: allowed, vals: map[string]Cell{}}}
 	if v.IsMissing() {
 		return p.o, nil
 	}
@@ -196,7 +196,7 @@ func ParseOptions(fn string, allowed []string, v Value, argName string) (Options
 		case KindText:
 			return p.o, p.text(c.Str, "")
 		case KindError:
-			return p.o, Errorf(c.Str, "argument %s of %s is the error %s", argName, fn, c.Str)
+			return p.o, Errorf(Code(c.Str), "argument %s is the error %s", argName, c.Str)
 		}
 		return p.o, p.shapeError()
 	}
@@ -212,7 +212,7 @@ func ParseOptions(fn string, allowed []string, v Value, argName string) (Options
 			}
 			where := "row " + strconv.Itoa(r+1)
 			if name.Kind != KindText || strings.TrimSpace(name.Str) == "" {
-				return p.o, ValueError("argument %s of %s, %s: the first column must hold an option name; got %s", argName, fn, where, name)
+				return p.o, WrongArgument.Errorf("argument %s, %s: the first column must hold an option name; got %s", argName, where, name)
 			}
 			if err := p.set(name.Str, val, where); err != nil {
 				return p.o, err
@@ -231,9 +231,9 @@ func ParseOptions(fn string, allowed []string, v Value, argName string) (Options
 						return p.o, err
 					}
 				case KindError:
-					return p.o, Errorf(cl.Str, "argument %s of %s, %s: the error %s", argName, fn, where, cl.Str)
+					return p.o, Errorf(Code(cl.Str), "argument %s, %s: the error %s", argName, where, cl.Str)
 				default:
-					return p.o, ValueError("argument %s of %s, %s: expected text like \"side=up\"; got %s", argName, fn, where, cl)
+					return p.o, WrongArgument.Errorf("argument %s, %s: expected text like \"side=up\"; got %s", argName, where, cl)
 				}
 			}
 		}
@@ -243,17 +243,17 @@ func ParseOptions(fn string, allowed []string, v Value, argName string) (Options
 }
 
 type optParser struct {
-	fn, arg string
+	arg     string
 	allowed []string
 	o       Options
 }
 
 func (p *optParser) shapeError() *Error {
-	return ValueError("argument %s of %s: options must be text like \"side=up; allowance=0.5\" or a two-column range of names and values", p.arg, p.fn)
+	return WrongArgument.Errorf("argument %s: options must be text like \"side=up; allowance=0.5\" or a two-column range of names and values", p.arg)
 }
 
 func (p *optParser) prefix(where string) string {
-	s := "argument " + p.arg + " of " + p.fn
+	s := "argument " + p.arg
 	if where != "" {
 		s += ", " + where
 	}
@@ -269,7 +269,7 @@ func (p *optParser) text(s, where string) error {
 		}
 		name, val, ok := strings.Cut(piece, "=")
 		if !ok {
-			return ValueError("%s: %s has no value; write name=value, e.g. \"side=up\"", p.prefix(where), quoteShort(piece))
+			return WrongArgument.Errorf("%s: %s has no value; write name=value, e.g. \"side=up\"", p.prefix(where), quoteShort(piece))
 		}
 		if err := p.set(name, TextCell(strings.TrimSpace(val)), where); err != nil {
 			return err
@@ -290,23 +290,23 @@ func (p *optParser) set(rawName string, val Cell, where string) error {
 	}
 	if !known {
 		if len(p.allowed) == 0 {
-			return ValueError("%s: unknown option %s; %s takes no options", p.prefix(where), quoteShort(name), p.fn)
+			return WrongArgument.Errorf("%s: unknown option %s; the function takes no options", p.prefix(where), quoteShort(name))
 		}
-		return ValueError("%s: unknown option %s; known options: %s", p.prefix(where), quoteShort(name), strings.Join(p.allowed, ", "))
+		return WrongArgument.Errorf("%s: unknown option %s; known options: %s", p.prefix(where), quoteShort(name), strings.Join(p.allowed, ", "))
 	}
 	if _, dup := p.o.vals[name]; dup {
-		return ValueError("%s: option %q is given twice", p.prefix(where), name)
+		return WrongArgument.Errorf("%s: option %q is given twice", p.prefix(where), name)
 	}
 	decl, _ := LookupOption(name)
 	if val.Kind == KindError {
-		return Errorf(val.Str, "%s: option %q is the error %s", p.prefix(where), name, val.Str)
+		return Errorf(Code(val.Str), "%s: option %q is the error %s", p.prefix(where), name, val.Str)
 	}
 	if val.Kind == KindBlank || (val.Kind == KindText && strings.TrimSpace(val.Str) == "") {
-		return ValueError("%s: option %q has no value", p.prefix(where), name)
+		return WrongArgument.Errorf("%s: option %q has no value", p.prefix(where), name)
 	}
 	c, err := coerceOption(decl, val)
 	if err != nil {
-		return ValueError("%s: %s", p.prefix(where), err.Message)
+		return WrongArgument.Errorf("%s: %s", p.prefix(where), err.Message)
 	}
 	p.o.vals[name] = c
 	return nil
@@ -327,12 +327,12 @@ func coerceOption(decl Option, v Cell) (Cell, *Error) {
 				return NumberCell(f), nil
 			}
 		}
-		return Cell{}, ValueError("option %q must be a number; got %s", decl.Name, v)
+		return Cell{}, WrongArgument.Errorf("option %q must be a number; got %s", decl.Name, v)
 	case OptBool:
 		if b, ok := boolOf(v); ok {
 			return BoolCell(b), nil
 		}
-		return Cell{}, ValueError("option %q must be on or off; got %s", decl.Name, v)
+		return Cell{}, WrongArgument.Errorf("option %q must be on or off; got %s", decl.Name, v)
 	case OptChoice:
 		if v.Kind == KindText {
 			s := lowerASCII(strings.TrimSpace(v.Str))
@@ -342,7 +342,7 @@ func coerceOption(decl Option, v Cell) (Cell, *Error) {
 				}
 			}
 		}
-		return Cell{}, ValueError("option %q must be one of %s; got %s", decl.Name, strings.Join(decl.Choices, ", "), v)
+		return Cell{}, WrongArgument.Errorf("option %q must be one of %s; got %s", decl.Name, strings.Join(decl.Choices, ", "), v)
 	case OptText:
 		switch v.Kind {
 		case KindText:
@@ -350,7 +350,7 @@ func coerceOption(decl Option, v Cell) (Cell, *Error) {
 		case KindNumber:
 			return TextCell(FormatNumber(v.Num)), nil
 		}
-		return Cell{}, ValueError("option %q must be text; got %s", decl.Name, v)
+		return Cell{}, WrongArgument.Errorf("option %q must be text; got %s", decl.Name, v)
 	}
 	panic("cell: option " + decl.Name + " has unknown type " + decl.Type)
 }

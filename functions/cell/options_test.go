@@ -18,7 +18,7 @@ func TestParseOptions(t *testing.T) {
 		name string
 		in   any
 		want want
-		code string
+		code Code
 		part string
 	}{
 		{"absent", nil, def, "", ""},
@@ -36,10 +36,10 @@ func TestParseOptions(t *testing.T) {
 		{"no value", "side", def, CodeValue, `"side" has no value`},
 		{"empty value", "side=", def, CodeValue, `option "side" has no value`},
 		{"range name not text", [][]any{{1.0, "up"}}, def, CodeValue, "row 1: the first column must hold an option name"},
-		{"range value error", [][]any{{"side", NAError("")}}, def, CodeNA, "is the error #N/A"},
+		{"range value error", [][]any{{"side", BlankInput.Errorf("")}}, def, CodeNA, "is the error #N/A"},
 		{"scalar number", 3.0, def, CodeValue, "options must be text like"},
 		{"3 columns", [][]any{{"a", "b", "c"}, {"a", "b", "c"}}, def, CodeValue, "options must be text like"},
-		{"error cell", NAError(""), def, CodeNA, ""},
+		{"error cell", BlankInput.Errorf(""), def, CodeNA, ""},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -49,8 +49,11 @@ func TestParseOptions(t *testing.T) {
 				if e == nil || e.Code != tt.code || !strings.Contains(e.Message, tt.part) {
 					t.Fatalf("error = %v; want %s containing %q", err, tt.code, tt.part)
 				}
-				if !strings.Contains(e.Message, "argument 'options' of VEER.TEST.O") {
+				if !strings.Contains(e.Message, "argument 'options'") {
 					t.Errorf("message %q does not name the argument", e.Message)
+				}
+				if strings.Contains(e.Message, "VEER.TEST.O") {
+					t.Errorf("message %q names the function; the dispatcher adds it", e.Message)
 				}
 				return
 			}
@@ -67,7 +70,7 @@ func TestParseOptions(t *testing.T) {
 
 func TestOptionsNoneAllowed(t *testing.T) {
 	_, err := ParseOptions("VEER.TEST.O", nil, mustValue(t, "side=up"), "'options'")
-	if e := AsError(err); e == nil || !strings.Contains(e.Message, "VEER.TEST.O takes no options") {
+	if e := AsError(err); e == nil || !strings.Contains(e.Message, "the function takes no options") {
 		t.Errorf("error = %v", err)
 	}
 }
@@ -92,7 +95,7 @@ func TestArgsOptions(t *testing.T) {
 	f := argFunc()
 	a := NewArgs(f, mustValue(t, 1.0), mustValue(t, 1.0), Value{}, Value{}, mustValue(t, "chart=ewma"))
 	_, err := a.Options(4)
-	if e := AsError(err); e == nil || !strings.Contains(e.Message, "argument 'options' of VEER.TEST.ARGS: unknown option \"chart\"; known options: side, lambda, serial") {
+	if e := AsError(err); e == nil || !strings.Contains(e.Message, "argument 'options': unknown option \"chart\"; known options: side, lambda, serial") {
 		t.Errorf("error = %v", err)
 	}
 }

@@ -59,7 +59,7 @@ func BoolCell(b bool) Cell { return Cell{Kind: KindBool, B: b} }
 // ErrorCell returns an error cell with the code normalised by NormalizeCode.
 func ErrorCell(code string) Cell {
 	c, _ := NormalizeCode(code)
-	return Cell{Kind: KindError, Str: c}
+	return Cell{Kind: KindError, Str: string(c)}
 }
 
 // IsBlank reports whether c is blank.
@@ -138,7 +138,7 @@ func ColumnValue(cells []Cell) Value {
 // (len(flat) must be rows*cols). The Value keeps flat (no copy).
 func BlockValue(flat []Cell, rows, cols int) (Value, error) {
 	if rows < 0 || cols < 0 || len(flat) != rows*cols {
-		return Value{}, ValueError("a %dx%d range needs %d cells; got %d", rows, cols, rows*cols, len(flat))
+		return Value{}, WrongArgument.Errorf("a %dx%d range needs %d cells; got %d", rows, cols, rows*cols, len(flat))
 	}
 	if rows == 0 || cols == 0 {
 		return Value{kind: valueRange}, nil
@@ -156,7 +156,7 @@ func RangeValue(rows [][]Cell) (Value, error) {
 		if cols < 0 {
 			cols = len(r)
 		} else if len(r) != cols {
-			return Value{}, ValueError("the range is not rectangular: row %d has %d cells but row 1 has %d", i+1, len(r), cols)
+			return Value{}, WrongArgument.Errorf("the range is not rectangular: row %d has %d cells but row 1 has %d", i+1, len(r), cols)
 		}
 		n += len(r)
 	}
@@ -322,7 +322,7 @@ func ValueOf(x any) (Value, error) {
 			for j, e := range r {
 				c, err := cellOf(e)
 				if err != nil {
-					return Value{}, ValueError("row %d, column %d: %s", i+1, j+1, err.Message)
+					return Value{}, WrongArgument.Errorf("row %d, column %d: %s", i+1, j+1, err.Message)
 				}
 				rows[i][j] = c
 			}
@@ -349,11 +349,11 @@ func sliceValue(t []any) (Value, error) {
 		cells := make([]Cell, len(t))
 		for i, e := range t {
 			if _, ok := e.([]any); ok {
-				return Value{}, ValueError("the array mixes single cells and rows (element %d is a row, element 1 is a cell)", i+1)
+				return Value{}, WrongArgument.Errorf("the array mixes single cells and rows (element %d is a row, element 1 is a cell)", i+1)
 			}
 			c, err := cellOf(e)
 			if err != nil {
-				return Value{}, ValueError("row %d: %s", i+1, err.Message)
+				return Value{}, WrongArgument.Errorf("row %d: %s", i+1, err.Message)
 			}
 			cells[i] = c
 		}
@@ -363,16 +363,16 @@ func sliceValue(t []any) (Value, error) {
 	for i, e := range t {
 		r, ok := e.([]any)
 		if !ok {
-			return Value{}, ValueError("the array mixes rows and single cells (element %d is a cell, element 1 is a row)", i+1)
+			return Value{}, WrongArgument.Errorf("the array mixes rows and single cells (element %d is a cell, element 1 is a row)", i+1)
 		}
 		rows[i] = make([]Cell, len(r))
 		for j, x := range r {
 			if _, deep := x.([]any); deep {
-				return Value{}, ValueError("row %d, column %d: arrays nest at most two deep (rows of cells)", i+1, j+1)
+				return Value{}, WrongArgument.Errorf("row %d, column %d: arrays nest at most two deep (rows of cells)", i+1, j+1)
 			}
 			c, err := cellOf(x)
 			if err != nil {
-				return Value{}, ValueError("row %d, column %d: %s", i+1, j+1, err.Message)
+				return Value{}, WrongArgument.Errorf("row %d, column %d: %s", i+1, j+1, err.Message)
 			}
 			rows[i][j] = c
 		}
@@ -406,7 +406,7 @@ func cellOf(x any) (Cell, *Error) {
 	case json.Number:
 		f, err := strconv.ParseFloat(string(t), 64)
 		if err != nil || math.IsInf(f, 0) {
-			return Cell{}, ValueError("%s is not a number a spreadsheet can hold", string(t))
+			return Cell{}, WrongArgument.Errorf("%s is not a number a spreadsheet can hold", string(t))
 		}
 		return NumberCell(f), nil
 	case string:
@@ -417,30 +417,30 @@ func cellOf(x any) (Cell, *Error) {
 		if t == nil {
 			return Cell{}, nil
 		}
-		return ErrorCell(t.Code), nil
+		return ErrorCell(string(t.Code)), nil
 	case Error:
-		return ErrorCell(t.Code), nil
+		return ErrorCell(string(t.Code)), nil
 	case map[string]any:
 		return errorObjectCell(t)
 	}
-	return Cell{}, ValueError("a cell cannot hold a Go %T", x)
+	return Cell{}, WrongArgument.Errorf("a cell cannot hold a Go %T", x)
 }
 
 // errorObjectCell converts {"error": "#N/A"} (with an optional "message").
 func errorObjectCell(m map[string]any) (Cell, *Error) {
 	code, ok := m["error"].(string)
 	if !ok {
-		return Cell{}, ValueError(`an object in a cell must be an error value like {"error": "#N/A"}`)
+		return Cell{}, WrongArgument.Errorf(`an object in a cell must be an error value like {"error": "#N/A"}`)
 	}
 	for k, v := range m {
 		switch k {
 		case "error":
 		case "message":
 			if _, ok := v.(string); !ok {
-				return Cell{}, ValueError(`the "message" of an error value must be text`)
+				return Cell{}, WrongArgument.Errorf(`the "message" of an error value must be text`)
 			}
 		default:
-			return Cell{}, ValueError(`an error value has only "error" and "message" fields, not %q`, k)
+			return Cell{}, WrongArgument.Errorf(`an error value has only "error" and "message" fields, not %q`, k)
 		}
 	}
 	return ErrorCell(code), nil
@@ -460,7 +460,7 @@ func (c *Cell) UnmarshalJSON(data []byte) error {
 		return err
 	}
 	if _, ok := x.([]any); ok {
-		return ValueError("a cell cannot hold an array")
+		return WrongArgument.Errorf("a cell cannot hold an array")
 	}
 	v, err := cellOf(x)
 	if err != nil {

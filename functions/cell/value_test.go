@@ -14,7 +14,7 @@ import (
 func TestNormalizeCode(t *testing.T) {
 	tests := []struct {
 		in    string
-		want  string
+		want  Code
 		known bool
 	}{
 		{"#N/A", CodeNA, true},
@@ -35,11 +35,11 @@ func TestNormalizeCode(t *testing.T) {
 }
 
 func TestAsError(t *testing.T) {
-	na := NAError("time 90 is outside the reference range")
+	na := BlankInput.Errorf("time 90 is outside the reference range")
 	tests := []struct {
 		name     string
 		in       error
-		wantCode string
+		wantCode Code
 		wantMsg  string
 	}{
 		{"nil", nil, "", ""},
@@ -63,7 +63,7 @@ func TestAsError(t *testing.T) {
 			}
 		})
 	}
-	if e := NumError("x %d", 3); e.Error() != "#NUM!: x 3" {
+	if e := OutOfRange.Errorf("x %d", 3); e.Error() != "#NUM!: x 3" {
 		t.Errorf("Error() = %q", e.Error())
 	}
 }
@@ -82,7 +82,7 @@ func TestValueUnmarshalJSON(t *testing.T) {
 		{`null`, [][]Cell{{{}}}, true, ""},
 		{`{"error":"#N/A"}`, [][]Cell{{ErrorCell("#N/A")}}, true, ""},
 		{`{"error":"#n/a","message":"x"}`, [][]Cell{{ErrorCell("#N/A")}}, true, ""},
-		{`{"error":"#FOO"}`, [][]Cell{{ErrorCell(CodeValue)}}, true, ""},
+		{`{"error":"#FOO"}`, [][]Cell{{ErrorCell(string(CodeValue))}}, true, ""},
 		{`{"error":5}`, nil, false, "error value"},
 		{`{"code":"#N/A"}`, nil, false, "error value"},
 		{`{"error":"#N/A","x":1}`, nil, false, `not "x"`},
@@ -148,7 +148,7 @@ func TestValueOf(t *testing.T) {
 		{[]any{1.0, "a", nil}, 3, 1, false},
 		{[]any{[]any{1.0, 2.0}}, 1, 2, false},
 		{[][]any{{1, "a"}}, 1, 2, false},
-		{NAError("x"), 1, 1, false},
+		{BlankInput.Errorf("x"), 1, 1, false},
 	}
 	for _, tt := range tests {
 		v, err := ValueOf(tt.in)
@@ -196,7 +196,7 @@ func TestEncodeResult(t *testing.T) {
 		name string
 		in   any
 		want string // JSON the output must be equal to after decoding
-		code string // or the error code
+		code Code   // or the error code
 	}{
 		{"nil", nil, `null`, ""},
 		{"number", 2.5, `2.5`, ""},
@@ -205,11 +205,11 @@ func TestEncodeResult(t *testing.T) {
 		{"bool", true, `true`, ""},
 		{"NaN", math.NaN(), "", CodeNum},
 		{"Inf", math.Inf(1), "", CodeNum},
-		{"error", NAError("gone"), "", CodeNA},
+		{"error", BlankInput.Errorf("gone"), "", CodeNA},
 		{"error cell", ErrorCell("#DIV/0!"), "", CodeDiv0},
 		{"column", []float64{1, 2.5, math.NaN()}, `[[1],[2.5],[{"error":"#NUM!","message":"not a finite number"}]]`, ""},
 		{"text column", []string{"a", "b"}, `[["a"],["b"]]`, ""},
-		{"any column", []any{1.0, "x", nil, NAError("row 3 is blank")}, `[[1],["x"],[null],[{"error":"#N/A","message":"row 3 is blank"}]]`, ""},
+		{"any column", []any{1.0, "x", nil, BlankInput.Errorf("row 3 is blank")}, `[[1],["x"],[null],[{"error":"#N/A","message":"row 3 is blank"}]]`, ""},
 		{"table", [][]any{{"id", "z"}, {"w1", 0.5}}, `[["id","z"],["w1",0.5]]`, ""},
 		{"float table", [][]float64{{1, 2}, {3, 4}}, `[[1,2],[3,4]]`, ""},
 		{"rows as []any", []any{[]any{1.0, 2.0}, []float64{3, 4}}, `[[1,2],[3,4]]`, ""},
@@ -219,7 +219,7 @@ func TestEncodeResult(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			b, e := EncodeResult(nil, tt.in)
+			b, e := EncodeResult(nil, "", tt.in)
 			if tt.code != "" {
 				if e == nil || e.Code != tt.code {
 					t.Fatalf("EncodeResult = %s, %v; want error %s", b, e, tt.code)

@@ -57,27 +57,28 @@ func (s Spec) Validate() error {
 	switch s.Kind {
 	case CUSUM, EWMA:
 	default:
-		return fmt.Errorf("chart: unknown chart kind %q: use %q or %q", s.Kind, CUSUM, EWMA)
+		return &SettingError{Setting: "chart", Value: string(s.Kind), Want: fmt.Sprintf("%q or %q", CUSUM, EWMA)}
 	}
 	switch s.Side {
 	case Up, Down, Both:
 	default:
-		return fmt.Errorf("chart: unknown side %q: use %q, %q or %q", s.Side, Up, Down, Both)
+		return &SettingError{Setting: "side", Value: string(s.Side), Want: fmt.Sprintf("%q, %q or %q", Up, Down, Both)}
 	}
 	if s.Kind == CUSUM && !(s.Allowance >= 0 && !math.IsInf(s.Allowance, 1)) {
-		return fmt.Errorf("chart: allowance (k) must be a number 0 or more (in SDs), got %v", s.Allowance)
+		return &SettingError{Setting: "allowance", Value: s.Allowance, Want: "a number 0 or more (in SDs)"}
 	}
 	if s.Kind == EWMA && !(s.Lambda > 0 && s.Lambda <= 1) {
-		return fmt.Errorf("chart: lambda must be more than 0 and at most 1, got %v", s.Lambda)
+		return &SettingError{Setting: "lambda", Value: s.Lambda, Want: "more than 0 and at most 1"}
 	}
 	if !(s.Unit >= 0 && !math.IsInf(s.Unit, 1)) {
-		return fmt.Errorf("chart: unit must be a positive number of years (0 means 1 year), got %v", s.Unit)
+		return &SettingError{Setting: "unit", Value: s.Unit, Want: "a positive number of years (0 means 1 year)"}
 	}
 	if !(s.HeadStart >= 0 && s.HeadStart < 1) {
-		return fmt.Errorf("chart: head start must be a fraction of the limit from 0 up to (not including) 1, got %v", s.HeadStart)
+		return &SettingError{Setting: "headstart", Value: s.HeadStart, Want: "a fraction of the limit from 0 up to (not including) 1"}
 	}
 	if s.Kind == EWMA && s.Side == Both && s.HeadStart != 0 {
-		return fmt.Errorf("chart: a head start is available for a one-sided EWMA only (side %q or %q); set head start to 0 for side %q", Up, Down, Both)
+		return &SettingError{Setting: "headstart", Value: s.HeadStart,
+			Want: fmt.Sprintf("0 for an EWMA on side %q (a head start is available for a one-sided EWMA only, side %q or %q)", Both, Up, Down)}
 	}
 	return nil
 }
@@ -85,7 +86,7 @@ func (s Spec) Validate() error {
 // ValidateLimit reports whether h is usable as a control limit.
 func ValidateLimit(h float64) error {
 	if !(h > 0) || math.IsInf(h, 1) {
-		return fmt.Errorf("chart: the control limit must be a positive number, got %v", h)
+		return &SettingError{Setting: "limit", Value: h, Want: "a positive number"}
 	}
 	return nil
 }

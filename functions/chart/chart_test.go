@@ -2,6 +2,7 @@ package chart
 
 import (
 	"encoding/json"
+	"errors"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -56,7 +57,7 @@ func TestValidate(t *testing.T) {
 	tests := []struct {
 		name string
 		spec Spec
-		want string // "" for valid
+		want string // the setting at fault, "" for valid
 	}{
 		{"default", DefaultSpec(), ""},
 		{"k = 0", Spec{Kind: CUSUM, Side: Both}, ""},
@@ -66,23 +67,27 @@ func TestValidate(t *testing.T) {
 		{"lambda 0", Spec{Kind: EWMA, Side: Up}, "lambda"},
 		{"lambda negative", Spec{Kind: EWMA, Side: Up, Lambda: -0.2}, "lambda"},
 		{"lambda above 1", Spec{Kind: EWMA, Side: Up, Lambda: 1.01}, "lambda"},
-		{"unknown kind", Spec{Kind: "shewhart", Side: Up}, "unknown chart kind"},
-		{"empty kind", Spec{Side: Up}, "unknown chart kind"},
-		{"unknown side", Spec{Kind: CUSUM, Side: "upper"}, "unknown side"},
+		{"unknown kind", Spec{Kind: "shewhart", Side: Up}, "chart"},
+		{"empty kind", Spec{Side: Up}, "chart"},
+		{"unknown side", Spec{Kind: CUSUM, Side: "upper"}, "side"},
 		{"negative unit", Spec{Kind: EWMA, Side: Up, Lambda: 0.1, Unit: -1}, "unit"},
-		{"head start 1", Spec{Kind: CUSUM, Side: Up, HeadStart: 1}, "head start"},
-		{"head start negative", Spec{Kind: CUSUM, Side: Up, HeadStart: -0.5}, "head start"},
-		{"two-sided EWMA head start", Spec{Kind: EWMA, Side: Both, Lambda: 0.1, HeadStart: 0.5}, "one-sided EWMA"},
+		{"head start 1", Spec{Kind: CUSUM, Side: Up, HeadStart: 1}, "headstart"},
+		{"head start negative", Spec{Kind: CUSUM, Side: Up, HeadStart: -0.5}, "headstart"},
+		{"two-sided EWMA head start", Spec{Kind: EWMA, Side: Both, Lambda: 0.1, HeadStart: 0.5}, "headstart"},
 	}
 	for _, tc := range tests {
 		err := tc.spec.Validate()
-		if tc.want == "" && err != nil || tc.want != "" && (err == nil || !strings.Contains(err.Error(), tc.want)) {
-			t.Errorf("%s: error %v, want %q", tc.name, err, tc.want)
+		var se *SettingError
+		if tc.want == "" && err != nil || tc.want != "" && (!errors.As(err, &se) || se.Setting != tc.want || !errors.Is(err, ErrSetting)) {
+			t.Errorf("%s: error %#v, want a setting error about %q", tc.name, err, tc.want)
+		}
+		if se != nil && !strings.HasPrefix(err.Error(), se.Setting+" must be ") {
+			t.Errorf("%s: message %q", tc.name, err)
 		}
 	}
 	for _, h := range []float64{0, -1, math.NaN(), math.Inf(1)} {
-		if ValidateLimit(h) == nil {
-			t.Errorf("limit %v accepted", h)
+		if err := ValidateLimit(h); !errors.Is(err, ErrSetting) {
+			t.Errorf("limit %v: %v", h, err)
 		}
 	}
 }

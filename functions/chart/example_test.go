@@ -24,7 +24,7 @@ func ExampleRun() {
 func ExampleSpec_Validate() {
 	fmt.Println(chart.Spec{Kind: "ewma", Side: "both", Lambda: 1.5}.Validate())
 	// Output:
-	// chart: lambda must be more than 0 and at most 1, got 1.5
+	// lambda must be more than 0 and at most 1, got 1.5
 }
 
 func ExampleSpec_Weight() {

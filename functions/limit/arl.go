@@ -1,8 +1,6 @@
 package limit
 
 import (
-	"errors"
-	"fmt"
 	"math"
 
 	"gonum.org/v1/gonum/integrate/quad"
@@ -207,7 +205,7 @@ func newCalc(spec chart.Spec, gap float64) (*calc, error) {
 		gap = spec.UnitOrDefault()
 	}
 	if !(gap > 0) || math.IsInf(gap, 1) {
-		return nil, fmt.Errorf("limit: the gap between exams must be a positive number of years, got %v", gap)
+		return nil, &chart.SettingError{Setting: "gap", Value: gap, Want: "a positive number of years"}
 	}
 	return &calc{spec: spec, gap: gap}, nil
 }
@@ -320,7 +318,7 @@ func ARL(spec chart.Spec, h, mu, gap float64) (float64, error) {
 		return 0, err
 	}
 	if math.IsNaN(mu) || math.IsInf(mu, 0) {
-		return 0, fmt.Errorf("limit: the shift must be a finite number of SDs, got %v", mu)
+		return 0, &chart.SettingError{Setting: "shift", Value: mu, Want: "a finite number of SDs"}
 	}
 	return c.arl(h, mu), nil
 }
@@ -330,10 +328,6 @@ const (
 	minH = 1e-3
 	maxH = 60
 )
-
-// ErrTargetTooShort is returned (wrapped) when no positive limit gives an
-// in-control ARL as short as requested.
-var ErrTargetTooShort = errors.New("target too short")
 
 // Solve returns the limit h at which the in-control ARL (i.i.d. N(0,1)
 // values at equal gaps of gap years, 0 meaning the spec's unit) equals arl0
@@ -345,13 +339,13 @@ func Solve(spec chart.Spec, arl0, gap float64) (float64, error) {
 		return 0, err
 	}
 	if !(arl0 > 1) || math.IsInf(arl0, 1) {
-		return 0, fmt.Errorf("limit: the in-control average run length must be a number above 1 exam, got %v: %w", arl0, ErrTargetTooShort)
+		return 0, reachErrorf(ErrTargetTooShort, "the in-control average run length must be a number above 1 exam, got %v", arl0)
 	}
 	lt := math.Log(arl0)
 	f := func(h float64) float64 { return math.Log(c.arl(h, 0)) - lt }
 	fmin := f(minH)
 	if fmin > 0 {
-		return 0, fmt.Errorf("limit: an average run length of %.4g exams is shorter than this chart can give (%.4g exams at the smallest limit): %w", arl0, math.Exp(fmin+lt), ErrTargetTooShort)
+		return 0, reachErrorf(ErrTargetTooShort, "an average run length of %.4g exams is shorter than this chart can give (%.4g exams at the smallest limit)", arl0, math.Exp(fmin+lt))
 	}
 	// Initial bracket around a rough guess.
 	h0, width := guess(spec, arl0)
@@ -364,7 +358,7 @@ func Solve(spec chart.Spec, arl0, gap float64) (float64, error) {
 	}
 	for fb < 0 {
 		if b >= maxH {
-			return 0, fmt.Errorf("limit: an average run length of %.4g exams needs a limit above %v; choose a shorter target", arl0, maxH)
+			return 0, reachErrorf(ErrTargetTooLong, "an average run length of %.4g exams needs a limit above %v; choose a shorter target", arl0, maxH)
 		}
 		a, fa = b, fb
 		b = math.Min(maxH, b*1.6)

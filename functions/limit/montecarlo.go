@@ -2,7 +2,6 @@ package limit
 
 import (
 	"errors"
-	"fmt"
 	"math"
 	"math/rand/v2"
 	"runtime"
@@ -12,9 +11,6 @@ import (
 
 	"veer/functions/chart"
 )
-
-// ErrStopped is returned when MonteCarlo.Stop ended a simulation early.
-var ErrStopped = errors.New("limit: the computation was cancelled")
 
 // Stream is one simulated worker history: each call to Next returns the gap
 // in years since the previous exam (for the first exam, since the start of
@@ -252,7 +248,7 @@ func (mc MonteCarlo) Calibrate(spec chart.Spec, target float64, ns StreamFunc, h
 		return Calibration{}, err
 	}
 	if !(target > 0) || math.IsInf(target, 1) {
-		return Calibration{}, fmt.Errorf("limit: the target must be a positive number of years, got %v", target)
+		return Calibration{}, &chart.SettingError{Setting: "target", Value: target, Want: "a positive number of years"}
 	}
 	pilotN := min(mc.Paths, 400)
 	ps := make([]path, mc.Paths)
@@ -263,7 +259,7 @@ func (mc MonteCarlo) Calibrate(spec chart.Spec, target float64, ns StreamFunc, h
 	if !ok {
 		hMax, ok = invert(ps[:pilotN], target, math.Inf(1))
 		if !ok {
-			return Calibration{}, errors.New("limit: the simulated paths never run long enough without a signal to reach the target; the target is too long for this chart and data")
+			return Calibration{}, reachErrorf(ErrTargetTooLong, "the simulated paths never run long enough without a signal to reach the target; the target is too long for this chart and data")
 		}
 		hMax *= 1.2
 	}
@@ -279,7 +275,7 @@ func (mc MonteCarlo) Calibrate(spec chart.Spec, target float64, ns StreamFunc, h
 			continue
 		}
 		if !(h > 0) {
-			return Calibration{}, fmt.Errorf("limit: a target of %.4g years is shorter than this chart can give on these data even at the smallest positive limit: %w", target, ErrTargetTooShort)
+			return Calibration{}, reachErrorf(ErrTargetTooShort, "a target of %.4g years is shorter than this chart can give on these data even at the smallest positive limit", target)
 		}
 		m, se, cens := atsAt(ps, h)
 		c := Calibration{H: h, ATS: m, SE: se, Paths: mc.Paths, Censored: cens}
@@ -294,7 +290,7 @@ func (mc MonteCarlo) Calibrate(spec chart.Spec, target float64, ns StreamFunc, h
 		}
 		return c, nil
 	}
-	return Calibration{}, errors.New("limit: could not bracket the limit for this target; the target may be too long for this chart and data")
+	return Calibration{}, reachErrorf(ErrTargetTooLong, "could not bracket the limit for this target; the target may be too long for this chart and data")
 }
 
 // RunLength is a Monte Carlo average time to signal.
@@ -322,7 +318,7 @@ func (mc MonteCarlo) Delay(spec chart.Spec, h float64, ns StreamFunc, onset floa
 		return RunLength{}, err
 	}
 	if !(onset >= 0) || math.IsInf(onset, 1) {
-		return RunLength{}, fmt.Errorf("limit: the onset must be 0 or a positive number of years, got %v", onset)
+		return RunLength{}, &chart.SettingError{Setting: "onset", Value: onset, Want: "0 or a positive number of years"}
 	}
 	times := make([]float64, mc.Paths)
 	flags := make([]int8, mc.Paths) // 0 ok, 1 early, 2 censored
@@ -399,7 +395,7 @@ func (mc MonteCarlo) Delay(spec chart.Spec, h float64, ns StreamFunc, onset floa
 	}
 	r.Paths = mc.Paths
 	if n == 0 {
-		return r, errors.New("limit: every simulated path signalled before the onset; choose an earlier onset or a higher limit")
+		return r, errors.New("every simulated path signalled before the onset; choose an earlier onset or a higher limit")
 	}
 	r.Mean = s / float64(n)
 	v := (s2 - float64(n)*r.Mean*r.Mean) / math.Max(float64(n-1), 1)

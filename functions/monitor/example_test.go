@@ -43,7 +43,7 @@ func ExampleLimit() {
 	// Output:
 	// limit 1.01 (SE 0.01), ATS 20.0 years (SE 0.3) <nil>
 	// 1-SD shift flagged after 4.8 years (SE 0.1)
-	// monitor: a target of 1 years is shorter than one mean gap between exams (1.5 years); a healthy worker would be flagged at almost every exam
+	// target must be at least one mean gap between exams (1.5 years), got 1
 }
 
 func ExampleDelay() {

@@ -44,7 +44,7 @@ func (s Settings) Validate() error {
 	switch s.Mode {
 	case Whiten, Direct:
 	default:
-		return fmt.Errorf("monitor: unknown mode %q: use %q or %q", s.Mode, Whiten, Direct)
+		return &chart.SettingError{Setting: "mode", Value: string(s.Mode), Want: fmt.Sprintf("%q or %q", Whiten, Direct)}
 	}
 	return s.Serial.Validate()
 }
@@ -209,10 +209,10 @@ func prepare(c Calibration) (*prepared, error) {
 	switch c.Method {
 	case Normal, Bootstrap:
 	default:
-		return nil, fmt.Errorf("monitor: unknown method %q: use %q or %q", c.Method, Normal, Bootstrap)
+		return nil, &chart.SettingError{Setting: "method", Value: string(c.Method), Want: fmt.Sprintf("%q or %q", Normal, Bootstrap)}
 	}
 	if c.Paths < 0 {
-		return nil, fmt.Errorf("monitor: the number of simulation paths must be positive, got %d", c.Paths)
+		return nil, &chart.SettingError{Setting: "reps", Value: c.Paths, Want: "a positive number of simulated paths"}
 	}
 	p := &prepared{c: c}
 	switch c.Horizon {
@@ -220,7 +220,7 @@ func prepare(c Calibration) (*prepared, error) {
 	case HorizonFollowUp:
 		for i, w := range c.Reference {
 			if err := serial.CheckTimes(w.Time); err != nil {
-				return nil, fmt.Errorf("monitor: reference worker %d, %w", i+1, err)
+				return nil, fmt.Errorf("reference worker %d, %w", i+1, err)
 			}
 			if len(w.Time) < 2 {
 				continue
@@ -235,13 +235,13 @@ func prepare(c Calibration) (*prepared, error) {
 			p.spans = append(p.spans, g)
 		}
 		if len(p.spans) == 0 {
-			return nil, errors.New("monitor: the follow-up horizon needs reference workers with at least two exams")
+			return nil, errors.New("the follow-up horizon needs reference workers with at least two exams")
 		}
 	default:
-		return nil, fmt.Errorf("monitor: unknown horizon %q: use %q or %q", c.Horizon, HorizonLong, HorizonFollowUp)
+		return nil, &chart.SettingError{Setting: "horizon", Value: string(c.Horizon), Want: fmt.Sprintf("%q or %q", HorizonLong, HorizonFollowUp)}
 	}
 	if c.Gap < 0 || math.IsNaN(c.Gap) || math.IsInf(c.Gap, 0) {
-		return nil, fmt.Errorf("monitor: the gap between exams must be a positive number of years, got %v", c.Gap)
+		return nil, &chart.SettingError{Setting: "gap", Value: c.Gap, Want: "a positive number of years"}
 	}
 	if c.Gap > 0 {
 		p.meanGap = c.Gap
@@ -249,13 +249,13 @@ func prepare(c Calibration) (*prepared, error) {
 		p.pool = c.Gaps
 		for i, g := range p.pool {
 			if !(g > 0) || math.IsInf(g, 0) {
-				return nil, fmt.Errorf("monitor: gap %d is %v; gaps between exams must be positive numbers of years", i+1, g)
+				return nil, fmt.Errorf("gap %d is %v; gaps between exams must be positive numbers of years", i+1, g)
 			}
 		}
 		if len(p.pool) == 0 {
 			for i, w := range c.Reference {
 				if err := serial.CheckTimes(w.Time); err != nil {
-					return nil, fmt.Errorf("monitor: reference worker %d, %w", i+1, err)
+					return nil, fmt.Errorf("reference worker %d, %w", i+1, err)
 				}
 				for j := 1; j < len(w.Time); j++ {
 					p.pool = append(p.pool, w.Time[j]-w.Time[j-1])
@@ -263,7 +263,7 @@ func prepare(c Calibration) (*prepared, error) {
 			}
 		}
 		if len(p.pool) == 0 {
-			return nil, errors.New("monitor: no gap between exams is known: give the planned gap in years, or reference workers with at least two exams")
+			return nil, errors.New("no gap between exams is known: give the planned gap in years, or reference workers with at least two exams")
 		}
 		var s float64
 		for _, g := range p.pool {
@@ -273,12 +273,12 @@ func prepare(c Calibration) (*prepared, error) {
 	}
 	if c.Method == Bootstrap {
 		if len(c.Reference) < MinBootstrapWorkers {
-			return nil, fmt.Errorf("monitor: method bootstrap needs at least %d reference workers, got %d", MinBootstrapWorkers, len(c.Reference))
+			return nil, fmt.Errorf("method bootstrap needs at least %d reference workers, got %d", MinBootstrapWorkers, len(c.Reference))
 		}
 		for i, w := range c.Reference {
 			u, err := serial.Innovations(c.Settings.Serial, w.Time, w.Z, nil)
 			if err != nil {
-				return nil, fmt.Errorf("monitor: reference worker %d, %w", i+1, err)
+				return nil, fmt.Errorf("reference worker %d, %w", i+1, err)
 			}
 			if len(u) == 0 {
 				continue
@@ -293,7 +293,7 @@ func prepare(c Calibration) (*prepared, error) {
 			p.blocks = append(p.blocks, block{g, u})
 		}
 		if len(p.blocks) < MinBootstrapWorkers {
-			return nil, fmt.Errorf("monitor: method bootstrap needs at least %d reference workers with exams, got %d", MinBootstrapWorkers, len(p.blocks))
+			return nil, fmt.Errorf("method bootstrap needs at least %d reference workers with exams, got %d", MinBootstrapWorkers, len(p.blocks))
 		}
 		// Standardise the pooled innovations to mean 0 and SD 1, as
 		// Chatterjee & Qiu (2009) standardise their in-control sample: the
@@ -312,7 +312,7 @@ func prepare(c Calibration) (*prepared, error) {
 		mean := s / n
 		sd := math.Sqrt((s2 - n*mean*mean) / (n - 1))
 		if !(sd > 0) {
-			return nil, errors.New("monitor: the reference innovations are all equal; method bootstrap needs varied reference values")
+			return nil, errors.New("the reference innovations are all equal; method bootstrap needs varied reference values")
 		}
 		for _, b := range p.blocks {
 			for j := range b.u {
@@ -484,13 +484,13 @@ func Limit(c Calibration, target float64) (LimitResult, error) {
 		return LimitResult{}, err
 	}
 	if !(target > 0) || math.IsNaN(target) {
-		return LimitResult{}, fmt.Errorf("monitor: the target must be a positive number of years, got %v", target)
+		return LimitResult{}, &chart.SettingError{Setting: "target", Value: target, Want: "a positive number of years"}
 	}
 	if target > MaxTarget {
-		return LimitResult{}, fmt.Errorf("monitor: a target of %v years is beyond any working life; use at most %d years", target, MaxTarget)
+		return LimitResult{}, &chart.SettingError{Setting: "target", Value: target, Want: fmt.Sprintf("at most %d years", MaxTarget)}
 	}
 	if target < p.meanGap {
-		return LimitResult{}, fmt.Errorf("monitor: a target of %v years is shorter than one mean gap between exams (%.3g years); a healthy worker would be flagged at almost every exam", target, p.meanGap)
+		return LimitResult{}, &chart.SettingError{Setting: "target", Value: target, Want: fmt.Sprintf("at least one mean gap between exams (%.3g years)", p.meanGap)}
 	}
 	spec := c.Settings.Chart
 	exactGap := spec.Kind == chart.CUSUM || p.constantGaps()
@@ -533,7 +533,7 @@ func Delay(c Calibration, h, shift, onset float64) (DelayResult, error) {
 		return DelayResult{}, err
 	}
 	if math.IsNaN(shift) || math.IsInf(shift, 0) {
-		return DelayResult{}, fmt.Errorf("monitor: the shift must be a finite number of SDs, got %v", shift)
+		return DelayResult{}, &chart.SettingError{Setting: "shift", Value: shift, Want: "a finite number of SDs"}
 	}
 	p.spans = nil // delays follow one worker (HorizonLong)
 	r, err := p.mc().Delay(c.Settings.Chart, h, p.streams(shift, onset), onset)

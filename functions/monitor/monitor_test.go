@@ -254,7 +254,7 @@ func TestRun(t *testing.T) {
 		{"length mismatch", set, 4, []float64{1}, []float64{0, 0}, "1 exam times for 2"},
 		{"missing z", set, 4, []float64{1, 2}, []float64{0, math.NaN()}, "exam 2"},
 		{"bad limit", set, 0, []float64{1}, []float64{0}, "limit"},
-		{"unknown mode", Settings{Chart: chart.DefaultSpec(), Mode: "raw"}, 4, []float64{1}, []float64{0}, "unknown mode"},
+		{"unknown mode", Settings{Chart: chart.DefaultSpec(), Mode: "raw"}, 4, []float64{1}, []float64{0}, "mode must be"},
 		{"negative allowance", Settings{Chart: chart.Spec{Kind: "cusum", Side: "up", Allowance: -1}, Mode: Direct}, 4, []float64{1}, []float64{0}, "allowance"},
 		{"lambda 0", Settings{Chart: chart.Spec{Kind: "ewma", Side: "up"}, Mode: Direct}, 4, []float64{1}, []float64{0}, "lambda"},
 		{"lambda 1.5", Settings{Chart: chart.Spec{Kind: "ewma", Side: "up", Lambda: 1.5}, Mode: Direct}, 4, []float64{1}, []float64{0}, "lambda"},
@@ -279,9 +279,9 @@ func TestLimitBadInput(t *testing.T) {
 		{"zero target", nil, 0, "positive"},
 		{"negative target", nil, -20, "positive"},
 		{"NaN target", nil, math.NaN(), "positive"},
-		{"target below one gap", nil, 1, "shorter than one mean gap"},
-		{"absurd target", nil, 1e7, "beyond any working life"},
-		{"unknown method", func(c Calibration) Calibration { c.Method = "exact"; return c }, 20, "unknown method"},
+		{"target below one gap", nil, 1, "at least one mean gap"},
+		{"absurd target", nil, 1e7, "at most 10000 years"},
+		{"unknown method", func(c Calibration) Calibration { c.Method = "exact"; return c }, 20, "method must be"},
 		{"negative gap", func(c Calibration) Calibration { c.Gap = -1; return c }, 20, "gap"},
 		{"no gaps known", func(c Calibration) Calibration { c.Gap = 0; return c }, 20, "no gap"},
 		{"bad gap in list", func(c Calibration) Calibration { c.Gap, c.Gaps = 0, []float64{1, 0}; return c }, 20, "gap 2"},
@@ -292,7 +292,7 @@ func TestLimitBadInput(t *testing.T) {
 			return c
 		}, 20, "lambda"},
 		{"allowance < 0", func(c Calibration) Calibration { c.Settings.Chart.Allowance = -0.5; return c }, 20, "allowance"},
-		{"unknown side", func(c Calibration) Calibration { c.Settings.Chart.Side = "upper"; return c }, 20, "unknown side"},
+		{"unknown side", func(c Calibration) Calibration { c.Settings.Chart.Side = "upper"; return c }, 20, "side must be"},
 	}
 	for _, tc := range tests {
 		c := ok

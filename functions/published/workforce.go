@@ -258,15 +258,7 @@ func meanGap(series []serial.Series, keep []bool) float64 {
 func SetSerial(phi, c float64) (serial.Params, error) {
 	p := serial.Params{Phi: phi, C: c}
 	if err := p.Validate(); err != nil {
-		return serial.Params{}, errors.New(stripPrefix(err.Error()))
+		return serial.Params{}, err
 	}
 	return p, nil
-}
-
-func stripPrefix(s string) string {
-	const pre = "serial: "
-	if len(s) > len(pre) && s[:len(pre)] == pre {
-		return s[len(pre):]
-	}
-	return s
 }

@@ -114,11 +114,7 @@ func indexRows(rows []Row) (*rowIndex, error) {
 			a, b := blk[i-1], blk[i]
 			if rows[a].Time == rows[b].Time {
 				lo, hi := min(a, b), max(a, b)
-				return nil, &RowError{
-					Rows: []int{int(lo) + 1, int(hi) + 1},
-					Reason: "both hold an exam of worker " + strconv.Quote(rows[a].Worker) + " at time " + num(rows[a].Time) +
-						"; keep one exam per worker and time (drop the repeat or average the two)",
-				}
+				return nil, &DuplicateError{Worker: rows[a].Worker, Time: rows[a].Time, Rows: [2]int{int(lo) + 1, int(hi) + 1}}
 			}
 		}
 	}

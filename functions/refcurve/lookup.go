@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"math"
 	"runtime"
-	"strconv"
 	"strings"
 	"sync"
 
@@ -22,8 +21,7 @@ func (c *Curve) place(t float64, extrapolate bool) (float64, error) {
 	}
 	if t < c.TimeMin || t > c.TimeMax {
 		if !extrapolate {
-			return 0, fmt.Errorf("time %s is outside the reference range %s–%s of %s; ask for extrapolation to allow it",
-				num(t), num(c.TimeMin), num(c.TimeMax), groupLabel(c.Group))
+			return 0, &RangeError{Group: c.Group, Time: t, Min: c.TimeMin, Max: c.TimeMax}
 		}
 		return math.Min(math.Max(t, c.TimeMin), c.TimeMax), nil
 	}
@@ -78,7 +76,7 @@ func (m *Model) Centile(group string, t, p float64, extrapolate bool) (float64, 
 	q := mean + distuv.UnitNormal.Quantile(p/100)*sd
 	y, err := m.transform().Inverse(q)
 	if err != nil {
-		return 0, fmt.Errorf("the %s centile at time %s of %s: %v", ordinal(p), num(t), groupLabel(group), err)
+		return 0, fmt.Errorf("the %s centile at time %s of %s: %w", ordinal(p), num(t), groupLabel(group), err)
 	}
 	return y, nil
 }
@@ -119,31 +117,6 @@ func (m *Model) Z(group string, t, y float64, extrapolate bool) (float64, error)
 		return 0, err
 	}
 	return (ty - mean) / sd, nil
-}
-
-// EntryError is the failure of one entry of ZMany; Index is 0-based.
-type EntryError struct {
-	Index int
-	Err   error
-}
-
-// ScoreErrors reports the entries ZMany could not score: Count of them,
-// the first few in First.
-type ScoreErrors struct {
-	Count, Total int
-	First        []EntryError
-}
-
-func (e *ScoreErrors) Error() string {
-	var b strings.Builder
-	fmt.Fprintf(&b, "%d of %d scores could not be computed", e.Count, e.Total)
-	for _, f := range e.First {
-		fmt.Fprintf(&b, "; entry %d: %v", f.Index+1, f.Err)
-	}
-	if e.Count > len(e.First) {
-		b.WriteString("; ...")
-	}
-	return b.String()
 }
 
 const maxReportedEntries = 5
@@ -311,7 +284,7 @@ func (m *Model) Residuals(rows []Row) ([]WorkerSeries, error) {
 	for i, r := range rows {
 		v, err := m.Z(r.Group, r.Time, r.Value, false)
 		if err != nil {
-			return nil, &RowError{Rows: []int{i + 1}, Reason: err.Error()}
+			return nil, &RowError{Rows: []int{i + 1}, Reason: err.Error(), Err: err}
 		}
 		z[i] = v
 	}
@@ -347,34 +320,4 @@ func (m *Model) Residuals(rows []Row) ([]WorkerSeries, error) {
 		a = b
 	}
 	return out, nil
-}
-
-// RowError is a problem with input rows. Rows are 1-based positions in the
-// slice given to Fit or Residuals (data rows, not counting a header);
-// Column is "worker", "time", "value" or "group" when one column is at
-// fault.
-type RowError struct {
-	Rows   []int
-	Column string
-	Reason string
-}
-
-func (e *RowError) Error() string {
-	var b strings.Builder
-	if len(e.Rows) == 1 {
-		b.WriteString("data row " + strconv.Itoa(e.Rows[0]))
-	} else {
-		b.WriteString("data rows ")
-		for i, r := range e.Rows {
-			if i > 0 {
-				b.WriteString(" and ")
-			}
-			b.WriteString(strconv.Itoa(r))
-		}
-	}
-	if e.Column != "" {
-		b.WriteString(", column " + e.Column)
-	}
-	b.WriteString(": " + e.Reason)
-	return b.String()
 }

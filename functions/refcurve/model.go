@@ -1,9 +1,7 @@
 package refcurve
 
 import (
-	"fmt"
 	"strconv"
-	"strings"
 
 	"veer/functions/transform"
 )
@@ -191,17 +189,11 @@ func (m *Model) curve(group string) (*Curve, error) {
 }
 
 func (m *Model) unknownGroup(group string) error {
-	if len(m.Curves) == 1 && m.Curves[0].Group == "" {
-		return fmt.Errorf("this model has no groups, so group %q is unknown; leave the group empty", group)
-	}
 	names := make([]string, len(m.Curves))
 	for i, c := range m.Curves {
-		names[i] = strconv.Quote(c.Group)
+		names[i] = c.Group
 	}
-	if group == "" {
-		return fmt.Errorf("this model has groups %s; say which group", strings.Join(names, ", "))
-	}
-	return fmt.Errorf("unknown group %q; the model has groups %s", group, strings.Join(names, ", "))
+	return &GroupError{Group: group, Groups: names}
 }
 
 func groupLabel(g string) string {

@@ -87,7 +87,7 @@ func TestFitErrors(t *testing.T) {
 		{"duplicate", with(func(r []Row) []Row {
 			r = append(r, Row{Worker: r[6].Worker, Time: r[6].Time, Value: 99, Group: r[6].Group})
 			return r
-		}), Options{}, []string{"data rows 7 and " + itoa(len(base)+1), "same", "one exam per worker and time"}},
+		}), Options{}, []string{"data rows 7 and " + itoa(len(base)+1), "same", "one exam per worker and age"}},
 		{"duplicate across groups", with(func(r []Row) []Row {
 			r = append(r, Row{Worker: r[6].Worker, Time: r[6].Time, Value: 99, Group: "other"})
 			return r

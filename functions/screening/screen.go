@@ -1,7 +1,6 @@
 package screening
 
 import (
-	"errors"
 	"fmt"
 	"math"
 	"runtime"
@@ -11,6 +10,7 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 	"veer/functions/chart"
 	"veer/functions/monitor"
+	"veer/functions/refcurve"
 	"veer/functions/serial"
 )
 
@@ -55,8 +55,8 @@ func (m *Model) monitorSettings(s Settings) (monitor.Settings, error) {
 	case SerialOff:
 		out.Serial = serial.Params{}
 	default:
-		return out, fmt.Errorf("serial must be %s, %s or %s (on means %s), not %q",
-			SerialWhiten, SerialDirect, SerialOff, SerialWhiten, s.Serial)
+		return out, &chart.SettingError{Setting: "serial", Value: s.Serial,
+			Want: fmt.Sprintf("%s, %s or %s (on means %s)", SerialWhiten, SerialDirect, SerialOff, SerialWhiten)}
 	}
 	if err := out.Validate(); err != nil {
 		return out, err
@@ -101,8 +101,10 @@ type Result struct {
 
 // Screen screens a sheet of exams against limit h. Exams may come in any
 // order; each worker's exams are ordered by age inside, and results come
-// back in the input order. Two exams of one worker at the same age are an
-// error naming both rows (rows are counted from 1).
+// back in the input order. Two exams of one worker at the same age are a
+// *refcurve.DuplicateError naming both rows (positions in exams, counted
+// from 1); an age outside the reference range without extrapolation makes
+// the *refcurve.ScoreErrors of Model.Curves.ZMany.
 func (m *Model) Screen(exams []Exam, set Settings, h float64) ([]Result, error) {
 	ms, err := m.monitorSettings(set)
 	if err != nil {
@@ -113,7 +115,7 @@ func (m *Model) Screen(exams []Exam, set Settings, h float64) ([]Result, error) 
 	}
 	n := len(exams)
 	if n == 0 {
-		return nil, errors.New("there are no exams to screen")
+		return nil, ErrNoExams
 	}
 	groups := make([]string, n)
 	times := make([]float64, n)
@@ -132,8 +134,7 @@ func (m *Model) Screen(exams []Exam, set Settings, h float64) ([]Result, error) 
 		for j := 1; j < len(idx); j++ {
 			a, b := idx[j-1], idx[j]
 			if exams[a].Time == exams[b].Time {
-				return nil, fmt.Errorf("worker %q has two exams at the same age %g (rows %d and %d); remove or merge one",
-					exams[a].Worker, exams[a].Time, min(a, b)+1, max(a, b)+1)
+				return nil, &refcurve.DuplicateError{Worker: exams[a].Worker, Time: exams[a].Time, Rows: [2]int{min(a, b) + 1, max(a, b) + 1}}
 			}
 		}
 	}
@@ -159,7 +160,7 @@ func (m *Model) Screen(exams []Exam, set Settings, h float64) ([]Result, error) 
 				if err != nil {
 					mu.Lock()
 					if first == nil {
-						first = fmt.Errorf("worker %q: %v", exams[idx[0]].Worker, err)
+						first = &WorkerError{Worker: exams[idx[0]].Worker, Err: err}
 					}
 					mu.Unlock()
 					continue
@@ -195,7 +196,7 @@ func (m *Model) Screen(exams []Exam, set Settings, h float64) ([]Result, error) 
 	for i := range out {
 		mean, sd, err := m.Curves.At(groups[i], times[i], true)
 		if err != nil {
-			return nil, fmt.Errorf("row %d: %v", i+1, err)
+			return nil, fmt.Errorf("row %d: %w", i+1, err)
 		}
 		out[i].Mean, out[i].SD = mean, sd
 		out[i].Centile = 100 * std.CDF(out[i].Z)

@@ -3,12 +3,14 @@ package screening
 import (
 	"bytes"
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
 	"strings"
 	"testing"
 
+	"veer/functions/chart"
 	"veer/functions/monitor"
 	"veer/functions/refcurve"
 	"veer/functions/serial"
@@ -143,13 +145,14 @@ func TestScreenOrderAndErrors(t *testing.T) {
 		set  func(*Settings)
 		h    float64
 		want string
+		kind error // the errors.Is kind callers map the error by
 	}{
-		{"same age twice", []Exam{{Worker: "a", Time: 40, Value: 1}, {Worker: "b", Time: 40, Value: 1}, {Worker: "a", Time: 40, Value: 2}}, nil, 1, `worker "a" has two exams at the same age 40 (rows 1 and 3)`},
-		{"empty", nil, nil, 1, "there are no exams"},
-		{"outside range", []Exam{{Worker: "a", Time: 90, Value: 1}}, nil, 1, "outside the reference range"},
-		{"bad serial", []Exam{{Worker: "a", Time: 40, Value: 1}}, func(s *Settings) { s.Serial = "sometimes" }, 1, "serial must be whiten, direct or off"},
-		{"bad limit", []Exam{{Worker: "a", Time: 40, Value: 1}}, nil, -1, "limit"},
-		{"bad allowance", []Exam{{Worker: "a", Time: 40, Value: 1}}, func(s *Settings) { s.Chart.Allowance = -1 }, 1, "allowance"},
+		{"same age twice", []Exam{{Worker: "a", Time: 40, Value: 1}, {Worker: "b", Time: 40, Value: 1}, {Worker: "a", Time: 40, Value: 2}}, nil, 1, `rows 1 and 3 hold two exams of worker "a" at the same age 40`, refcurve.ErrDuplicateExam},
+		{"empty", nil, nil, 1, "there are no exams", ErrNoExams},
+		{"outside range", []Exam{{Worker: "a", Time: 90, Value: 1}}, nil, 1, "outside the reference range", refcurve.ErrOutsideRange},
+		{"bad serial", []Exam{{Worker: "a", Time: 40, Value: 1}}, func(s *Settings) { s.Serial = "sometimes" }, 1, "serial must be whiten, direct or off", chart.ErrSetting},
+		{"bad limit", []Exam{{Worker: "a", Time: 40, Value: 1}}, nil, -1, "limit", chart.ErrSetting},
+		{"bad allowance", []Exam{{Worker: "a", Time: 40, Value: 1}}, func(s *Settings) { s.Chart.Allowance = -1 }, 1, "allowance", chart.ErrSetting},
 	}
 	for _, tc := range bad {
 		t.Run(tc.name, func(t *testing.T) {
@@ -158,10 +161,22 @@ func TestScreenOrderAndErrors(t *testing.T) {
 				tc.set(&s)
 			}
 			_, err := m.Screen(tc.in, s, tc.h)
-			if err == nil || !strings.Contains(err.Error(), tc.want) {
-				t.Errorf("error %v, want it to contain %q", err, tc.want)
+			if err == nil || !strings.Contains(err.Error(), tc.want) || !errors.Is(err, tc.kind) {
+				t.Errorf("error %v, want it to contain %q and be %v", err, tc.want, tc.kind)
 			}
 		})
+	}
+	// The duplicate carries its facts: worker, age and both rows.
+	_, err = m.Screen(bad[0].in, DefaultSettings(), 1)
+	var dup *refcurve.DuplicateError
+	if !errors.As(err, &dup) || dup.Worker != "a" || dup.Time != 40 || dup.Rows != [2]int{1, 3} {
+		t.Errorf("duplicate: %#v", err)
+	}
+	// An age outside the range carries the group, age and range.
+	_, err = m.Screen([]Exam{{Worker: "a", Time: 40, Value: 1}, {Worker: "a", Time: 90, Value: 1}}, DefaultSettings(), 1)
+	var re *refcurve.RangeError
+	if lo, hi, _ := m.Curves.Range(""); !errors.As(err, &re) || re.Time != 90 || re.Min != lo || re.Max != hi {
+		t.Errorf("outside the range: %#v", err)
 	}
 	// With extrapolation an age outside the range is screened and marked.
 	s := DefaultSettings()

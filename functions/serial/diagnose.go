@@ -42,7 +42,7 @@ func Diagnose(p Params, s []Series) (Diagnostics, error) {
 		var err error
 		u, err = Innovations(p, w.Time, w.Z, u[:0])
 		if err != nil {
-			return d, fmt.Errorf("serial: reference worker %d, %w", i+1, err)
+			return d, fmt.Errorf("reference worker %d, %w", i+1, err)
 		}
 		if len(u) == 0 {
 			continue
@@ -56,7 +56,7 @@ func Diagnose(p Params, s []Series) (Diagnostics, error) {
 	}
 	d.Exams, d.Pairs = len(all), len(xs)
 	if d.Exams < 2 {
-		return d, fmt.Errorf("serial: only %d reference exams; diagnostics need at least 2: %w", d.Exams, ErrTooFewExams)
+		return d, fmt.Errorf("only %d reference exams; diagnostics need at least 2: %w", d.Exams, ErrTooFewExams)
 	}
 	d.Mean, d.SD = stat.MeanStdDev(all, nil)
 	d.Lag1, d.Lag1P = math.NaN(), math.NaN()

@@ -72,14 +72,14 @@ type scan struct {
 // values that are not numbers.
 func checkSeries(i int, w Series) error {
 	if len(w.Time) != len(w.Z) {
-		return fmt.Errorf("serial: reference worker %d has %d exam times for %d values", i+1, len(w.Time), len(w.Z))
+		return fmt.Errorf("reference worker %d has %d exam times for %d values", i+1, len(w.Time), len(w.Z))
 	}
 	if err := CheckTimes(w.Time); err != nil {
-		return fmt.Errorf("serial: reference worker %d, %w", i+1, err)
+		return fmt.Errorf("reference worker %d, %w", i+1, err)
 	}
 	for j, z := range w.Z {
 		if math.IsNaN(z) || math.IsInf(z, 0) {
-			return fmt.Errorf("serial: reference worker %d, exam %d: the standardised value is not a number (%v)", i+1, j+1, z)
+			return fmt.Errorf("reference worker %d, exam %d: the standardised value is not a number (%v)", i+1, j+1, z)
 		}
 	}
 	return nil
@@ -223,13 +223,13 @@ func Estimate(ctx context.Context, s []Series) (Params, error) {
 		return Params{}, err
 	}
 	if sc.pairs < MinPairs {
-		return Params{}, fmt.Errorf("serial: only %d pairs of exams within workers in the reference; at least %d are needed to estimate the serial correlation", sc.pairs, MinPairs)
+		return Params{}, fmt.Errorf("only %d pairs of exams within workers in the reference; at least %d are needed to estimate the serial correlation", sc.pairs, MinPairs)
 	}
 	if sc.workers < 5 {
-		return Params{}, fmt.Errorf("serial: only %d reference workers have two or more exams; at least 5 are needed", sc.workers)
+		return Params{}, fmt.Errorf("only %d reference workers have two or more exams; at least 5 are needed", sc.workers)
 	}
 	if sc.dmax < 1.05*sc.dmin {
-		return Params{}, fmt.Errorf("serial: every pair of exams is about %.3g years apart and no worker has three exams, so the yearly correlation and the persistent share cannot be told apart", sc.dmin)
+		return Params{}, fmt.Errorf("every pair of exams is about %.3g years apart and no worker has three exams, so the yearly correlation and the persistent share cannot be told apart", sc.dmin)
 	}
 	bins, err := newGapBins(sc.dmin, sc.dmax, func(add func(x, y, d float64)) error {
 		return eachPair(ctx, s, func(_ int, x, y, d float64) { add(x, y, d) })

@@ -33,10 +33,10 @@ type Params struct {
 // Validate reports whether Phi is in [0,1) and C in [0,1].
 func (p Params) Validate() error {
 	if !(p.Phi >= 0 && p.Phi < 1) {
-		return fmt.Errorf("serial: the yearly correlation phi must be at least 0 and below 1, got %v", p.Phi)
+		return fmt.Errorf("the yearly correlation phi must be at least 0 and below 1, got %v", p.Phi)
 	}
 	if !(p.C >= 0 && p.C <= 1) {
-		return fmt.Errorf("serial: the persistent share c must be between 0 and 1, got %v", p.C)
+		return fmt.Errorf("the persistent share c must be between 0 and 1, got %v", p.C)
 	}
 	return nil
 }
@@ -200,7 +200,7 @@ func Innovations(p Params, time, z []float64, out []float64) ([]float64, error) 
 		return out, err
 	}
 	if len(time) != len(z) {
-		return out, fmt.Errorf("serial: %d exam times for %d values", len(time), len(z))
+		return out, fmt.Errorf("%d exam times for %d values", len(time), len(z))
 	}
 	if err := CheckTimes(time); err != nil {
 		return out, err

@@ -54,6 +54,10 @@ func (t Transform) String() string {
 	return t.Name
 }
 
+// ErrDomain is the kind of failure of a value outside what a transform can
+// map: a *ValueError (forward) or an *InverseError (back), for errors.Is.
+var ErrDomain = errors.New("a value the transform cannot map")
+
 // ValueError reports a value a transform cannot take. Index is the
 // 0-based position in the slice given to ForwardAll (-1 for Forward).
 type ValueError struct {
@@ -72,6 +76,31 @@ func (e *ValueError) Error() string {
 	}
 	return fmt.Sprintf("value %g%s is not positive; the %s transform needs values > 0", e.Value, where, e.Transform)
 }
+
+// Is reports whether target is ErrDomain.
+func (e *ValueError) Is(target error) bool { return target == ErrDomain }
+
+// InverseError reports a value Z on the transformed scale that no value on
+// the original scale maps to (Box-Cox with 1 + λz <= 0), or whose value
+// would overflow.
+type InverseError struct {
+	Z         float64
+	Transform Transform
+	Overflow  bool
+}
+
+func (e *InverseError) Error() string {
+	switch {
+	case math.IsNaN(e.Z) || math.IsInf(e.Z, 0):
+		return fmt.Sprintf("cannot map %g back from the %s scale", e.Z, e.Transform)
+	case e.Overflow:
+		return fmt.Sprintf("%g on the %s scale is too large to map back", e.Z, e.Transform)
+	}
+	return fmt.Sprintf("%g on the %s scale has no value on the original scale (needs 1 + lambda·z > 0)", e.Z, e.Transform)
+}
+
+// Is reports whether target is ErrDomain.
+func (e *InverseError) Is(target error) bool { return target == ErrDomain }
 
 // Forward maps y to the transformed scale. Log and Box-Cox fail on y <= 0;
 // every transform fails on NaN or ±Inf.
@@ -130,7 +159,7 @@ func (t Transform) ForwardAll(y, out []float64) error {
 // the result would overflow.
 func (t Transform) Inverse(z float64) (float64, error) {
 	if math.IsNaN(z) || math.IsInf(z, 0) {
-		return 0, fmt.Errorf("cannot map %g back from the %s scale", z, t)
+		return 0, &InverseError{Z: z, Transform: t}
 	}
 	var y float64
 	switch t.Name {
@@ -145,14 +174,14 @@ func (t Transform) Inverse(z float64) (float64, error) {
 		}
 		a := t.Lambda * z
 		if !(a > -1) {
-			return 0, fmt.Errorf("%g on the %s scale has no value on the original scale (needs 1 + lambda·z > 0)", z, t)
+			return 0, &InverseError{Z: z, Transform: t}
 		}
 		y = math.Exp(math.Log1p(a) / t.Lambda)
 	default:
 		panic("transform: unknown transform " + strconv.Quote(t.Name))
 	}
 	if math.IsInf(y, 0) {
-		return 0, fmt.Errorf("%g on the %s scale is too large to map back", z, t)
+		return 0, &InverseError{Z: z, Transform: t, Overflow: true}
 	}
 	return y, nil
 }

@@ -172,7 +172,9 @@ class AgainstServer(unittest.TestCase):
                 self.assertEqual(vc.error_code_of(v), code)
                 table = fs.invoke("errors", (None,))
                 self.assertEqual(table[1][1:3], (name, code))
-                self.assertEqual(table[1][3], want["error"]["message"])
+                # The server names the function once; the table shows it in
+                # its own column and the message without it.
+                self.assertEqual(name + ": " + table[1][3], want["error"]["message"])
                 self.assertIn(words, table[1][3])
 
     def test_write_without_token(self):
@@ -288,6 +290,14 @@ class Messages(unittest.TestCase):
         self.assertEqual(t[0], ("time", "function", "error", "message", "times"))
         self.assertEqual([r[3] for r in t[1:]], ["m4", "m3", "m2"], "newest first, at most size")
         self.assertEqual(t[1][4], 2.0, "a repeated message is counted, not repeated")
+
+    def test_function_named_once(self):
+        log = vc.MessageLog()
+        log.add("VEER.ZSCORE", "#NUM!", "VEER.ZSCORE: row 2: age 70 is outside the reference range")
+        log.add("VEER.LIMIT", "#N/A", "the veer server is not running")
+        t = log.table()
+        self.assertEqual((t[2][1], t[2][3]), ("VEER.ZSCORE", "row 2: age 70 is outside the reference range"))
+        self.assertEqual(t[1][3], "the veer server is not running")
 
 
 if __name__ == "__main__":
