@@ -10,12 +10,22 @@
 // ARL by Brent's method. The average time to signal is ATS = ARL x mean gap
 // when gaps do not depend on the values.
 //
+// Several markers: MEWMAARL and SolveMEWMA give the average run length and
+// the limit of the multivariate EWMA of Lowry et al. (1992) for i.i.d.
+// p-variate normal vectors, in control by Rigdon's (1995a) integral
+// equation and out of control by his (1995b) double integral equation
+// (solved by GMRES), matching R spc's mewma.arl and mewma.crit to 2e-9
+// relative on a 138-row grid (testdata/make_mewma.R; spc's delta is the
+// squared Mahalanobis distance, ours the distance itself).
+//
 // Monte Carlo methods (any stream of exams, e.g. correlated or resampled):
 // MonteCarlo.Calibrate simulates paths with common random numbers and a
 // fixed seed per path, records each path's running maxima of the chart's
 // critical limit, and so knows the first-passage time T(h) for every h at
 // once; ATS(h) = mean T(h) is monotone in h and is searched exactly.
 // MonteCarlo.Delay simulates the time from a change to the signal.
+// CalibrateStat and DelayStat do the same for streams that compute their
+// own chart statistic (charts over several markers).
 //
 // Accuracy and speed (testdata/make_fixtures.R, testdata/time_crit.R, R spc
 // 0.6.7 from Debian): the 676-row ARL grid of R spc is matched to within

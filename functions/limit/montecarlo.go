@@ -26,6 +26,49 @@ type Stream interface {
 // goroutines at once, so it must not share mutable state between paths.
 type StreamFunc func(rng *rand.Rand) Stream
 
+// StatStream is one simulated history of a chart that computes its own
+// statistic (for example a chart over several markers at once): each call
+// to Next returns the gap in years since the previous exam and the chart's
+// critical limit after that exam — the chart signals there for every limit
+// below it (the statistic itself when there is no head start; see
+// chart.Tracker). A negative gap marks the first exam of a new worker in a
+// chain of workers: the stream has restarted its chart there, and no time
+// passes.
+type StatStream interface {
+	Next() (gap, g float64)
+}
+
+// StatStreamFunc returns the statistic stream of one Monte Carlo path, with
+// the same contract as StreamFunc.
+type StatStreamFunc func(rng *rand.Rand) StatStream
+
+// tracked charts a Stream of values with a chart.Tracker.
+type tracked struct {
+	tr *chart.Tracker
+	s  Stream
+}
+
+func (t *tracked) Next() (float64, float64) {
+	gap, u := t.s.Next()
+	if gap < 0 {
+		t.tr.Reset()
+		return gap, t.tr.Next(0, u)
+	}
+	return gap, t.tr.Next(gap, u)
+}
+
+// trackedStreams turns a stream of values into a stream of the critical
+// limits of spec (already validated).
+func trackedStreams(spec chart.Spec, ns StreamFunc) StatStreamFunc {
+	return func(rng *rand.Rand) StatStream {
+		tr, err := chart.NewTracker(spec)
+		if err != nil {
+			panic("limit: " + err.Error()) // spec was validated by the caller
+		}
+		return &tracked{tr, ns(rng)}
+	}
+}
+
 // MonteCarlo configures the simulation of times to signal. Path i draws from
 // its own PCG source seeded (Seed, i), so results do not depend on the
 // number of goroutines and the same inputs always give the same answer
@@ -43,7 +86,8 @@ type MonteCarlo struct {
 	// or at CapExams exams (ATS, Delay); default 20. For a roughly exponential
 	// time to signal the truncation bias is about exp(-CapFactor) relative.
 	CapFactor float64
-	// CapExams bounds the exams per path for ATS and Delay (default 200000).
+	// CapExams bounds the exams per path (default 200000); a path that
+	// reaches it is censored.
 	CapExams int
 	// Progress, if not nil, is called with the number of finished paths and
 	// the total of the current pass (a calibration makes a pilot pass and one
@@ -104,11 +148,12 @@ func (p *path) first(h float64) (float64, bool) {
 	return p.rec[i].t, false
 }
 
-// simulate runs paths [0,n) until the critical limit exceeds hMax or the time
-// exceeds capTime, recording the running maxima of g (the running-maximum
-// construction: the first-passage time T(h) of a path is non-decreasing in
-// h, so ATS(h) = mean T(h) is monotone and can be searched exactly).
-func (mc MonteCarlo) simulate(spec chart.Spec, ns StreamFunc, n int, hMax, capTime float64, out []path) error {
+// simulate runs paths [0,n) until the critical limit exceeds hMax, the time
+// exceeds capTime or the path has CapExams exams, recording the running
+// maxima of g (the running-maximum construction: the first-passage time
+// T(h) of a path is non-decreasing in h, so ATS(h) = mean T(h) is monotone
+// and can be searched exactly).
+func (mc MonteCarlo) simulate(ns StatStreamFunc, n int, hMax, capTime float64, out []path) error {
 	var (
 		next     atomic.Int64
 		done     atomic.Int64
@@ -120,13 +165,6 @@ func (mc MonteCarlo) simulate(spec chart.Spec, ns StreamFunc, n int, hMax, capTi
 	step := max(1, n/100)
 	for range min(mc.Workers, n) {
 		wg.Go(func() {
-			tr, err := chart.NewTracker(spec)
-			if err != nil {
-				mu.Lock()
-				firstErr = err
-				mu.Unlock()
-				return
-			}
 			for {
 				i := int(next.Add(1) - 1)
 				if i >= n {
@@ -138,24 +176,19 @@ func (mc MonteCarlo) simulate(spec chart.Spec, ns StreamFunc, n int, hMax, capTi
 					mu.Unlock()
 					return
 				}
-				tr.Reset()
 				rng := rand.New(rand.NewPCG(mc.Seed, uint64(i)))
 				s := ns(rng)
 				p := &out[i]
 				p.rec = p.rec[:0]
 				best, t := math.Inf(-1), 0.0
-				for {
-					gap, u := s.Next()
-					if gap < 0 {
-						tr.Reset()
-						gap = 0
-					}
+				for range mc.CapExams {
+					gap, g := s.Next()
+					gap = max(gap, 0)
 					t += gap
 					if t > capTime {
 						t -= gap
 						break
 					}
-					g := tr.Next(gap, u)
 					if g > best {
 						best = g
 						p.rec = append(p.rec, record{g, t})
@@ -243,16 +276,22 @@ func invert(ps []path, target, hMax float64) (float64, bool) {
 // pass repeated. Head start is honoured (through the critical limits);
 // restarts do not affect the first signal.
 func (mc MonteCarlo) Calibrate(spec chart.Spec, target float64, ns StreamFunc, hint float64) (Calibration, error) {
-	mc = mc.withDefaults()
 	if err := spec.Validate(); err != nil {
 		return Calibration{}, err
 	}
+	return mc.CalibrateStat(target, trackedStreams(spec, ns), hint)
+}
+
+// CalibrateStat is Calibrate for streams that compute their chart's
+// critical limit themselves (StatStream), e.g. charts over several markers.
+func (mc MonteCarlo) CalibrateStat(target float64, ns StatStreamFunc, hint float64) (Calibration, error) {
+	mc = mc.withDefaults()
 	if !(target > 0) || math.IsInf(target, 1) {
 		return Calibration{}, &chart.SettingError{Setting: "target", Value: target, Want: "a positive number of years"}
 	}
 	pilotN := min(mc.Paths, 400)
 	ps := make([]path, mc.Paths)
-	if err := mc.simulate(spec, ns, pilotN, math.Inf(1), 4*target, ps[:pilotN]); err != nil {
+	if err := mc.simulate(ns, pilotN, math.Inf(1), 4*target, ps[:pilotN]); err != nil {
 		return Calibration{}, err
 	}
 	hMax, ok := invert(ps[:pilotN], 1.4*target, math.Inf(1))
@@ -266,7 +305,7 @@ func (mc MonteCarlo) Calibrate(spec chart.Spec, target float64, ns StreamFunc, h
 	hMax = math.Max(hMax, hint)
 	capTime := mc.CapFactor * target
 	for range 12 {
-		if err := mc.simulate(spec, ns, mc.Paths, hMax, capTime, ps); err != nil {
+		if err := mc.simulate(ns, mc.Paths, hMax, capTime, ps); err != nil {
 			return Calibration{}, err
 		}
 		h, ok := invert(ps, target, hMax)
@@ -310,10 +349,16 @@ type RunLength struct {
 // onset are left out, giving the conditional delay (common practice for
 // steady-state comparisons). Each path is truncated at CapExams exams.
 func (mc MonteCarlo) Delay(spec chart.Spec, h float64, ns StreamFunc, onset float64) (RunLength, error) {
-	mc = mc.withDefaults()
 	if err := spec.Validate(); err != nil {
 		return RunLength{}, err
 	}
+	return mc.DelayStat(h, trackedStreams(spec, ns), onset)
+}
+
+// DelayStat is Delay for streams that compute their chart's critical limit
+// themselves (StatStream).
+func (mc MonteCarlo) DelayStat(h float64, ns StatStreamFunc, onset float64) (RunLength, error) {
+	mc = mc.withDefaults()
 	if err := chart.ValidateLimit(h); err != nil {
 		return RunLength{}, err
 	}
@@ -332,7 +377,6 @@ func (mc MonteCarlo) Delay(spec chart.Spec, h float64, ns StreamFunc, onset floa
 	step := max(1, mc.Paths/100)
 	for range min(mc.Workers, mc.Paths) {
 		wg.Go(func() {
-			tr, _ := chart.NewTracker(spec)
 			for {
 				i := int(next.Add(1) - 1)
 				if i >= mc.Paths {
@@ -342,19 +386,14 @@ func (mc MonteCarlo) Delay(spec chart.Spec, h float64, ns StreamFunc, onset floa
 					stopped.Store(true)
 					return
 				}
-				tr.Reset()
 				rng := rand.New(rand.NewPCG(mc.Seed, uint64(i)))
 				s := ns(rng)
 				t := 0.0
 				flags[i] = 2
 				for range mc.CapExams {
-					gap, u := s.Next()
-					if gap < 0 {
-						tr.Reset()
-						gap = 0
-					}
-					t += gap
-					if tr.Next(gap, u) > h {
+					gap, g := s.Next()
+					t += max(gap, 0)
+					if g > h {
 						flags[i] = 0
 						if t < onset {
 							flags[i] = 1
