@@ -78,10 +78,10 @@ func ncChi2PDF(x, k, nc float64) float64 {
 
 func checkMEWMA(lambda float64, p int) error {
 	if !(lambda > 0 && lambda <= 1) {
-		return fmt.Errorf("limit: lambda must be more than 0 and at most 1, got %v", lambda)
+		return &chart.SettingError{Setting: "lambda", Value: lambda, Want: "more than 0 and at most 1"}
 	}
 	if p < 1 || p > MaxMEWMAMarkers {
-		return fmt.Errorf("limit: the number of markers must be from 1 to %d, got %d", MaxMEWMAMarkers, p)
+		return &chart.SettingError{Setting: "markers", Value: p, Want: fmt.Sprintf("a number of markers from 1 to %d", MaxMEWMAMarkers)}
 	}
 	return nil
 }
@@ -123,7 +123,7 @@ func MEWMAARL(lambda, h float64, p int, delta float64) (float64, error) {
 		return 0, err
 	}
 	if !(delta >= 0) || math.IsInf(delta, 1) {
-		return 0, fmt.Errorf("limit: the shift must be a finite distance 0 or more, got %v", delta)
+		return 0, &chart.SettingError{Setting: "shift", Value: delta, Want: "a finite distance 0 or more"}
 	}
 	if p == 1 {
 		return ARL(chart.Spec{Kind: chart.EWMA, Side: chart.Both, Lambda: lambda, Unit: 1}, math.Sqrt(h), delta, 1)
@@ -384,7 +384,7 @@ func SolveMEWMA(lambda float64, p int, arl0 float64) (float64, error) {
 		return 0, err
 	}
 	if !(arl0 > 1) || math.IsInf(arl0, 1) {
-		return 0, fmt.Errorf("limit: the in-control average run length must be a number above 1 exam, got %v: %w", arl0, ErrTargetTooShort)
+		return 0, reachErrorf(ErrTargetTooShort, "the in-control average run length must be a number above 1 exam, got %v", arl0)
 	}
 	if p == 1 {
 		l, err := Solve(chart.Spec{Kind: chart.EWMA, Side: chart.Both, Lambda: lambda, Unit: 1}, arl0, 1)
@@ -396,7 +396,7 @@ func SolveMEWMA(lambda float64, p int, arl0 float64) (float64, error) {
 	const lo, hiMax = 1e-3, 2000.0
 	flo := f(lo)
 	if flo > 0 {
-		return 0, fmt.Errorf("limit: an average run length of %.4g exams is shorter than this chart can give: %w", arl0, ErrTargetTooShort)
+		return 0, reachErrorf(ErrTargetTooShort, "an average run length of %.4g exams is shorter than this chart can give", arl0)
 	}
 	// The in-control T2 is close to chi-square with p degrees of freedom,
 	// so the limit is of the order of p plus a few SDs.
@@ -405,7 +405,7 @@ func SolveMEWMA(lambda float64, p int, arl0 float64) (float64, error) {
 	fb := f(b)
 	for fb < 0 {
 		if b >= hiMax {
-			return 0, fmt.Errorf("limit: an average run length of %.4g exams needs a limit above %v; choose a shorter target", arl0, hiMax)
+			return 0, reachErrorf(ErrTargetTooLong, "an average run length of %.4g exams needs a limit above %v; choose a shorter target", arl0, hiMax)
 		}
 		a, fa = b, fb
 		b = math.Min(hiMax, b*1.5)

@@ -240,36 +240,25 @@ func prepare(c Calibration) (*prepared, error) {
 	default:
 		return nil, &chart.SettingError{Setting: "horizon", Value: string(c.Horizon), Want: fmt.Sprintf("%q or %q", HorizonLong, HorizonFollowUp)}
 	}
-	if c.Gap < 0 || math.IsNaN(c.Gap) || math.IsInf(c.Gap, 0) {
-		return nil, &chart.SettingError{Setting: "gap", Value: c.Gap, Want: "a positive number of years"}
+	if c.Gap == 0 && len(c.Gaps) == 0 {
+		for i, w := range c.Reference {
+			if err := serial.CheckTimes(w.Time); err != nil {
+				return nil, fmt.Errorf("reference worker %d, %w", i+1, err)
+			}
+		}
 	}
-	if c.Gap > 0 {
-		p.meanGap = c.Gap
-	} else {
-		p.pool = c.Gaps
-		for i, g := range p.pool {
-			if !(g > 0) || math.IsInf(g, 0) {
-				return nil, fmt.Errorf("gap %d is %v; gaps between exams must be positive numbers of years", i+1, g)
+	var err error
+	p.pool, p.meanGap, err = GapPool(c.Gap, c.Gaps, func() []float64 {
+		var pool []float64
+		for _, w := range c.Reference {
+			for j := 1; j < len(w.Time); j++ {
+				pool = append(pool, w.Time[j]-w.Time[j-1])
 			}
 		}
-		if len(p.pool) == 0 {
-			for i, w := range c.Reference {
-				if err := serial.CheckTimes(w.Time); err != nil {
-					return nil, fmt.Errorf("reference worker %d, %w", i+1, err)
-				}
-				for j := 1; j < len(w.Time); j++ {
-					p.pool = append(p.pool, w.Time[j]-w.Time[j-1])
-				}
-			}
-		}
-		if len(p.pool) == 0 {
-			return nil, errors.New("no gap between exams is known: give the planned gap in years, or reference workers with at least two exams")
-		}
-		var s float64
-		for _, g := range p.pool {
-			s += g
-		}
-		p.meanGap = s / float64(len(p.pool))
+		return pool
+	})
+	if err != nil {
+		return nil, err
 	}
 	if c.Method == Bootstrap {
 		if len(c.Reference) < MinBootstrapWorkers {
