@@ -2,7 +2,6 @@ package screening
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"math"
 	"runtime"
@@ -150,23 +149,23 @@ func (m *Model) EvaluateHistory(ctx context.Context, exams []Exam, c *evaluation
 	if c.Len() != len(exams) {
 		return nil, fmt.Errorf("internal: a cohort of %d exams for %d exams", c.Len(), len(exams))
 	}
-	if !(o.Target > 0) {
-		return nil, errors.New("the target must be a positive number of years")
+	if !(o.Target > 0) || math.IsInf(o.Target, 0) {
+		return nil, &chart.SettingError{Setting: "target", Value: o.Target, Want: "a positive number of years"}
 	}
 	if p := baselineCentile(o.Centile); !(p > 50 && p < 100) {
-		return nil, fmt.Errorf("the baseline centile must be between 0 and 100 (not 0, 50 or 100), got %v", o.Centile)
+		return nil, &chart.SettingError{Setting: "centile", Value: o.Centile, Want: "a centile between 0 and 100 other than 50 (97.5 and 2.5 both mean beyond the 2.5% tail)"}
 	}
 	targets := []float64{o.Target}
 	for _, t := range o.Sweep {
 		if !(t > 0) || math.IsInf(t, 0) {
-			return nil, fmt.Errorf("a target must be a positive number of years, got %v", t)
+			return nil, &chart.SettingError{Setting: "targets", Value: t, Want: "positive numbers of years"}
 		}
 		if !slices.Contains(targets, t) {
 			targets = append(targets, t)
 		}
 	}
 	if len(targets) > MaxSweep {
-		return nil, fmt.Errorf("%d targets are more than the %d one evaluation sweeps", len(targets), MaxSweep)
+		return nil, &chart.SettingError{Setting: "targets", Value: len(targets), Want: fmt.Sprintf("at most %d targets", MaxSweep)}
 	}
 	slices.Sort(targets)
 	if o.Limits.Stop == nil {

@@ -8,6 +8,7 @@ import (
 	"strings"
 	"testing"
 
+	"veer/functions/chart"
 	"veer/functions/evaluation"
 	"veer/functions/rules"
 	"veer/functions/serial"
@@ -224,15 +225,16 @@ func TestEvaluateHistoryBadOptions(t *testing.T) {
 		o    HistoryOptions
 		want string
 	}{
-		{HistoryOptions{Settings: set}, "the target must be a positive number of years"},
-		{HistoryOptions{Settings: set, Target: 20, Centile: 50}, "the baseline centile must be between 0 and 100"},
-		{HistoryOptions{Settings: set, Target: 20, Centile: 100}, "the baseline centile must be between 0 and 100"},
-		{HistoryOptions{Settings: set, Target: 20, Sweep: []float64{-1}}, "a target must be a positive number of years"},
-		{HistoryOptions{Settings: set, Target: 20, Sweep: many}, "more than the 100 one evaluation sweeps"},
+		{HistoryOptions{Settings: set}, "target must be a positive number of years, got 0"},
+		{HistoryOptions{Settings: set, Target: 20, Centile: 50}, "centile must be a centile between 0 and 100 other than 50"},
+		{HistoryOptions{Settings: set, Target: 20, Centile: 100}, "centile must be a centile between 0 and 100 other than 50"},
+		{HistoryOptions{Settings: set, Target: 20, Sweep: []float64{-1}}, "targets must be positive numbers of years, got -1"},
+		{HistoryOptions{Settings: set, Target: 20, Sweep: many}, "targets must be at most 100 targets, got 101"},
 		{HistoryOptions{Settings: set, Target: 20, Sweep: []float64{1e6}}, "target 1e+06 years"},
 	} {
-		if _, err := m.EvaluateHistory(context.Background(), ex, c, tc.o); err == nil || !strings.Contains(err.Error(), tc.want) {
-			t.Errorf("error %v, want %q", err, tc.want)
+		_, err := m.EvaluateHistory(context.Background(), ex, c, tc.o)
+		if err == nil || !strings.Contains(err.Error(), tc.want) || !errors.Is(err, chart.ErrSetting) {
+			t.Errorf("error %v, want %q (a setting error)", err, tc.want)
 		}
 	}
 	ctx, cancel := context.WithCancel(context.Background())
