@@ -73,7 +73,7 @@ import (
 type Chart struct {
 	spec   Spec
 	p      int
-	ew     chart.Spec
+	decay  float64 // log(1-lambda)/unit: the weight after d years is 1 - exp(d decay)
 	r      []float64 // correlation
 	rL     []float64 // Cholesky factor of r
 	v0     []float64
@@ -91,6 +91,7 @@ type Chart struct {
 	idx, act    []int
 	comp        [][]float64 // MCUSUM completion matrix per mask of measured markers
 	fbuf        []float64
+	contrib     []float64
 }
 
 // NewChart returns a chart for spec over the markers whose correlation at
@@ -105,7 +106,10 @@ func NewChart(spec Spec, corr [][]float64) (*Chart, error) {
 	if err != nil {
 		return nil, err
 	}
-	c := &Chart{spec: spec, p: p, ew: spec.ewma(), r: r}
+	c := &Chart{spec: spec, p: p, r: r}
+	if spec.Kind.ewmaKind() {
+		c.decay = math.Log1p(-spec.Lambda) / spec.ewma().UnitOrDefault()
+	}
 	c.rL = append([]float64(nil), r...)
 	if !cholesky(c.rL, p) {
 		return nil, fmt.Errorf("the correlation matrix of the markers is not positive definite: %w", ErrNotPositiveDefinite)
@@ -133,7 +137,7 @@ func NewChart(spec Spec, corr [][]float64) (*Chart, error) {
 	c.w, c.vl, c.work = make([]float64, p), make([]float64, p*p), make([]float64, p)
 	c.mu, c.y, c.buf = make([]float64, p), make([]float64, p), make([]float64, p*p)
 	c.idx, c.act = make([]int, 0, p), make([]int, 0, p)
-	c.fbuf = make([]float64, p)
+	c.fbuf, c.contrib = make([]float64, p), make([]float64, p)
 	if !spec.Kind.ewmaKind() && spec.Kind != Any {
 		c.comp = make([][]float64, 1<<p)
 	}
@@ -225,8 +229,8 @@ func (c *Chart) nextEWMA(x []float64) float64 {
 			c.w[m] = 0
 			continue
 		}
-		if c.seen[m] {
-			c.w[m] = c.ew.Weight(c.since[m])
+		if c.seen[m] && c.since[m] > 0 && c.spec.Lambda < 1 {
+			c.w[m] = -math.Expm1(c.since[m] * c.decay) // chart.Spec.Weight
 		} else {
 			c.w[m] = c.spec.Lambda
 		}
@@ -539,7 +543,7 @@ func (c *Chart) Top() int {
 	if !(c.stat > 0) {
 		return -1
 	}
-	d := c.Contributions(make([]float64, c.p))
+	d := c.Contributions(c.contrib)
 	best := 0
 	for m := range d {
 		if d[m] > d[best] {
@@ -550,7 +554,7 @@ func (c *Chart) Top() int {
 }
 
 // Point is the chart after one exam: the statistic, whether it crossed the
-// limit, and the marker contributing most (-1 when the statistic is 0).
+// limit, and at a signal the marker contributing most (otherwise -1).
 type Point struct {
 	Stat   float64
 	Signal bool
@@ -570,7 +574,10 @@ func (c *Chart) Run(h float64, gaps, x []float64, out []Point) []Point {
 	c.Reset()
 	for j := range gaps {
 		s := c.Next(gaps[j], x[j*c.p:(j+1)*c.p])
-		pt := Point{Stat: s, Signal: s > h, Top: c.Top()}
+		pt := Point{Stat: s, Signal: s > h, Top: -1}
+		if pt.Signal {
+			pt.Top = c.Top()
+		}
 		out = append(out, pt)
 		if pt.Signal && c.spec.Restart {
 			c.Reset()

@@ -35,10 +35,14 @@ func ExampleChart() {
 		1.5, -1.1,
 	}
 	for j, p := range c.Run(3, gaps, x, nil) {
-		fmt.Printf("exam %d: statistic %.3f, signal %v, leading marker %d\n", j+1, p.Stat, p.Signal, p.Top+1)
+		fmt.Printf("exam %d: statistic %.3f", j+1, p.Stat)
+		if p.Signal {
+			fmt.Printf(", signal led by marker %d", p.Top+1)
+		}
+		fmt.Println()
 	}
 	// Output:
-	// exam 1: statistic 0.701, signal false, leading marker 1
-	// exam 2: statistic 2.250, signal false, leading marker 1
-	// exam 3: statistic 3.316, signal true, leading marker 1
+	// exam 1: statistic 0.701
+	// exam 2: statistic 2.250
+	// exam 3: statistic 3.316, signal led by marker 1
 }
