@@ -8,6 +8,7 @@ import (
 
 	"veer/functions/chart"
 	"veer/functions/monitor"
+	"veer/functions/serial"
 )
 
 // BenchmarkLimit: speed target SE <= 2% of the target in <= 2 s on 2 cores,
@@ -74,4 +75,38 @@ func BenchmarkChart(b *testing.B) {
 			}
 		})
 	}
+}
+
+// BenchmarkEstimate: the joint model of 100000 workers x 7 exams x 3
+// markers, against the serial model of one of its markers (the
+// single-marker fit's share of this work), same run.
+func BenchmarkEstimate(b *testing.B) {
+	model := testModel()
+	ref := simulateCohort(model, 100000, 7, 51, []float64{0, 0.1, 0.1})
+	ctx := context.Background()
+	b.Run("one marker serial", func(b *testing.B) {
+		one := make([]serial.Series, len(ref))
+		for i, w := range ref {
+			one[i] = w.marker(0)
+		}
+		for b.Loop() {
+			if _, err := serial.Estimate(ctx, one); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
+	b.Run("three markers joint", func(b *testing.B) {
+		for b.Loop() {
+			if _, err := Estimate(ctx, model.Markers, ref, nil); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
+	b.Run("three markers joint, serial given", func(b *testing.B) {
+		for b.Loop() {
+			if _, err := Estimate(ctx, model.Markers, ref, model.Serial); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
 }

@@ -287,12 +287,13 @@ func (pr *prepared) bootstrapBlocks() error {
 	if len(c.Reference) < monitor.MinBootstrapWorkers {
 		return fmt.Errorf("method bootstrap needs at least %d reference workers, got %d", monitor.MinBootstrapWorkers, len(c.Reference))
 	}
+	f := c.Settings.Model.innovator()
 	for _, w := range c.Reference {
 		sp, ok := spanOf(w, c.Gap)
 		if !ok {
 			continue
 		}
-		inn := c.Settings.Model.Innovations(w)
+		inn := f.innovations(w, nil)
 		b := block{span: sp}
 		for j := range w.Time {
 			if maskOf(w, j) == 0 {

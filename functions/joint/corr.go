@@ -54,26 +54,27 @@ type Correlation struct {
 func Correlate(markers []string, what string, ws []Series) (Correlation, error) {
 	p := len(markers)
 	c := Correlation{R: square[float64](p), SE: square[float64](p), Exams: square[int](p), Workers: square[int](p)}
+	est := correlatePairs(ws, p)
 	for a := range p {
 		for b := a; b < p; b++ {
-			est := correlatePair(ws, a, b)
-			c.Exams[a][b], c.Exams[b][a] = est.n, est.n
-			c.Workers[a][b], c.Workers[b][a] = est.g, est.g
+			e := est[a*p+b]
+			c.Exams[a][b], c.Exams[b][a] = e.n, e.n
+			c.Workers[a][b], c.Workers[b][a] = e.g, e.g
 			if a == b {
 				c.R[a][a] = 1
 				continue
 			}
-			if est.n < MinPairExams || est.g < MinPairWorkers {
-				return c, &PairError{A: markers[a], B: markers[b], Exams: est.n, Workers: est.g, MinExams: MinPairExams, MinWks: MinPairWorkers}
+			if e.n < MinPairExams || e.g < MinPairWorkers {
+				return c, &PairError{A: markers[a], B: markers[b], Exams: e.n, Workers: e.g, MinExams: MinPairExams, MinWks: MinPairWorkers}
 			}
-			if !(est.sx > 0) {
+			if !(e.sx > 0) {
 				return c, &MarkerError{Marker: markers[a], Err: errNoVariation(what)}
 			}
-			if !(est.sy > 0) {
+			if !(e.sy > 0) {
 				return c, &MarkerError{Marker: markers[b], Err: errNoVariation(what)}
 			}
-			c.R[a][b], c.R[b][a] = est.r, est.r
-			c.SE[a][b], c.SE[b][a] = est.se, est.se
+			c.R[a][b], c.R[b][a] = e.r, e.r
+			c.SE[a][b], c.SE[b][a] = e.se, e.se
 		}
 	}
 	if err := CheckCorrelation(markers, what, c.R); err != nil {
@@ -118,67 +119,109 @@ type pairEst struct {
 	sx, sy     float64
 	mx, my     float64
 	sumX, sumY float64
+	sxx, syy   float64
+	sxy, meat  float64
 }
 
-// correlatePair estimates the correlation of markers a and b (a == b counts
-// readings only).
-func correlatePair(ws []Series, a, b int) pairEst {
-	var e pairEst
+// correlatePairs estimates the correlation of every pair of markers
+// (a <= b, at a*p+b; a == b counts readings only) in three passes over the
+// data: sums, centred second moments, and the workers' influence sums.
+func correlatePairs(ws []Series, p int) []pairEst {
+	est := make([]pairEst, p*p)
+	had := make([]bool, p*p)
 	for _, w := range ws {
-		had := false
+		clear(had)
 		for j := range w.Time {
-			x, y := w.Z[a][j], w.Z[b][j]
-			if math.IsNaN(x) || math.IsNaN(y) {
-				continue
+			for a := range p {
+				x := w.Z[a][j]
+				if math.IsNaN(x) {
+					continue
+				}
+				for b := a; b < p; b++ {
+					y := w.Z[b][j]
+					if math.IsNaN(y) {
+						continue
+					}
+					e := &est[a*p+b]
+					e.n++
+					e.sumX += x
+					e.sumY += y
+					had[a*p+b] = true
+				}
 			}
-			e.n++
-			e.sumX += x
-			e.sumY += y
-			had = true
 		}
-		if had {
-			e.g++
+		for i, h := range had {
+			if h {
+				est[i].g++
+			}
 		}
 	}
-	if a == b || e.n < 2 {
-		return e
+	for i := range est {
+		if e := &est[i]; e.n > 0 {
+			e.mx, e.my = e.sumX/float64(e.n), e.sumY/float64(e.n)
+		}
 	}
-	n := float64(e.n)
-	e.mx, e.my = e.sumX/n, e.sumY/n
-	var sxx, syy, sxy float64
 	for _, w := range ws {
 		for j := range w.Time {
-			x, y := w.Z[a][j], w.Z[b][j]
-			if math.IsNaN(x) || math.IsNaN(y) {
-				continue
+			for a := range p {
+				x := w.Z[a][j]
+				if math.IsNaN(x) {
+					continue
+				}
+				for b := a + 1; b < p; b++ {
+					y := w.Z[b][j]
+					if math.IsNaN(y) {
+						continue
+					}
+					e := &est[a*p+b]
+					dx, dy := x-e.mx, y-e.my
+					e.sxx += dx * dx
+					e.syy += dy * dy
+					e.sxy += dx * dy
+				}
 			}
-			dx, dy := x-e.mx, y-e.my
-			sxx += dx * dx
-			syy += dy * dy
-			sxy += dx * dy
 		}
 	}
-	e.sx, e.sy = math.Sqrt(sxx/n), math.Sqrt(syy/n)
-	if !(e.sx > 0) || !(e.sy > 0) {
-		return e
+	for i := range est {
+		e := &est[i]
+		if i/p == i%p || e.n < 2 {
+			continue
+		}
+		n := float64(e.n)
+		e.sx, e.sy = math.Sqrt(e.sxx/n), math.Sqrt(e.syy/n)
+		if e.sx > 0 && e.sy > 0 {
+			e.r = e.sxy / math.Sqrt(e.sxx*e.syy)
+		}
 	}
-	e.r = sxy / math.Sqrt(sxx*syy)
-	var meat float64
+	psi := make([]float64, p*p)
 	for _, w := range ws {
-		var s float64
+		clear(psi)
 		for j := range w.Time {
-			x, y := w.Z[a][j], w.Z[b][j]
-			if math.IsNaN(x) || math.IsNaN(y) {
-				continue
+			for a := range p {
+				x := w.Z[a][j]
+				if math.IsNaN(x) {
+					continue
+				}
+				for b := a + 1; b < p; b++ {
+					y := w.Z[b][j]
+					e := &est[a*p+b]
+					if math.IsNaN(y) || !(e.sx > 0 && e.sy > 0) {
+						continue
+					}
+					xs, ys := (x-e.mx)/e.sx, (y-e.my)/e.sy
+					psi[a*p+b] += xs*ys - e.r*(xs*xs+ys*ys)/2
+				}
 			}
-			xs, ys := (x-e.mx)/e.sx, (y-e.my)/e.sy
-			s += xs*ys - e.r*(xs*xs+ys*ys)/2
 		}
-		meat += s * s
+		for i, v := range psi {
+			est[i].meat += v * v
+		}
 	}
-	if e.g > 1 {
-		g := float64(e.g)
-		e.se = math.Sqrt(g / (g - 1) * meat / (n * n))
+	for i := range est {
+		if e := &est[i]; e.g > 1 && e.n > 0 {
+			g, n := float64(e.g), float64(e.n)
+			e.se = math.Sqrt(g / (g - 1) * e.meat / (n * n))
+		}
 	}
-	return e
+	return est
 }

@@ -39,7 +39,13 @@ func (s Series) check(p int) error {
 
 // marker returns marker m's measured exams as a single-marker series.
 func (s Series) marker(m int) serial.Series {
-	var out serial.Series
+	n := 0
+	for _, z := range s.Z[m] {
+		if !math.IsNaN(z) {
+			n++
+		}
+	}
+	out := serial.Series{Time: make([]float64, 0, n), Z: make([]float64, 0, n)}
 	for j, z := range s.Z[m] {
 		if !math.IsNaN(z) {
 			out.Time = append(out.Time, s.Time[j])
@@ -116,13 +122,12 @@ func Estimate(ctx context.Context, markers []string, ref []Series, serials []ser
 	}
 	m := &Model{Markers: append([]string(nil), markers...), Serial: make([]serial.Params, p)}
 	for k := range p {
-		var ser []serial.Series
 		n := 0
 		for _, w := range ref {
-			s := w.marker(k)
-			n += len(s.Z)
-			if len(s.Z) > 0 {
-				ser = append(ser, s)
+			for _, z := range w.Z[k] {
+				if !math.IsNaN(z) {
+					n++
+				}
 			}
 		}
 		if n < MinReadings {
@@ -135,6 +140,12 @@ func Estimate(ctx context.Context, markers []string, ref []Series, serials []ser
 			m.Serial[k] = serials[k]
 			continue
 		}
+		ser := make([]serial.Series, 0, len(ref))
+		for _, w := range ref {
+			if s := w.marker(k); len(s.Z) > 0 {
+				ser = append(ser, s)
+			}
+		}
 		par, err := serial.Estimate(ctx, ser)
 		if err != nil {
 			return nil, &MarkerError{Marker: markers[k], Err: err}
@@ -146,8 +157,16 @@ func Estimate(ctx context.Context, markers []string, ref []Series, serials []ser
 		return nil, err
 	}
 	inn := make([]Series, len(ref))
+	f := m.innovator()
+	total := 0
+	for _, w := range ref {
+		total += len(w.Time) * p
+	}
+	buf := make([]float64, total)
 	for i, w := range ref {
-		inn[i] = Series{Time: w.Time, Z: m.Innovations(w)}
+		k := len(w.Time) * p
+		inn[i] = Series{Time: w.Time, Z: f.innovations(w, buf[:k:k])}
+		buf = buf[k:]
 	}
 	if m.Innovation, err = Correlate(markers, "innovations", inn); err != nil {
 		return nil, err
@@ -160,10 +179,31 @@ func Estimate(ctx context.Context, markers []string, ref []Series, serials []ser
 // where m was measured, with gaps since its own previous measurement, and
 // the innovation is NaN where m was not measured.
 func (m *Model) Innovations(s Series) [][]float64 {
-	out := make([][]float64, len(s.Z))
+	return m.innovator().innovations(s, nil)
+}
+
+// innovator holds one reusable filter per marker.
+type innovator []*serial.Filter
+
+func (m *Model) innovator() innovator {
+	f := make(innovator, len(m.Serial))
+	for k, p := range m.Serial {
+		f[k] = serial.NewFilter(p)
+	}
+	return f
+}
+
+// innovations is Innovations with the innovator's filters, writing into
+// buf (reallocated when too short) for all markers at once.
+func (f innovator) innovations(s Series, buf []float64) [][]float64 {
+	n := len(s.Time)
+	if cap(buf) < n*len(f) {
+		buf = make([]float64, n*len(f))
+	}
+	out := make([][]float64, len(f))
 	for k, z := range s.Z {
-		f := serial.NewFilter(m.Serial[k])
-		u := make([]float64, len(z))
+		u := buf[k*n : (k+1)*n : (k+1)*n]
+		f[k].Reset()
 		last := math.NaN()
 		for j, v := range z {
 			if math.IsNaN(v) {
@@ -174,7 +214,7 @@ func (m *Model) Innovations(s Series) [][]float64 {
 			if !math.IsNaN(last) {
 				gap = s.Time[j] - last
 			}
-			u[j] = f.Whiten(gap, v)
+			u[j] = f[k].Whiten(gap, v)
 			last = s.Time[j]
 		}
 		out[k] = u
