@@ -70,17 +70,30 @@ type Row struct {
 	// Innovation holds each marker's Kalman innovation (NaN where the
 	// marker was not measured).
 	Innovation []float64
-	// Stat is the chart statistic, Signal whether it crossed the limit and
-	// Top the marker contributing most (-1 when Stat is 0).
+	// Stat is the chart statistic, Signal whether it crossed the limit and,
+	// at a signal, Top the marker contributing most (otherwise -1).
 	Stat   float64
 	Signal bool
 	Top    int
 }
 
-// Run charts one worker's exams against limit h and returns one Row per
-// exam. A signal prompts review by a licensed clinician under local
-// occupational-health rules; it is not a diagnosis.
-func Run(set Settings, h float64, s Series) ([]Row, error) {
+// Runner charts workers one after another with the same settings and
+// limit, reusing its filters, chart and buffers. Create it with NewRunner;
+// it is not safe for concurrent use (make one per goroutine).
+type Runner struct {
+	set  Settings
+	h    float64
+	p    int
+	ch   *Chart
+	inn  innovator
+	ubuf []float64
+	gaps []float64
+	x    []float64
+	pts  []Point
+}
+
+// NewRunner returns a Runner for the settings and limit h.
+func NewRunner(set Settings, h float64) (*Runner, error) {
 	ch, err := set.NewChart()
 	if err != nil {
 		return nil, err
@@ -88,36 +101,58 @@ func Run(set Settings, h float64, s Series) ([]Row, error) {
 	if err := chart.ValidateLimit(h); err != nil {
 		return nil, err
 	}
-	p := len(set.Model.Markers)
+	return &Runner{set: set, h: h, p: len(set.Model.Markers), ch: ch, inn: set.Model.innovator()}, nil
+}
+
+// Run charts one worker's exams and appends one Row per exam to out; each
+// Row's Innovation is a fresh slice. It returns an error naming the exam if
+// the times do not increase or a value is infinite.
+func (r *Runner) Run(s Series, out []Row) ([]Row, error) {
+	p := r.p
 	if err := s.check(p); err != nil {
-		return nil, err
+		return out, err
 	}
-	u := set.Model.Innovations(s)
 	n := len(s.Time)
-	gaps := make([]float64, n)
-	x := make([]float64, n*p)
+	if cap(r.ubuf) < n*p {
+		r.ubuf = make([]float64, n*p)
+	}
+	u := r.inn.innovations(s, r.ubuf[:n*p])
+	r.gaps = append(r.gaps[:0], make([]float64, n)...)[:n]
+	clear(r.gaps)
+	r.x = r.x[:0]
 	for j := range n {
 		if j > 0 {
-			gaps[j] = s.Time[j] - s.Time[j-1]
+			r.gaps[j] = s.Time[j] - s.Time[j-1]
 		}
 		for k := range p {
-			if set.Mode == monitor.Direct {
-				x[j*p+k] = s.Z[k][j]
+			if r.set.Mode == monitor.Direct {
+				r.x = append(r.x, s.Z[k][j])
 			} else {
-				x[j*p+k] = u[k][j]
+				r.x = append(r.x, u[k][j])
 			}
 		}
 	}
-	pts := ch.Run(h, gaps, x, make([]Point, 0, n))
-	rows := make([]Row, n)
-	for j, pt := range pts {
-		inn := make([]float64, p)
+	r.pts = r.ch.Run(r.h, r.gaps, r.x, r.pts[:0])
+	inn := make([]float64, n*p)
+	for j, pt := range r.pts {
+		row := inn[j*p : (j+1)*p : (j+1)*p]
 		for k := range p {
-			inn[k] = u[k][j]
+			row[k] = u[k][j]
 		}
-		rows[j] = Row{Innovation: inn, Stat: pt.Stat, Signal: pt.Signal, Top: pt.Top}
+		out = append(out, Row{Innovation: row, Stat: pt.Stat, Signal: pt.Signal, Top: pt.Top})
 	}
-	return rows, nil
+	return out, nil
+}
+
+// Run charts one worker's exams against limit h and returns one Row per
+// exam (see Runner). A signal prompts review by a licensed clinician under
+// local occupational-health rules; it is not a diagnosis.
+func Run(set Settings, h float64, s Series) ([]Row, error) {
+	r, err := NewRunner(set, h)
+	if err != nil {
+		return nil, err
+	}
+	return r.Run(s, nil)
 }
 
 // Calibration describes how limits and delays are computed; the fields
