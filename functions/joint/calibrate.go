@@ -117,7 +117,10 @@ func (r *Runner) Run(s Series, out []Row) ([]Row, error) {
 		r.ubuf = make([]float64, n*p)
 	}
 	u := r.inn.innovations(s, r.ubuf[:n*p])
-	r.gaps = append(r.gaps[:0], make([]float64, n)...)[:n]
+	if cap(r.gaps) < n {
+		r.gaps = make([]float64, n)
+	}
+	r.gaps = r.gaps[:n]
 	clear(r.gaps)
 	r.x = r.x[:0]
 	for j := range n {
