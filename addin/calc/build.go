@@ -319,12 +319,6 @@ func pythonSource(fs []Func) ([]byte, error) {
 	return []byte(strings.Replace(pythonTemplate, catalogueMarker, line, 1)), nil
 }
 
-func xmlText(s string) string {
-	var b bytes.Buffer
-	xml.EscapeText(&b, []byte(s))
-	return b.String()
-}
-
 func xcuSource(fs []Func) ([]byte, error) {
 	var b bytes.Buffer
 	b.WriteString(`<?xml version="1.0" encoding="UTF-8"?>` + "\n")
@@ -338,7 +332,9 @@ func xcuSource(fs []Func) ([]byte, error) {
 		if localized {
 			lang = ` xml:lang="en"`
 		}
-		fmt.Fprintf(&b, "%s<prop oor:name=%q><value%s>%s</value></prop>\n", indent, name, lang, xmlText(value))
+		fmt.Fprintf(&b, "%s<prop oor:name=%q><value%s>", indent, name, lang)
+		xml.EscapeText(&b, []byte(value)) // writes to a bytes.Buffer cannot fail
+		b.WriteString("</value></prop>\n")
 	}
 	for _, f := range fs {
 		fmt.Fprintf(&b, "    <node oor:name=%q oor:op=\"replace\">\n", f.Method)

@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"encoding/xml"
 	"strconv"
-	"strings"
 )
 
 // OpenDocument namespaces used by the writer.
@@ -21,16 +20,6 @@ const (
 	odsMime    = "application/vnd.oasis.opendocument.spreadsheet"
 )
 
-func xmlEscape(s string) string {
-	var b strings.Builder
-	_ = xml.EscapeText(&b, []byte(s)) // writes to a strings.Builder cannot fail
-	return b.String()
-}
-
-// attrEscape escapes an attribute value (xml.EscapeText also escapes
-// quotes, tabs and new lines).
-func attrEscape(s string) string { return xmlEscape(s) }
-
 // odsWriter writes content.xml by hand: the layout is simple, and writing
 // it directly keeps every byte under our control.
 type odsWriter struct {
@@ -41,6 +30,12 @@ func (w *odsWriter) s(parts ...string) {
 	for _, p := range parts {
 		w.b.WriteString(p)
 	}
+}
+
+// esc writes s escaped for XML text or an attribute value (xml.EscapeText
+// also escapes quotes, tabs and new lines).
+func (w *odsWriter) esc(s string) {
+	_ = xml.EscapeText(&w.b, []byte(s)) // writes to a bytes.Buffer cannot fail
 }
 
 // widthStyle names the column style of a width in characters.
@@ -86,7 +81,9 @@ func (w *odsWriter) content(wb *workbook) {
 }
 
 func (w *odsWriter) table(s *sheet) {
-	w.s(`<table:table table:name="`, attrEscape(s.name), `">`)
+	w.s(`<table:table table:name="`)
+	w.esc(s.name)
+	w.s(`">`)
 	// Columns, with runs of equal widths merged.
 	for c := 0; c < s.ncols; {
 		v, ok := s.widths[c]
@@ -155,9 +152,13 @@ func (w *odsWriter) cell(v cell) {
 		n := num2s(v.num)
 		w.s(` office:value-type="float" office:value="`, n, `"><text:p>`, n, `</text:p></table:table-cell>`)
 	case kText:
-		w.s(` office:value-type="string"><text:p>`, xmlEscape(v.text), `</text:p></table:table-cell>`)
+		w.s(` office:value-type="string"><text:p>`)
+		w.esc(v.text)
+		w.s(`</text:p></table:table-cell>`)
 	case kFormula:
-		w.s(` table:formula="`, attrEscape("of:="+v.formula.ods()), `"`)
+		w.s(` table:formula="`)
+		w.esc("of:=" + v.formula.ods())
+		w.s(`"`)
 		if v.rows > 1 || v.cols > 1 {
 			w.s(` table:number-matrix-columns-spanned="`, strconv.Itoa(v.cols), `" table:number-matrix-rows-spanned="`, strconv.Itoa(v.rows), `"`)
 		}

@@ -4,6 +4,8 @@ import (
 	"math"
 	"strconv"
 	"unicode/utf8"
+
+	"veer/internal/numeric"
 )
 
 // EncodeResult appends the JSON encoding of the result v of the cell
@@ -45,15 +47,15 @@ func encodeResult(b []byte, fn string, v any) ([]byte, *Error) {
 		if t.Kind == KindError {
 			return b, &Error{Code: Code(t.Str), Message: "the result is the error " + t.Str}
 		}
-		if t.Kind == KindNumber && !finite(t.Num) {
+		if t.Kind == KindNumber && !numeric.Finite(t.Num) {
 			return b, OutOfRange.Errorf("the result is not a finite number")
 		}
 	case float64:
-		if !finite(t) {
+		if !numeric.Finite(t) {
 			return b, OutOfRange.Errorf("the result is not a finite number")
 		}
 	case float32:
-		if !finite(float64(t)) {
+		if !numeric.Finite(float64(t)) {
 			return b, OutOfRange.Errorf("the result is not a finite number")
 		}
 	}
@@ -63,8 +65,6 @@ func encodeResult(b []byte, fn string, v any) ([]byte, *Error) {
 	}
 	return out, nil
 }
-
-func finite(f float64) bool { return !math.IsNaN(f) && !math.IsInf(f, 0) }
 
 // appendAny encodes v at nesting depth (0 = top, 1 = column/row element,
 // 2 = cell in a row).
@@ -243,7 +243,7 @@ func appendErrorCell(b []byte, code Code, own, fn, msg string) []byte {
 // round-trips; exponent form below 1e-6 and from 1e21). NaN and ±Inf, which
 // JSON cannot hold, become a #NUM! error cell.
 func appendNumber(b []byte, f float64) []byte {
-	if !finite(f) {
+	if !numeric.Finite(f) {
 		return appendErrorCell(b, CodeNum, "", "", "not a finite number")
 	}
 	abs := math.Abs(f)

@@ -87,9 +87,9 @@ func (m *MemoryEnv) Model(ref string) (ModelRef, error) {
 	m.mu.Lock()
 	defer m.mu.Unlock()
 	if ver == 0 {
-		m.Read = append(m.Read, lowerASCII(name))
+		m.Read = append(m.Read, strings.ToLower(name))
 	}
-	vs := m.models[lowerASCII(name)]
+	vs := m.models[strings.ToLower(name)]
 	if len(vs) == 0 {
 		return ModelRef{}, UnknownModel.Errorf("there is no model named %s", quoteShort(name))
 	}
@@ -109,7 +109,7 @@ func (m *MemoryEnv) SaveModel(name string, doc []byte) (string, error) {
 	if m.models == nil {
 		m.models = map[string][]ModelRef{}
 	}
-	key := lowerASCII(name)
+	key := strings.ToLower(name)
 	vs := m.models[key]
 	sum := sha256.Sum256(doc)
 	hexsum := hex.EncodeToString(sum[:])

@@ -197,7 +197,7 @@ func NormalizeCode(code string) (Code, bool) {
 		return c, true
 	}
 	for k, c := range knownCodes {
-		if len(k) == len(code) && equalFoldASCII(k, code) {
+		if strings.EqualFold(k, code) {
 			return c, true
 		}
 	}
@@ -269,23 +269,4 @@ func AsError(err error) *Error {
 		return Busy.Errorf("the call was cancelled")
 	}
 	return &Error{Code: CodeValue, Message: err.Error()}
-}
-
-func equalFoldASCII(a, b string) bool {
-	if len(a) != len(b) {
-		return false
-	}
-	for i := 0; i < len(a); i++ {
-		x, y := a[i], b[i]
-		if 'a' <= x && x <= 'z' {
-			x -= 'a' - 'A'
-		}
-		if 'a' <= y && y <= 'z' {
-			y -= 'a' - 'A'
-		}
-		if x != y {
-			return false
-		}
-	}
-	return true
 }

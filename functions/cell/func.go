@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"regexp"
+	"strings"
 	"sync"
 )
 
@@ -115,7 +116,7 @@ func (f *Func) validate() error {
 	}
 	seenOpt := map[string]bool{}
 	for _, o := range f.Options {
-		if _, ok := LookupOption(o); !ok || lowerASCII(o) != o {
+		if _, ok := LookupOption(o); !ok || strings.ToLower(o) != o {
 			return fmt.Errorf("cell: %s accepts option %q, which is not declared in package cell (declare shared options once there so they are spelled the same everywhere)", f.Name, o)
 		}
 		if seenOpt[o] {
@@ -169,7 +170,7 @@ func (c *Catalogue) Register(f Func) {
 // Lookup finds a function by name, ignoring case. The returned Func must not
 // be modified.
 func (c *Catalogue) Lookup(name string) (*Func, bool) {
-	key := upperASCII(name)
+	key := strings.ToUpper(name)
 	c.mu.RLock()
 	f, ok := c.byName[key]
 	c.mu.RUnlock()
@@ -253,19 +254,4 @@ func (f *Func) Arity() (required, total int) {
 		}
 	}
 	return required, len(f.Params)
-}
-
-func upperASCII(s string) string {
-	for i := 0; i < len(s); i++ {
-		if 'a' <= s[i] && s[i] <= 'z' {
-			b := []byte(s)
-			for j := i; j < len(b); j++ {
-				if 'a' <= b[j] && b[j] <= 'z' {
-					b[j] -= 'a' - 'A'
-				}
-			}
-			return string(b)
-		}
-	}
-	return s
 }

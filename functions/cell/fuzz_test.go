@@ -6,6 +6,8 @@ import (
 	"reflect"
 	"strings"
 	"testing"
+
+	"veer/internal/numeric"
 )
 
 // FuzzValueJSON: the reference decoder never panics, accepts only valid
@@ -142,7 +144,7 @@ func FuzzOptionsText(f *testing.F) {
 			c := o.vals[n]
 			switch decl.Type {
 			case OptNumber:
-				if c.Kind != KindNumber || !finite(c.Num) {
+				if c.Kind != KindNumber || !numeric.Finite(c.Num) {
 					t.Fatalf("option %s = %v", n, c)
 				}
 			case OptBool:

@@ -1,10 +1,11 @@
 package cell
 
 import (
-	"math"
 	"sort"
 	"strconv"
 	"strings"
+
+	"veer/internal/numeric"
 )
 
 // Option value types.
@@ -92,7 +93,7 @@ var sharedOptions = []Option{
 // LookupOption returns the shared declaration of an option name
 // (case-insensitive).
 func LookupOption(name string) (Option, bool) {
-	name = lowerASCII(strings.TrimSpace(name))
+	name = strings.ToLower(strings.TrimSpace(name))
 	for _, o := range sharedOptions {
 		if o.Name == name {
 			o.Choices = append([]string(nil), o.Choices...)
@@ -280,7 +281,7 @@ func (p *optParser) text(s, where string) error {
 
 // set checks and stores one option.
 func (p *optParser) set(rawName string, val Cell, where string) error {
-	name := lowerASCII(strings.TrimSpace(rawName))
+	name := strings.ToLower(strings.TrimSpace(rawName))
 	known := false
 	for _, a := range p.allowed {
 		if a == name {
@@ -318,12 +319,12 @@ func coerceOption(decl Option, v Cell) (Cell, *Error) {
 	case OptNumber:
 		switch v.Kind {
 		case KindNumber:
-			if finite(v.Num) {
+			if numeric.Finite(v.Num) {
 				return v, nil
 			}
 		case KindText:
 			f, err := strconv.ParseFloat(strings.TrimSpace(v.Str), 64)
-			if err == nil && !math.IsNaN(f) && !math.IsInf(f, 0) {
+			if err == nil && numeric.Finite(f) {
 				return NumberCell(f), nil
 			}
 		}
@@ -335,7 +336,7 @@ func coerceOption(decl Option, v Cell) (Cell, *Error) {
 		return Cell{}, WrongArgument.Errorf("option %q must be on or off; got %s", decl.Name, v)
 	case OptChoice:
 		if v.Kind == KindText {
-			s := lowerASCII(strings.TrimSpace(v.Str))
+			s := strings.ToLower(strings.TrimSpace(v.Str))
 			for _, c := range decl.Choices {
 				if c == s {
 					return TextCell(s), nil
@@ -368,7 +369,7 @@ func boolOf(v Cell) (bool, bool) {
 			return false, true
 		}
 	case KindText:
-		switch lowerASCII(strings.TrimSpace(v.Str)) {
+		switch strings.ToLower(strings.TrimSpace(v.Str)) {
 		case "on", "yes", "true", "1":
 			return true, true
 		case "off", "no", "false", "0":

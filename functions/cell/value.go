@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"math"
 	"strconv"
-	"strings"
 	"unicode/utf8"
 )
 
@@ -536,14 +535,4 @@ func position(rows, cols, r, c int) string {
 		return "column " + strconv.Itoa(c+1)
 	}
 	return "row " + strconv.Itoa(r+1) + ", column " + strconv.Itoa(c+1)
-}
-
-// lowerASCII lower-cases ASCII letters.
-func lowerASCII(s string) string {
-	for i := 0; i < len(s); i++ {
-		if 'A' <= s[i] && s[i] <= 'Z' {
-			return strings.ToLower(s)
-		}
-	}
-	return s
 }

@@ -10,6 +10,7 @@ import (
 	"math"
 
 	"veer/functions/transform"
+	"veer/internal/numeric"
 )
 
 // MaxModelBytes bounds the size of a model document Decode accepts.
@@ -94,8 +95,6 @@ func Decode(data []byte) (*Model, error) {
 	return &m, nil
 }
 
-func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
-
 // validate checks what the lookups rely on.
 func (m *Model) validate() error {
 	tr, err := transform.New(m.Transform, m.Lambda)
@@ -119,7 +118,7 @@ func (m *Model) validate() error {
 		if len(c.Time) != n || len(c.Mean) != n || len(c.SD) != n {
 			return fmt.Errorf("%s: curves must have %d grid times", groupLabel(c.Group), n)
 		}
-		if !finite(c.TimeMin) || !finite(c.TimeMax) || !(c.TimeMin < c.TimeMax) || !wideEnough(c.TimeMin, c.TimeMax) {
+		if !numeric.Finite(c.TimeMin) || !numeric.Finite(c.TimeMax) || !(c.TimeMin < c.TimeMax) || !wideEnough(c.TimeMin, c.TimeMax) {
 			return fmt.Errorf("%s: the time range is not valid", groupLabel(c.Group))
 		}
 		r := c.TimeMax - c.TimeMin
@@ -128,7 +127,7 @@ func (m *Model) validate() error {
 		}
 		for k := 0; k < n; k++ {
 			want := c.TimeMin + float64(k)*r/float64(n-1)
-			if math.Abs(c.Time[k]-want) > 1e-9*r || !finite(c.Mean[k]) || !finite(c.SD[k]) || !(c.SD[k] > 0) {
+			if math.Abs(c.Time[k]-want) > 1e-9*r || !numeric.Finite(c.Mean[k]) || !numeric.Finite(c.SD[k]) || !(c.SD[k] > 0) {
 				return fmt.Errorf("%s: grid point %d is not valid", groupLabel(c.Group), k+1)
 			}
 		}

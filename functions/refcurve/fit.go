@@ -6,6 +6,7 @@ import (
 	"math"
 	"unicode/utf8"
 
+	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/stat/distuv"
 
 	"veer/functions/smooth"
@@ -181,7 +182,7 @@ func fitGroup(rows []Row, vals []float64, blk []int32, ix *rowIndex, set Setting
 	if !wideEnough(lo, hi) {
 		return nil, fmt.Errorf("the exams of %s span only %g years (%s to %s); a curve needs a wider range of times", label, hi-lo, num(lo), num(hi))
 	}
-	if ymin, ymax := minMax(d.Y); ymin == ymax {
+	if ymin := floats.Min(d.Y); ymin == floats.Max(d.Y) {
 		return nil, fmt.Errorf("all values of %s are equal (%s on the transformed scale); the values do not vary, so there is no spread to describe", label, num(ymin))
 	}
 	c := &Curve{Group: group, TimeMin: lo, TimeMax: hi, Time: make([]float64, set.GridPoints)}
@@ -276,14 +277,6 @@ func fitGroup(rows []Row, vals []float64, blk []int32, ix *rowIndex, set Setting
 // least a millionth of the magnitude of its ends (and of 1 year).
 func wideEnough(lo, hi float64) bool {
 	return hi-lo >= 1e-6*math.Max(1, math.Max(math.Abs(lo), math.Abs(hi)))
-}
-
-func minMax(v []float64) (lo, hi float64) {
-	lo, hi = v[0], v[0]
-	for _, x := range v {
-		lo, hi = math.Min(lo, x), math.Max(hi, x)
-	}
-	return lo, hi
 }
 
 func source(fixed float64, oneSE bool) string {

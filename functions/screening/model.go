@@ -14,6 +14,7 @@ import (
 
 	"veer/functions/refcurve"
 	"veer/functions/serial"
+	"veer/internal/numeric"
 )
 
 // Format and FormatVersion identify a screening model document.
@@ -93,10 +94,10 @@ func Fit(ctx context.Context, rows []refcurve.Row, opt FitOptions) (*Model, erro
 	}
 	// With (almost) no correlation the standard errors can be undefined;
 	// they are stored as 0, "not available", so the model stays valid JSON.
-	if !finite(params.SEPhi) {
+	if !numeric.Finite(params.SEPhi) {
 		params.SEPhi = 0
 	}
-	if !finite(params.SEC) {
+	if !numeric.Finite(params.SEC) {
 		params.SEC = 0
 	}
 	m := &Model{
@@ -258,5 +259,3 @@ func (m *Model) Summary() string {
 	return fmt.Sprintf("groups %s; %s; mean gap %.2f years",
 		strings.Join(m.Curves.Groups(), ", "), m.Serial.Finding(), m.MeanGap)
 }
-
-func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }

@@ -5,6 +5,10 @@ import (
 	"html/template"
 	"math"
 	"strings"
+
+	"gonum.org/v1/gonum/floats"
+
+	"veer/internal/numeric"
 )
 
 // centileLevels are the centiles drawn, lowest first.
@@ -27,19 +31,11 @@ func centilesOver(s *Section, g string, ts []float64) [5][]float64 {
 	return out
 }
 
-func linspace(lo, hi float64, n int) []float64 {
-	out := make([]float64, n)
-	for i := range out {
-		out[i] = lo + (hi-lo)*float64(i)/float64(n-1)
-	}
-	return out
-}
-
 func minMaxFinite(vs ...[]float64) (lo, hi float64) {
 	lo, hi = math.Inf(1), math.Inf(-1)
 	for _, v := range vs {
 		for _, x := range v {
-			if finite(x) {
+			if numeric.Finite(x) {
 				lo = math.Min(lo, x)
 				hi = math.Max(hi, x)
 			}
@@ -60,7 +56,7 @@ func drawBands(p *plot, xs []float64, c [5][]float64, lines bool) {
 			x, l, h = x[:0], l[:0], h[:0]
 		}
 		for i := range xs {
-			if finite(lo[i]) && finite(hi[i]) {
+			if numeric.Finite(lo[i]) && numeric.Finite(hi[i]) {
 				x, l, h = append(x, xs[i]), append(l, lo[i]), append(h, hi[i])
 			} else {
 				flush()
@@ -86,10 +82,10 @@ func referenceFigure(s *Section, g, id string) (figure, error) {
 		return figure{}, err
 	}
 	name, _, axis := markerLabel(s)
-	xs := linspace(lo, hi, 121)
+	xs := floats.Span(make([]float64, 121), lo, hi)
 	c := centilesOver(s, g, xs)
 	ylo, yhi := minMaxFinite(c[:]...)
-	if !finite(ylo) {
+	if !numeric.Finite(ylo) {
 		return figure{}, fmt.Errorf("%s, group %q: the reference centiles cannot be computed", name, g)
 	}
 	pad := 0.04 * (yhi - ylo)
@@ -110,7 +106,7 @@ func referenceFigure(s *Section, g, id string) (figure, error) {
 	last := len(xs) - 1
 	for k := range ys {
 		v := c[k][last]
-		if !finite(v) {
+		if !numeric.Finite(v) {
 			v = c[2][last]
 		}
 		ys[k] = p.y.at(v) + 4
@@ -167,7 +163,7 @@ func workerPanel(s *Section, w *workerView, n int, sectionID string) (panelView,
 	var bx []float64
 	var bc [5][]float64
 	if bhi > blo {
-		bx = linspace(blo, bhi, 41)
+		bx = floats.Span(make([]float64, 41), blo, bhi)
 		bc = centilesOver(s, w.group, bx)
 	}
 	ylo, yhi := minMaxFinite(vs, bc[0], bc[4])

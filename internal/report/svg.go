@@ -5,6 +5,8 @@ import (
 	"math"
 	"strconv"
 	"strings"
+
+	"veer/internal/numeric"
 )
 
 // Palette of Okabe & Ito (2008), safe for the common forms of colour-blindness.
@@ -216,7 +218,7 @@ func (p *plot) path(xs, ys []float64) string {
 	var b strings.Builder
 	pen := false
 	for i := range xs {
-		if !finite(xs[i]) || !finite(ys[i]) {
+		if !numeric.Finite(xs[i]) || !numeric.Finite(ys[i]) {
 			pen = false
 			continue
 		}
@@ -273,7 +275,7 @@ const (
 
 // marker draws one marker at data point (x, y).
 func (p *plot) marker(x, y float64, shape, fill, stroke string, r float64) {
-	if !finite(x) || !finite(y) {
+	if !numeric.Finite(x) || !numeric.Finite(y) {
 		return
 	}
 	cx, cy := p.x.at(x), p.y.at(y)
@@ -356,5 +358,3 @@ func spreadLabels(ys []float64, gap, lo, hi float64) []float64 {
 	}
 	return out
 }
-
-func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }

@@ -11,6 +11,8 @@ import (
 	"strconv"
 	"strings"
 	"unicode/utf8"
+
+	"veer/internal/numeric"
 )
 
 // MaxFieldBytes bounds one cell, so a damaged file cannot exhaust memory.
@@ -164,7 +166,7 @@ func ParseNumber(s string, decimalComma bool) (float64, error) {
 		}
 		return 0, fmt.Errorf("%q is not a number", s)
 	}
-	if math.IsNaN(v) || math.IsInf(v, 0) {
+	if !numeric.Finite(v) {
 		return 0, fmt.Errorf("%q is not a finite number", s)
 	}
 	return v, nil

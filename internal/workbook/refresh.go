@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -13,6 +14,7 @@ import (
 	"github.com/xuri/excelize/v2"
 
 	"veer/functions/screening"
+	"veer/internal/numeric"
 	"veer/internal/table"
 )
 
@@ -258,14 +260,14 @@ func inputValue(s string) any {
 	if s == "" {
 		return nil
 	}
-	if x, err := strconv.ParseFloat(s, 64); err == nil && !math.IsInf(x, 0) && !math.IsNaN(x) && strconv.FormatFloat(x, 'g', -1, 64) == s {
+	if x, err := strconv.ParseFloat(s, 64); err == nil && numeric.Finite(x) && strconv.FormatFloat(x, 'g', -1, 64) == s {
 		return x
 	}
 	return s
 }
 
 func numCell(v float64, style int) any {
-	if math.IsNaN(v) || math.IsInf(v, 0) {
+	if !numeric.Finite(v) {
 		return nil
 	}
 	return excelize.Cell{StyleID: style, Value: v}
@@ -409,7 +411,7 @@ func (w *writer) workers() []*workerRow {
 			}
 			for _, rc := range m.Rules {
 				if rc.Fired[i] {
-					if !contains(wr.rules[j], rc.Name) {
+					if !slices.Contains(wr.rules[j], rc.Name) {
 						wr.rules[j] = append(wr.rules[j], rc.Name)
 					}
 					if math.IsNaN(wr.flag) || t < wr.flag {
@@ -443,15 +445,6 @@ func (w *writer) workers() []*workerRow {
 		return ws[a].order < ws[b].order
 	})
 	return ws
-}
-
-func contains(s []string, v string) bool {
-	for _, x := range s {
-		if x == v {
-			return true
-		}
-	}
-	return false
 }
 
 func ruleIndex(rs []RuleColumn, name string) int {
