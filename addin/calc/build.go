@@ -20,6 +20,7 @@ import (
 	"time"
 
 	"veer/functions/cell"
+	"veer/functions/screening"
 )
 
 // Names of the extension and its UNO component.
@@ -38,9 +39,6 @@ const (
 	// DefaultPort is where the component looks for the server unless told.
 	DefaultPort = 7311
 )
-
-// Caution is the screening-aid statement in the extension's texts.
-const Caution = "A signal is a prompt for review by a licensed clinician under local occupational-health rules, not a diagnosis."
 
 // Paths inside the .oxt.
 const (
@@ -222,7 +220,7 @@ func describe(fi cell.FuncInfo) string {
 		parts = append(parts, "It saves on the veer server, so it needs the install token (veer token) in the add-in settings.")
 	}
 	if strings.Contains(strings.ToLower(fi.Summary+fi.Help), "signal") && !strings.Contains(fi.Help, "licensed clinician") {
-		parts = append(parts, Caution)
+		parts = append(parts, screening.Caution)
 	}
 	return strings.Join(parts, "\n\n")
 }
@@ -418,7 +416,7 @@ func descriptionText(fs []Func) string {
 		"They screen workers' medical exams against reference curves from healthy workers. " +
 		"The statistics run in the local veer server (start it with `veer serve`); the functions call it on " +
 		"127.0.0.1, port " + strconv.Itoa(DefaultPort) + " unless VEER_PORT or the settings file says otherwise. " +
-		"Health data do not leave this computer.\n\n" + Caution + "\n"
+		"Health data do not leave this computer.\n\n" + screening.Caution + "\n"
 }
 
 // SDK is what Build needs from the LibreOffice SDK.

@@ -20,6 +20,7 @@ import (
 
 	"veer/functions/catalog"
 	"veer/functions/cell"
+	"veer/functions/screening"
 	"veer/server"
 )
 
@@ -129,7 +130,7 @@ func TestFunctionsFollowCatalogue(t *testing.T) {
 				t.Errorf("%s parameter %d: %+v, catalogue %+v", fi.Name, k, f.Params[k], p)
 			}
 		}
-		if strings.Contains(strings.ToLower(fi.Summary+fi.Help), "signal") && !strings.Contains(f.Description, "licensed clinician") {
+		if strings.Contains(strings.ToLower(fi.Summary+fi.Help), "signal") && !strings.Contains(f.Description, screening.Caution) {
 			t.Errorf("%s speaks of signals but its help lacks the caution", fi.Name)
 		}
 	}
@@ -240,7 +241,7 @@ func TestSourcesAreWellFormed(t *testing.T) {
 			t.Errorf("the IDL lacks %s as %s %s(...)", f.Name, f.ReturnIDL(), f.Method)
 		}
 	}
-	if !strings.Contains(string(src[pathDescText]), "licensed clinician") {
+	if !strings.Contains(string(src[pathDescText]), screening.Caution) {
 		t.Error("the extension description lacks the screening-aid caution")
 	}
 	if _, err := Sources(l, Options{Version: "1.x"}); err == nil {

@@ -43,9 +43,6 @@ CALL_TIMEOUT = 70.0  # seconds; the server stops a normal call after 60 s
 SLOW_CALL_TIMEOUT = 610.0  # seconds; the server stops a slow call after 10 min
 UNREACHABLE_PAUSE = 5.0  # seconds without new attempts after a connect timed out
 
-CAUTION = ("A signal is a prompt for review by a licensed clinician under local "
-           "occupational-health rules, not a diagnosis.")
-
 # Calc's internal error numbers (formula/errorcodes.hxx), which Calc shows as
 # the spreadsheet error texts. An add-in passes one back as a NaN whose low
 # bits carry the number, exactly as Calc itself stores errors in matrices.

@@ -6,6 +6,7 @@ import (
 	"sort"
 
 	"veer/functions/cell"
+	"veer/functions/screening"
 )
 
 // Help returns help.html: every catalogue function with its parameters,
@@ -22,7 +23,8 @@ func Help(l cell.Listing) ([]byte, error) {
 	err := helpTmpl.Execute(&buf, struct {
 		Functions []cell.FuncInfo
 		Codes     []code
-	}{l.Functions, codes})
+		Caution   string
+	}{l.Functions, codes, screening.Caution})
 	return buf.Bytes(), err
 }
 
@@ -47,7 +49,7 @@ var helpTmpl = template.Must(template.New("help").Funcs(template.FuncMap{
 <body class="help">
 <main>
 <h1>veer cell functions</h1>
-<p class="caution">veer is a screening aid. A signal is a prompt for review by a licensed clinician under local occupational-health rules, not a diagnosis.</p>
+<p class="caution">veer is a screening aid. {{.Caution}}</p>
 <p>Models are named by bare name (<code>sbp</code>: its latest version; cells update when it is refitted) or by handle (<code>sbp@v2</code>: that exact version). Options are text like <code>target=20; side=up</code> or a two-column range of names and values.</p>
 <nav aria-label="Functions"><ul>{{range .Functions}}<li><a href="#{{.Name}}">{{.Name}}</a></li>{{end}}</ul></nav>
 {{range .Functions}}

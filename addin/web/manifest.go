@@ -6,6 +6,8 @@ import (
 	"net/url"
 	"strings"
 	"text/template"
+
+	"veer/functions/screening"
 )
 
 // AddinID identifies the veer add-in to hosts (a fixed GUID: hosts key
@@ -44,7 +46,7 @@ func Manifest(base string) ([]byte, error) {
 		return nil, err
 	}
 	var buf bytes.Buffer
-	if err := manifestTmpl.Execute(&buf, struct{ ID, Version, URL, Namespace string }{AddinID, AddinVersion, base + "/addin/", Namespace}); err != nil {
+	if err := manifestTmpl.Execute(&buf, struct{ ID, Version, URL, Namespace, Caution string }{AddinID, AddinVersion, base + "/addin/", Namespace, screening.Caution}); err != nil {
 		return nil, err
 	}
 	return buf.Bytes(), nil
@@ -64,7 +66,7 @@ var manifestTmpl = template.Must(template.New("manifest").Parse(`<?xml version="
   <ProviderName>veer</ProviderName>
   <DefaultLocale>en-US</DefaultLocale>
   <DisplayName DefaultValue="veer screening"/>
-  <Description DefaultValue="Screens workers' medical exams against age-dependent reference curves of healthy workers, computed by the veer server on this computer. A signal prompts review by a licensed clinician; it is not a diagnosis."/>
+  <Description DefaultValue="Screens workers' medical exams against age-dependent reference curves of healthy workers, computed by the veer server on this computer. {{html .Caution}}"/>
   <IconUrl DefaultValue="{{html .URL}}icon-32.png"/>
   <HighResolutionIconUrl DefaultValue="{{html .URL}}icon-64.png"/>
   <SupportUrl DefaultValue="{{html .URL}}help.html"/>

@@ -7,6 +7,7 @@ import (
 	"strings"
 
 	"veer/functions/cell"
+	"veer/functions/screening"
 )
 
 // Namespace is the prefix the host shows before every function name
@@ -151,8 +152,9 @@ func CatalogJS(l cell.Listing) ([]byte, error) {
 		Namespace string               `json:"namespace"`
 		Functions []runtimeFunc        `json:"functions"`
 		Codes     map[cell.Code]string `json:"codes"`
+		Caution   string               `json:"caution"` // screening.Caution, for the task pane's texts
 	}
-	t := table{Namespace: Namespace, Functions: []runtimeFunc{}, Codes: l.Codes}
+	t := table{Namespace: Namespace, Functions: []runtimeFunc{}, Codes: l.Codes, Caution: screening.Caution}
 	for _, f := range l.Functions {
 		rf := runtimeFunc{ID: FunctionID(f.Name), Name: f.Name, Result: f.Result, Streaming: f.Streaming, Writes: f.Writes, Slow: f.Slow, Params: []runtimeParam{}}
 		for _, p := range f.Params {

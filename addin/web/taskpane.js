@@ -10,6 +10,7 @@
  * worker, group, ages, values, options, unit}) draws a worker's charts:
  * (await import("./taskpane.js")).showWorker(...).
  */
+import catalog from "./catalog.js";
 import * as veer from "./veer.js";
 
 const SVGNS = "http://www.w3.org/2000/svg";
@@ -403,7 +404,7 @@ function summarise(d, ages, nOut, chart) {
   if (!chart.rows) s += `The chart could not be computed: ${errText(d.chartErr)}`;
   else if (chart.signals.length) {
     s += `The chart crossed its limit (h = ${fmt(chart.limit, 3)}) first at age ${fmt(chart.first ?? ages[chart.signals[0]], 3)}` +
-      `, with ${plural(chart.signals.length, "signalling exam")}: a prompt for review by a licensed clinician, not a diagnosis.`;
+      `, with ${plural(chart.signals.length, "signalling exam")}. ${catalog.caution}`;
   } else s += `No signal: the chart statistic stayed below its limit (h = ${fmt(chart.limit, 3)}).`;
   if (d.bandErr) s += ` Reference band: ${errText(d.bandErr)}`;
   return s;

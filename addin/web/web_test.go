@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"encoding/xml"
 	"fmt"
+	"html"
 	"image/png"
 	"io"
 	"io/fs"
@@ -19,6 +20,7 @@ import (
 
 	"veer/functions/catalog"
 	"veer/functions/cell"
+	"veer/functions/screening"
 )
 
 // hostShapes is how each catalogue parameter type reaches the host (type,
@@ -541,4 +543,40 @@ func ExampleSite() {
 	// functions.json true
 	// catalog.js true
 	// manifest.xml true
+}
+
+// TestCautionWordForWord: every page of the add-in that speaks of signals
+// carries screening.Caution word for word. The static pages (HTML written
+// by hand) are checked here; the generated ones take the constant; the task
+// pane's script takes it from catalog.js.
+func TestCautionWordForWord(t *testing.T) {
+	site, err := Site(listing(t), SiteOptions{BaseURL: func() string { return DefaultBaseURL }})
+	if err != nil {
+		t.Fatal(err)
+	}
+	caution := html.EscapeString(screening.Caution)
+	for _, name := range []string{"index.html", "taskpane.html", "help.html", "manifest.xml", "catalog.js"} {
+		b, err := fs.ReadFile(site, name)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !bytes.Contains(b, []byte(caution)) {
+			t.Errorf("%s does not carry the caution %q word for word", name, screening.Caution)
+		}
+	}
+	// The task pane's worker summary says it through catalog.js, and no
+	// script words the caution its own way.
+	for _, name := range []string{"taskpane.js", "veer.js", "client.js"} {
+		b, err := fs.ReadFile(site, name)
+		if err != nil {
+			t.Fatal(err)
+		}
+		code := regexp.MustCompile(`(?s)/\*.*?\*/|//[^\n]*`).ReplaceAll(b, nil) // comments may speak of it
+		if bytes.Contains(code, []byte("diagnosis")) {
+			t.Errorf("%s words the caution itself; use catalog.caution", name)
+		}
+	}
+	if b, _ := fs.ReadFile(site, "taskpane.js"); !bytes.Contains(b, []byte("${catalog.caution}")) {
+		t.Error("taskpane.js does not show catalog.caution with a signal")
+	}
 }

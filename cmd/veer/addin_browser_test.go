@@ -30,6 +30,7 @@ import (
 
 	"veer/examples"
 	"veer/functions/catalog"
+	"veer/functions/screening"
 	"veer/internal/browsertest"
 	"veer/server"
 )
@@ -735,7 +736,7 @@ func TestTaskPaneInBrowser(t *testing.T) {
 	if d.Readings != len(w.Ages) || d.Signals != signals || signals == 0 || d.Limits != 1 || d.Bands < 2 || d.Medians < 1 {
 		t.Errorf("drawn: %d readings (want %d), %d signals (server: %d), %d limit lines, %d band areas, %d median lines", d.Readings, len(w.Ages), d.Signals, signals, d.Limits, d.Bands, d.Medians)
 	}
-	if !strings.Contains(d.Title, w.Worker) || !strings.Contains(d.Desc, "limit") || !strings.Contains(d.Summary, "licensed clinician") {
+	if !strings.Contains(d.Title, w.Worker) || !strings.Contains(d.Desc, "limit") || !strings.Contains(d.Summary, screening.Caution) {
 		t.Errorf("text alternatives: title %q, description %q, summary %q", d.Title, d.Desc, d.Summary)
 	}
 

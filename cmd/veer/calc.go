@@ -9,6 +9,7 @@ import (
 
 	"veer/addin/calc"
 	"veer/functions/catalog"
+	"veer/functions/screening"
 	"veer/internal/atomicfile"
 )
 
@@ -65,6 +66,6 @@ func runCalcExtension(e *env, args []string) error {
 	fmt.Fprintf(e.stdout, "%s\n", *out)
 	fmt.Fprintf(e.stderr, "wrote %s: %d VEER functions for LibreOffice Calc (type library compiled with %s)\n", *out, len(fns), sdk.UnoidlWrite)
 	fmt.Fprintf(e.stderr, "Install it with: unopkg add %s   (as root: unopkg add --shared %s), then run 'veer serve' and open Calc.\n", *out, *out)
-	fmt.Fprintln(e.stderr, caution)
+	fmt.Fprintln(e.stderr, screening.Caution)
 	return nil
 }

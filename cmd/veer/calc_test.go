@@ -23,6 +23,7 @@ import (
 
 	"veer/addin/calc"
 	"veer/functions/catalog"
+	"veer/functions/screening"
 	"veer/internal/table"
 	"veer/server"
 )
@@ -75,7 +76,7 @@ func TestCalcExtensionCommand(t *testing.T) {
 	if err != nil {
 		t.Fatalf("calc-extension: %v\n%s", err, stderr)
 	}
-	if strings.TrimSpace(stdout) != out || !strings.Contains(stderr, "unopkg add") || !strings.Contains(stderr, "licensed clinician") {
+	if strings.TrimSpace(stdout) != out || !strings.Contains(stderr, "unopkg add") || !strings.Contains(stderr, screening.Caution) {
 		t.Errorf("calc-extension output: stdout %q, stderr %q", stdout, stderr)
 	}
 	zr, err := zip.OpenReader(out)

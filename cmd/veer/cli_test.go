@@ -411,7 +411,7 @@ func screenOut(t *testing.T, in string, extra ...string) *table.Table {
 	if stdout != "" {
 		t.Errorf("screen with --out wrote to stdout: %q", stdout)
 	}
-	if !strings.Contains(stderr, "not a diagnosis") {
+	if !strings.Contains(stderr, screening.Caution) {
 		t.Errorf("screen's stderr does not say a signal is not a diagnosis: %s", stderr)
 	}
 	b, err := os.ReadFile(out)

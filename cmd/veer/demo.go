@@ -139,7 +139,7 @@ func runDemo(e *env, args []string) error {
 		return err
 	}
 	fmt.Fprintf(e.stderr, "\nwritten to %s/ in %.1f s\n", *out, time.Since(start).Seconds())
-	fmt.Fprintln(e.stderr, caution)
+	fmt.Fprintln(e.stderr, screening.Caution)
 	fmt.Fprintln(e.stderr, "Next: run 'veer serve' and open a workbook with the add-in, or screen your own CSV with 'veer fit' and 'veer screen' (see README).")
 	return nil
 }

@@ -15,6 +15,8 @@ import (
 	"os"
 	"runtime/debug"
 	"strings"
+
+	"veer/functions/screening"
 )
 
 // command is one veer subcommand.
@@ -62,8 +64,6 @@ func commands() []command {
 // tables, reports): they hold health data, so only their owner reads them.
 const outputPerm = 0o600
 
-const caution = "A signal is a prompt for review by a licensed clinician under local occupational-health rules, not a diagnosis."
-
 func mainUsage(w io.Writer) {
 	fmt.Fprintln(w, "veer — screening of workers' medical exams against healthy reference curves")
 	fmt.Fprintln(w)
@@ -74,7 +74,7 @@ func mainUsage(w io.Writer) {
 		fmt.Fprintf(w, "  %-8s %s\n", c.name, c.summary)
 	}
 	fmt.Fprintln(w)
-	fmt.Fprintln(w, caution)
+	fmt.Fprintln(w, screening.Caution)
 }
 
 func main() {

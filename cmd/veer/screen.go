@@ -143,7 +143,7 @@ func (j *screenJob) summary(e *env) {
 		}
 	}
 	fmt.Fprintf(e.stderr, "screened %d exams of %d workers at limit %.4f: %d workers signalled\n", len(j.results), workers, j.limit.H, flagged)
-	fmt.Fprintln(e.stderr, caution)
+	fmt.Fprintln(e.stderr, screening.Caution)
 }
 
 // fired turns a rule column into true/false per row (a label counts as

@@ -201,7 +201,7 @@ func runServe(e *env, args []string) error {
 		fmt.Fprintln(e.stderr, "Spreadsheets load add-ins only over HTTPS: use --tls for the web add-in.")
 	}
 	fmt.Fprintln(e.stderr, "Built-in models: demo-sbp, demo-fev1. Writing (fitting) needs the token printed by 'veer token'.")
-	fmt.Fprintln(e.stderr, caution)
+	fmt.Fprintln(e.stderr, screening.Caution)
 	err = <-done
 	fmt.Fprintln(e.stderr, "veer stopped.")
 	return err

@@ -8,11 +8,8 @@ import (
 
 	"veer/examples"
 	"veer/internal/table"
+	refresh "veer/internal/workbook" // the caution matches the sheets veer screen writes
 )
-
-// Caution is the screening-aid statement written into the workbooks.
-const Caution = "Screening aid, not a diagnosis: a signal or a fired rule prompts review of the worker by a licensed " +
-	"clinician under local occupational-health rules."
 
 // expr is a formula expression that can be written in both spreadsheet
 // syntaxes: Excel's A1 syntax (in .xlsx) and OpenFormula (in .ods).
@@ -242,7 +239,7 @@ func settingsSheet() *sheet {
 	s := newSheet(SettingsSheet)
 	s.widths[0], s.widths[1], s.widths[2] = 16, 32, 70
 	s.bold(0, 0, "veer settings: the cells the Screening sheet's formulas read")
-	s.set(1, 0, cell{kind: kText, text: Caution, bold: true})
+	s.set(1, 0, cell{kind: kText, text: refresh.Caution, bold: true})
 	block := func(title string, modelRow int, model, rule, side string) {
 		r := modelRow - 2 // 0-based title row
 		s.bold(r, 0, title)
@@ -362,7 +359,7 @@ func screeningSheet(nExams, nRef int) *sheet {
 	kc := c + 1 // label column (0-based); values in kc+1
 	s.widths[kc], s.widths[kc+1] = 44, 22
 	s.bold(0, kc, "veer screening of the Exams sheet")
-	s.set(1, kc, cell{kind: kText, text: Caution, bold: true, wrap: true})
+	s.set(1, kc, cell{kind: kText, text: refresh.Caution, bold: true, wrap: true})
 	row := 3
 	item := func(label string, e expr) {
 		s.text(row, kc, label)

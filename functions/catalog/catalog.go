@@ -16,7 +16,7 @@ import (
 	"veer/functions/screening"
 )
 
-const caution = " A signal is a prompt for review by a licensed clinician under local occupational-health rules, not a diagnosis."
+const caution = " " + screening.Caution
 
 // Option names used by this catalogue beyond cell's shared ones.
 var chartOptions = []string{

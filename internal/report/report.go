@@ -17,11 +17,11 @@ import (
 )
 
 // Caution is the screening-aid statement every report carries, at the top
-// and at the end.
-const Caution = "veer is a screening aid, not a diagnosis. A signal or a fired rule means only that a worker's " +
-	"readings are moving away from what is usual for healthy workers of the same age and group; it prompts " +
-	"review of the worker by a licensed clinician under local occupational-health rules. Do not use this report " +
-	"to make decisions about a worker's fitness, employment or treatment without that review."
+// and at the end: screening.Caution and what a signal does and does not
+// mean.
+const Caution = "veer is a screening aid. " + screening.Caution + " A signal or a fired rule means only that a " +
+	"worker's readings are moving away from what is usual for healthy workers of the same age and group. Do not " +
+	"use this report to make decisions about a worker's fitness, employment or treatment without that review."
 
 // DefaultMaxPanels is the number of flagged-worker panels shown per marker
 // when Data.MaxPanels is 0.
@@ -125,6 +125,7 @@ type kv struct{ Label, Value string }
 
 type page struct {
 	Title, Generated, Source, Caution string
+	Signal                            string // screening.Caution, beside the flagged workers
 	Sections                          []*sectionView
 }
 
@@ -233,7 +234,7 @@ func groupWorkers(s *Section) []*workerView {
 }
 
 func buildPage(d Data) (*page, error) {
-	p := &page{Title: d.Title, Generated: d.Generated, Source: d.Source, Caution: Caution}
+	p := &page{Title: d.Title, Generated: d.Generated, Source: d.Source, Caution: Caution, Signal: screening.Caution}
 	if p.Title == "" {
 		p.Title = "veer screening report"
 	}

@@ -108,7 +108,7 @@ reading crosses a fixed cut-off, and it can also flag healthy workers by chance 
 {{end}}</ul>{{end}}
 <h3>Flagged workers</h3>
 <p>{{.PanelNote}} Left: the worker's readings against the reference band of the worker's group. Right: the chart statistic against the limit.
-Each signal prompts review by a licensed clinician under local occupational-health rules; it is not a diagnosis.</p>
+{{$.Signal}}</p>
 {{if .Panels}}<figure class="key">{{.Legend}}</figure>{{end}}
 {{range .Panels}}<div class="panel" id="{{.Anchor}}">
 <h4>{{.N}}. Worker {{.Worker}}</h4>

@@ -26,9 +26,9 @@ const (
 	DefaultChartWorkers = 40
 )
 
-// Caution is written on the summary sheet.
-const Caution = "Screening aid, not a diagnosis: a signal or a fired rule prompts review of the worker by a licensed " +
-	"clinician under local occupational-health rules."
+// Caution is written on the summary sheet (and in the example workbooks):
+// screening.Caution, and the same for alert rules.
+const Caution = "Screening aid. " + screening.Caution + " The same holds for an alert rule that fires."
 
 // RefreshOptions control Refresh.
 type RefreshOptions struct {

@@ -14,6 +14,8 @@ import (
 	"testing"
 
 	"github.com/xuri/excelize/v2"
+
+	"veer/functions/screening"
 )
 
 type cellSnap struct {
@@ -332,7 +334,7 @@ func checkResults(t *testing.T, path string, data ResultsData) {
 	if charts == 0 {
 		t.Error("no chart part in the refreshed workbook")
 	}
-	if !strings.Contains(strings.Join(flatten(srows), "\n"), "licensed clinician") {
+	if !strings.Contains(strings.Join(flatten(srows), "\n"), screening.Caution) {
 		t.Error("summary sheet lacks the screening-aid caution")
 	}
 }
