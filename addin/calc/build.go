@@ -60,12 +60,12 @@ const catalogueMarker = "CATALOGUE = []  # @@CATALOGUE@@"
 
 // Param is one parameter of an extension function.
 type Param struct {
-	Name     string `json:"name"`     // the catalogue's name, shown in the Function Wizard
-	Type     string `json:"type"`     // the catalogue's type (number, text, bool, range, any)
-	Optional bool   `json:"optional"` // may be left out
-	Help     string `json:"help"`
-	IDL      string `json:"idl"`      // UNO type of the IDL parameter
-	IDLName  string `json:"idl_name"` // identifier in the IDL and CalcAddIns.xcu
+	Name     string    `json:"name"`     // the catalogue's name, shown in the Function Wizard
+	Type     cell.Type `json:"type"`     // the catalogue's type (number, text, bool, range, any)
+	Optional bool      `json:"optional"` // may be left out
+	Help     string    `json:"help"`
+	IDL      string    `json:"idl"`      // UNO type of the IDL parameter
+	IDLName  string    `json:"idl_name"` // identifier in the IDL and CalcAddIns.xcu
 }
 
 // Func is one cell function of the extension.

@@ -66,7 +66,7 @@ type (
 // paramShape maps a catalogue parameter type to the host's type and
 // dimensionality. Ranges and "any" (options: text or a two-column range)
 // arrive as 2-D arrays; the runtime turns a 1x1 "any" back into its value.
-func paramShape(t string) (typ, dim string) {
+func paramShape(t cell.Type) (typ, dim string) {
 	switch t {
 	case cell.TypeNumber:
 		return "number", "scalar"
@@ -138,9 +138,9 @@ type runtimeFunc struct {
 }
 
 type runtimeParam struct {
-	Name     string `json:"name"`
-	Type     string `json:"type"` // the catalogue's type: number, text, bool, range or any
-	Optional bool   `json:"optional"`
+	Name     string    `json:"name"`
+	Type     cell.Type `json:"type"` // the catalogue's type: number, text, bool, range or any
+	Optional bool      `json:"optional"`
 }
 
 // CatalogJS returns catalog.js, a JavaScript module whose default export is

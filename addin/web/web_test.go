@@ -26,7 +26,7 @@ import (
 // hostShapes is how each catalogue parameter type reaches the host (type,
 // dimensionality): ranges and options (text or a two-column range) as
 // matrices, single values as scalars of the host's types.
-var hostShapes = map[string][2]string{
+var hostShapes = map[cell.Type][2]string{
 	cell.TypeNumber: {"number", "scalar"}, cell.TypeText: {"string", "scalar"}, cell.TypeBool: {"boolean", "scalar"},
 	cell.TypeRange: {"any", "matrix"}, cell.TypeAny: {"any", "matrix"},
 }

@@ -20,6 +20,7 @@ import (
 	"veer/functions/refcurve"
 	"veer/functions/rules"
 	"veer/functions/screening"
+	"veer/functions/transform"
 	"veer/internal/atomicfile"
 	"veer/internal/report"
 	"veer/internal/table"
@@ -28,7 +29,9 @@ import (
 
 // demoMarker describes one marker of the embedded demo scenario.
 type demoMarker struct {
-	name, title, column, unit, transform, side string
+	name, title, column, unit string
+	transform                 transform.Name
+	side                      chart.Side
 	// cutoff is the reference centile of the fixed cut-off rule.
 	cutoff float64
 }

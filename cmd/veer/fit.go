@@ -10,6 +10,7 @@ import (
 
 	"veer/functions/refcurve"
 	"veer/functions/screening"
+	"veer/functions/transform"
 	"veer/internal/atomicfile"
 	"veer/internal/table"
 )
@@ -125,7 +126,7 @@ func runFit(e *env, args []string) error {
 	in := fs.String("in", "", "CSV file of healthy reference workers' exams, one row per exam (required)")
 	name := fs.String("name", "", "name of the model, e.g. sbp (required)")
 	out := fs.String("out", "", "file to write the model to (required)")
-	transform := fs.String("transform", "none", "value transform: none, log or boxcox (lambda by maximum likelihood)")
+	tr := fs.String("transform", string(transform.None), "value transform: none, log or boxcox (lambda by maximum likelihood)")
 	bw := fs.Float64("bandwidth", 0, "bandwidth of the mean curve in years (0: chosen by leave-one-worker-out cross-validation)")
 	minWorkers := fs.Int("min-workers", 0, "fewest workers a group needs (0: the default)")
 	if err := parseFlags(fs, args); err != nil {
@@ -134,10 +135,10 @@ func runFit(e *env, args []string) error {
 	if err := required("in", *in, "name", *name, "out", *out); err != nil {
 		return err
 	}
-	switch *transform {
-	case "none", "log", "boxcox":
+	switch transform.Name(*tr) {
+	case transform.None, transform.Log, transform.BoxCox:
 	default:
-		return usagef("--transform must be none, log or boxcox, not %q", *transform)
+		return usagef("--transform must be none, log or boxcox, not %q", *tr)
 	}
 	if *bw < 0 {
 		return usagef("--bandwidth must be positive (or 0 to choose it)")
@@ -154,7 +155,7 @@ func runFit(e *env, args []string) error {
 	m, err := screening.Fit(context.Background(), rows, screening.FitOptions{
 		Name: *name,
 		Curves: refcurve.Options{
-			Transform:  *transform,
+			Transform:  transform.Name(*tr),
 			Bandwidth:  *bw,
 			MinWorkers: *minWorkers,
 			Progress:   p.report,

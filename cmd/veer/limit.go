@@ -24,14 +24,14 @@ type chartFlags struct {
 
 func (c *chartFlags) register(fs *flag.FlagSet) {
 	d := chart.DefaultSpec()
-	fs.StringVar(&c.kind, "chart", d.Kind, "chart: cusum or ewma")
-	fs.StringVar(&c.side, "side", d.Side, "direction of drift to detect: up, down or both")
+	fs.StringVar(&c.kind, "chart", string(d.Kind), "chart: cusum or ewma")
+	fs.StringVar(&c.side, "side", string(d.Side), "direction of drift to detect: up, down or both")
 	fs.Float64Var(&c.allowance, "allowance", d.Allowance, "CUSUM allowance k, in SDs (half the shift to detect fastest)")
 	fs.Float64Var(&c.lambda, "lambda", d.Lambda, "EWMA smoothing weight per unit of time, in (0,1]")
 	fs.Float64Var(&c.unit, "unit", d.UnitOrDefault(), "EWMA time unit in years (the weight of an exam after a gap d is 1-(1-lambda)^(d/unit))")
 	fs.Float64Var(&c.headStart, "head-start", 0, "fast initial response: start the CUSUM at this fraction of the limit (0 to 1)")
 	fs.BoolVar(&c.restart, "restart", false, "restart the chart after a signal")
-	fs.StringVar(&c.serial, "serial", screening.SerialWhiten, "serial correlation: whiten (chart each reading against the worker's own predicted level, the Kalman innovation), direct (chart z; the limit carries the correlation) or off (ignore it)")
+	fs.StringVar(&c.serial, "serial", string(screening.SerialWhiten), "serial correlation: whiten (chart each reading against the worker's own predicted level, the Kalman innovation), direct (chart z; the limit carries the correlation) or off (ignore it)")
 	fs.StringVar(&c.method, "method", string(monitor.Normal), "how the limit is computed: normal or bootstrap")
 	fs.StringVar(&c.horizon, "horizon", string(monitor.HorizonFollowUp), "what the target counts: followup (worker-years of exams per false signal, workers followed as long as the reference workers; needs --model) or long (one worker with an unending exam history, the textbook average time to signal)")
 	fs.Float64Var(&c.gap, "gap", 0, "planned years between exams (0: the reference workers' own gaps; needed without --model)")
@@ -42,10 +42,10 @@ func (c *chartFlags) register(fs *flag.FlagSet) {
 func (c *chartFlags) settings() (screening.Settings, error) {
 	s := screening.Settings{
 		Chart: chart.Spec{
-			Kind: c.kind, Side: c.side, Allowance: c.allowance, Lambda: c.lambda,
+			Kind: chart.Kind(c.kind), Side: chart.Side(c.side), Allowance: c.allowance, Lambda: c.lambda,
 			Unit: c.unit, HeadStart: c.headStart, Restart: c.restart,
 		},
-		Serial: c.serial,
+		Serial: screening.Serial(c.serial),
 	}
 	if err := s.Chart.Validate(); err != nil {
 		return s, usageError{err.Error()}

@@ -14,6 +14,7 @@ import (
 	"veer/functions/refcurve"
 	"veer/functions/rules"
 	"veer/functions/screening"
+	"veer/functions/transform"
 )
 
 const caution = " " + screening.Caution
@@ -392,8 +393,8 @@ func chartSettings(o cell.Options) (screening.Settings, screening.LimitOptions, 
 	d := chart.DefaultSpec()
 	s := screening.Settings{
 		Chart: chart.Spec{
-			Kind:      o.Text(cell.OptionChart, d.Kind),
-			Side:      o.Text(cell.OptionSide, d.Side),
+			Kind:      chart.Kind(o.Text(cell.OptionChart, string(d.Kind))),
+			Side:      chart.Side(o.Text(cell.OptionSide, string(d.Side))),
 			Allowance: o.Number(cell.OptionAllowance, d.Allowance),
 			Lambda:    o.Number(cell.OptionLambda, d.Lambda),
 			Unit:      o.Number(cell.OptionUnit, d.UnitOrDefault()),
@@ -402,7 +403,7 @@ func chartSettings(o cell.Options) (screening.Settings, screening.LimitOptions, 
 		},
 		// Not given: "" (the engine's default, whiten, with a model; no
 		// serial correlation without one).
-		Serial: o.Text(cell.OptionSerial, ""),
+		Serial: screening.Serial(o.Text(cell.OptionSerial, "")),
 
 		Extrapolate: o.Bool(cell.OptionExtrapolate, false),
 	}
@@ -858,7 +859,7 @@ func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		rows[i] = refcurve.Row{Worker: e.Worker, Group: e.Group, Time: e.Time, Value: e.Value}
 	}
 	opt := screening.FitOptions{Name: name, Curves: refcurve.Options{
-		Transform:  o.Text(cell.OptionTransform, "none"),
+		Transform:  transform.Name(o.Text(cell.OptionTransform, string(transform.None))),
 		Bandwidth:  o.Number(cell.OptionBandwidth, 0),
 		MinWorkers: int(o.Number(cell.OptionMinWorkers, 0)),
 		Progress:   func(stage string, done float64) { env.Progress(done) },

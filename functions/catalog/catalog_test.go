@@ -378,12 +378,12 @@ func TestChart(t *testing.T) {
 	for _, opts := range []string{"limit=3", "limit=2.5; side=both; allowance=0.25", "limit=0.8; chart=ewma; lambda=0.2", "target=30; serial=whiten", "target=25; serial=off; restart=on"} {
 		o, _ := cell.ParseOptions("t", []string{"limit", "target", "side", "allowance", "chart", "lambda", "serial", "restart"}, cell.ScalarValue(cell.TextCell(opts)), "o")
 		set := screening.DefaultSettings()
-		set.Chart.Side = o.Text("side", set.Chart.Side)
+		set.Chart.Side = chart.Side(o.Text("side", string(set.Chart.Side)))
 		set.Chart.Allowance = o.Number("allowance", set.Chart.Allowance)
-		set.Chart.Kind = o.Text("chart", set.Chart.Kind)
+		set.Chart.Kind = chart.Kind(o.Text("chart", string(set.Chart.Kind)))
 		set.Chart.Lambda = o.Number("lambda", set.Chart.Lambda)
 		set.Chart.Restart = o.Bool("restart", false)
-		set.Serial = o.Text("serial", set.Serial)
+		set.Serial = screening.Serial(o.Text("serial", string(set.Serial)))
 		h := o.Number("limit", 0)
 		if o.Has("target") {
 			r, err := m.Limit(set, screening.LimitOptions{}, o.Number("target", 0))
@@ -576,9 +576,9 @@ func TestLimit(t *testing.T) {
 		o, _ := cell.ParseOptions("t", []string{"gap", "allowance", "chart", "lambda", "side", "headstart"}, cell.ScalarValue(cell.TextCell(opts)), "o")
 		spec := chart.DefaultSpec()
 		spec.Allowance = o.Number("allowance", spec.Allowance)
-		spec.Kind = o.Text("chart", spec.Kind)
+		spec.Kind = chart.Kind(o.Text("chart", string(spec.Kind)))
 		spec.Lambda = o.Number("lambda", spec.Lambda)
-		spec.Side = o.Text("side", spec.Side)
+		spec.Side = chart.Side(o.Text("side", string(spec.Side)))
 		spec.HeadStart = o.Number("headstart", 0)
 		c := monitor.Calibration{Settings: monitor.Settings{Chart: spec, Mode: monitor.Direct}, Method: monitor.Normal, Gap: o.Number("gap", 0), Seed: screening.DefaultSeed}
 		want, err := monitor.Limit(c, 20)
@@ -594,8 +594,8 @@ func TestLimit(t *testing.T) {
 	for _, opts := range []string{"", "side=both", "serial=whiten", "serial=off", "serial=direct", "method=bootstrap; reps=500", "horizon=long", "horizon=followup; seed=7"} {
 		o, _ := cell.ParseOptions("t", []string{"side", "serial", "method", "reps", "horizon", "seed"}, cell.ScalarValue(cell.TextCell(opts)), "o")
 		set := screening.DefaultSettings()
-		set.Chart.Side = o.Text("side", set.Chart.Side)
-		set.Serial = o.Text("serial", set.Serial)
+		set.Chart.Side = chart.Side(o.Text("side", string(set.Chart.Side)))
+		set.Serial = screening.Serial(o.Text("serial", string(set.Serial)))
 		lo := screening.LimitOptions{Method: monitor.Method(o.Text("method", "normal")), Paths: int(o.Number("reps", 0)),
 			Seed: uint64(o.Number("seed", screening.DefaultSeed)), Horizon: monitor.Horizon(o.Text("horizon", ""))}
 		want, err := m.Limit(set, lo, 20)

@@ -2,10 +2,15 @@ package catalog_test
 
 import (
 	"context"
+	"slices"
 	"strings"
 	"testing"
 
 	"veer/functions/cell"
+	"veer/functions/chart"
+	"veer/functions/monitor"
+	"veer/functions/screening"
+	"veer/functions/transform"
 )
 
 // TestErrorContract drives every kind of failure of the error-code
@@ -131,4 +136,31 @@ func TestHelpStatesTheContract(t *testing.T) {
 	if !strings.Contains(o.Help, "off: "+string(cell.OutsideReference.Code())) {
 		t.Errorf("the extrapolate option's help %q disagrees with the contract", o.Help)
 	}
+}
+
+// The choices of the shared options are the statistics' own typed sets, so
+// a cell accepts exactly what the engine does.
+func TestOptionChoicesAreTheTypedSets(t *testing.T) {
+	want := map[string][]string{
+		cell.OptionChart:     names(chart.Kinds),
+		cell.OptionSide:      names(chart.Sides),
+		cell.OptionTransform: names(transform.Names),
+		cell.OptionMethod:    names([]monitor.Method{monitor.Normal, monitor.Bootstrap}),
+		cell.OptionHorizon:   names([]monitor.Horizon{monitor.HorizonFollowUp, monitor.HorizonLong}),
+		cell.OptionSerial:    append(names([]screening.Serial{screening.SerialWhiten, screening.SerialDirect, screening.SerialOff}), "on"),
+	}
+	for name, choices := range want {
+		o, ok := cell.LookupOption(name)
+		if !ok || o.Type != cell.TypeChoice || !slices.Equal(o.Choices, choices) {
+			t.Errorf("option %s: %s %q; want choices %q", name, o.Type, o.Choices, choices)
+		}
+	}
+}
+
+func names[T ~string](xs []T) []string {
+	out := make([]string, len(xs))
+	for i, x := range xs {
+		out[i] = string(x)
+	}
+	return out
 }

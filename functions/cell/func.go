@@ -19,20 +19,36 @@ const (
 	ShapeTable  Shape = "table"  // rows and columns that spill
 )
 
-// Parameter types. They are checked before a function runs, so an entry's
-// Call only sees arguments of the declared type.
+// Type is the type of a parameter or of an option's value: one set for
+// both, as the listing and the add-ins read them. Parameters take number,
+// text, bool, range or any; options take number, text, bool or choice.
+type Type string
+
+// Types. A parameter's type is checked before a function runs, so an
+// entry's Call only sees arguments of the declared type; an option's value
+// is checked and converted when the options are parsed.
 const (
-	TypeNumber = "number" // a single number (a 1x1 range is accepted)
-	TypeText   = "text"   // a single text; a number is accepted and formatted as text
-	TypeBool   = "bool"   // a single TRUE/FALSE (also 1/0, "yes"/"no", "on"/"off")
-	TypeRange  = "range"  // a range of cells (a single cell is a 1x1 range)
-	TypeAny    = "any"    // anything, including error values (options use this)
+	TypeNumber Type = "number" // a single number (a 1x1 range is accepted); an option: a finite number
+	TypeText   Type = "text"   // a single text; a number is accepted and formatted as text
+	TypeBool   Type = "bool"   // a single TRUE/FALSE (also 1/0, "yes"/"no", "on"/"off")
+	TypeRange  Type = "range"  // a range of cells (a single cell is a 1x1 range); parameters only
+	TypeAny    Type = "any"    // anything, including error values (options use this); parameters only
+	TypeChoice Type = "choice" // one of the option's Choices, case-insensitive; options only
 )
+
+// forParam reports whether t is a valid parameter type.
+func (t Type) forParam() bool {
+	switch t {
+	case TypeNumber, TypeText, TypeBool, TypeRange, TypeAny:
+		return true
+	}
+	return false
+}
 
 // Param describes one parameter of a cell function.
 type Param struct {
 	Name     string `json:"name"`
-	Type     string `json:"type"`
+	Type     Type   `json:"type"`
 	Optional bool   `json:"optional,omitempty"`
 	Help     string `json:"help"`
 }
@@ -103,9 +119,7 @@ func (f *Func) validate() error {
 			return fmt.Errorf("cell: %s has two parameters named %q", f.Name, p.Name)
 		}
 		seen[p.Name] = true
-		switch p.Type {
-		case TypeNumber, TypeText, TypeBool, TypeRange, TypeAny:
-		default:
+		if !p.Type.forParam() {
 			return fmt.Errorf("cell: %s parameter %q has type %q; want number, text, bool, range or any", f.Name, p.Name, p.Type)
 		}
 		if p.Optional {

@@ -129,11 +129,11 @@ func TestSharedOptionsAreValid(t *testing.T) {
 		}
 		seen[o.Name] = true
 		switch o.Type {
-		case OptChoice:
+		case TypeChoice:
 			if len(o.Choices) < 2 {
 				t.Errorf("choice option %s has %d choices", o.Name, len(o.Choices))
 			}
-		case OptNumber, OptText, OptBool:
+		case TypeNumber, TypeText, TypeBool:
 		default:
 			t.Errorf("option %s has type %q", o.Name, o.Type)
 		}

@@ -143,15 +143,15 @@ func FuzzOptionsText(f *testing.F) {
 			}
 			c := o.vals[n]
 			switch decl.Type {
-			case OptNumber:
+			case TypeNumber:
 				if c.Kind != KindNumber || !numeric.Finite(c.Num) {
 					t.Fatalf("option %s = %v", n, c)
 				}
-			case OptBool:
+			case TypeBool:
 				if c.Kind != KindBool {
 					t.Fatalf("option %s = %v", n, c)
 				}
-			case OptChoice, OptText:
+			case TypeChoice, TypeText:
 				if c.Kind != KindText {
 					t.Fatalf("option %s = %v", n, c)
 				}

@@ -8,14 +8,6 @@ import (
 	"veer/internal/numeric"
 )
 
-// Option value types.
-const (
-	OptNumber = "number" // a finite number
-	OptText   = "text"   // any text; numbers are formatted as text
-	OptBool   = "bool"   // on/off, yes/no, true/false, 1/0, TRUE/FALSE
-	OptChoice = "choice" // one of Choices, case-insensitive
-)
-
 // Names of the options shared by several functions. They are declared once
 // here so every function spells them the same way; a Func lists the ones it
 // accepts in Func.Options.
@@ -47,7 +39,7 @@ const (
 // Option declares one named option: its value type, allowed choices and help.
 type Option struct {
 	Name    string
-	Type    string
+	Type    Type // TypeNumber, TypeText, TypeBool or TypeChoice
 	Choices []string
 	Help    string
 }
@@ -55,7 +47,7 @@ type Option struct {
 // OptionInfo is the JSON form of an Option in the function listing.
 type OptionInfo struct {
 	Name    string   `json:"name"`
-	Type    string   `json:"type"`
+	Type    Type     `json:"type"`
 	Choices []string `json:"choices,omitempty"`
 	Help    string   `json:"help"`
 }
@@ -66,28 +58,28 @@ func (o Option) info() OptionInfo {
 
 // sharedOptions is the one table of option spellings. It is never modified.
 var sharedOptions = []Option{
-	{Name: OptionAllowance, Type: OptNumber, Help: "CUSUM allowance (reference value) k, in standard deviations; common practice is half the shift to be detected"},
-	{Name: OptionSide, Type: OptChoice, Choices: []string{"up", "down", "both"}, Help: "which drift to watch: up, down or both"},
-	{Name: OptionChart, Type: OptChoice, Choices: []string{"cusum", "ewma"}, Help: "chart statistic: cusum or ewma"},
-	{Name: OptionLambda, Type: OptNumber, Help: "EWMA weight per unit of time, in (0, 1]"},
-	{Name: OptionSerial, Type: OptChoice, Choices: []string{"whiten", "direct", "off", "on"}, Help: "how the correlation of a worker's readings is handled: whiten (the default: chart each reading against the worker's own predicted level, the Kalman-filter innovation; on means whiten), direct (chart z, the limit carries the correlation) or off (ignore it)"},
-	{Name: OptionTarget, Type: OptNumber, Help: "target average time to a false signal for a healthy worker, in years"},
-	{Name: OptionMethod, Type: OptChoice, Choices: []string{"normal", "bootstrap"}, Help: "how limits are calibrated: normal (exact for independent N(0,1) scores) or bootstrap (resampled reference workers)"},
-	{Name: OptionLimit, Type: OptNumber, Help: "control limit h; a chart statistic beyond it signals"},
-	{Name: OptionGap, Type: OptNumber, Help: "mean time between exams, in years"},
-	{Name: OptionHeadstart, Type: OptNumber, Help: "fast initial response head start, as a fraction of the limit, in [0, 1)"},
-	{Name: OptionShift, Type: OptNumber, Help: "size of a sustained shift, in standard deviations of the readings"},
-	{Name: OptionSeed, Type: OptNumber, Help: "random seed (a whole number); the same seed gives the same result"},
-	{Name: OptionReps, Type: OptNumber, Help: "number of simulated or resampled sequences"},
-	{Name: OptionTransform, Type: OptChoice, Choices: []string{"none", "log", "boxcox"}, Help: "transform of the readings before fitting: none, log or boxcox"},
-	{Name: OptionGroup, Type: OptText, Help: "group (for example sex or job group) whose reference curve is used"},
-	{Name: OptionUnit, Type: OptNumber, Help: "time unit, in years, of the gap-aware EWMA weight 1-(1-lambda)^(gap/unit)"},
-	{Name: OptionRestart, Type: OptBool, Help: "on: the chart statistic starts again after a signal; off: it carries on"},
-	{Name: OptionExtrapolate, Type: OptBool, Help: "on: answer times outside the reference age range from the nearest end of the curves; off: " + string(OutsideReference.Code()) + " there"},
-	{Name: OptionBandwidth, Type: OptNumber, Help: "smoothing bandwidth of the reference curves, in years; 0 or absent: chosen by cross-validation"},
-	{Name: OptionMinWorkers, Type: OptNumber, Help: "fewest reference workers a group needs to get its own curves"},
-	{Name: OptionOnset, Type: OptNumber, Help: "years after the first exam at which a sustained shift starts"},
-	{Name: OptionHorizon, Type: OptChoice, Choices: []string{"followup", "long"}, Help: "what the target counts: followup (the default with a model: worker-years of exams per false signal, workers followed as long as the reference workers) or long (one worker with an unending exam history)"},
+	{Name: OptionAllowance, Type: TypeNumber, Help: "CUSUM allowance (reference value) k, in standard deviations; common practice is half the shift to be detected"},
+	{Name: OptionSide, Type: TypeChoice, Choices: []string{"up", "down", "both"}, Help: "which drift to watch: up, down or both"},
+	{Name: OptionChart, Type: TypeChoice, Choices: []string{"cusum", "ewma"}, Help: "chart statistic: cusum or ewma"},
+	{Name: OptionLambda, Type: TypeNumber, Help: "EWMA weight per unit of time, in (0, 1]"},
+	{Name: OptionSerial, Type: TypeChoice, Choices: []string{"whiten", "direct", "off", "on"}, Help: "how the correlation of a worker's readings is handled: whiten (the default: chart each reading against the worker's own predicted level, the Kalman-filter innovation; on means whiten), direct (chart z, the limit carries the correlation) or off (ignore it)"},
+	{Name: OptionTarget, Type: TypeNumber, Help: "target average time to a false signal for a healthy worker, in years"},
+	{Name: OptionMethod, Type: TypeChoice, Choices: []string{"normal", "bootstrap"}, Help: "how limits are calibrated: normal (exact for independent N(0,1) scores) or bootstrap (resampled reference workers)"},
+	{Name: OptionLimit, Type: TypeNumber, Help: "control limit h; a chart statistic beyond it signals"},
+	{Name: OptionGap, Type: TypeNumber, Help: "mean time between exams, in years"},
+	{Name: OptionHeadstart, Type: TypeNumber, Help: "fast initial response head start, as a fraction of the limit, in [0, 1)"},
+	{Name: OptionShift, Type: TypeNumber, Help: "size of a sustained shift, in standard deviations of the readings"},
+	{Name: OptionSeed, Type: TypeNumber, Help: "random seed (a whole number); the same seed gives the same result"},
+	{Name: OptionReps, Type: TypeNumber, Help: "number of simulated or resampled sequences"},
+	{Name: OptionTransform, Type: TypeChoice, Choices: []string{"none", "log", "boxcox"}, Help: "transform of the readings before fitting: none, log or boxcox"},
+	{Name: OptionGroup, Type: TypeText, Help: "group (for example sex or job group) whose reference curve is used"},
+	{Name: OptionUnit, Type: TypeNumber, Help: "time unit, in years, of the gap-aware EWMA weight 1-(1-lambda)^(gap/unit)"},
+	{Name: OptionRestart, Type: TypeBool, Help: "on: the chart statistic starts again after a signal; off: it carries on"},
+	{Name: OptionExtrapolate, Type: TypeBool, Help: "on: answer times outside the reference age range from the nearest end of the curves; off: " + string(OutsideReference.Code()) + " there"},
+	{Name: OptionBandwidth, Type: TypeNumber, Help: "smoothing bandwidth of the reference curves, in years; 0 or absent: chosen by cross-validation"},
+	{Name: OptionMinWorkers, Type: TypeNumber, Help: "fewest reference workers a group needs to get its own curves"},
+	{Name: OptionOnset, Type: TypeNumber, Help: "years after the first exam at which a sustained shift starts"},
+	{Name: OptionHorizon, Type: TypeChoice, Choices: []string{"followup", "long"}, Help: "what the target counts: followup (the default with a model: worker-years of exams per false signal, workers followed as long as the reference workers) or long (one worker with an unending exam history)"},
 }
 
 // LookupOption returns the shared declaration of an option name
@@ -316,7 +308,7 @@ func (p *optParser) set(rawName string, val Cell, where string) error {
 // coerceOption converts a value to the option's declared type.
 func coerceOption(decl Option, v Cell) (Cell, *Error) {
 	switch decl.Type {
-	case OptNumber:
+	case TypeNumber:
 		switch v.Kind {
 		case KindNumber:
 			if numeric.Finite(v.Num) {
@@ -329,12 +321,12 @@ func coerceOption(decl Option, v Cell) (Cell, *Error) {
 			}
 		}
 		return Cell{}, WrongArgument.Errorf("option %q must be a number; got %s", decl.Name, v)
-	case OptBool:
+	case TypeBool:
 		if b, ok := boolOf(v); ok {
 			return BoolCell(b), nil
 		}
 		return Cell{}, WrongArgument.Errorf("option %q must be on or off; got %s", decl.Name, v)
-	case OptChoice:
+	case TypeChoice:
 		if v.Kind == KindText {
 			s := strings.ToLower(strings.TrimSpace(v.Str))
 			for _, c := range decl.Choices {
@@ -344,7 +336,7 @@ func coerceOption(decl Option, v Cell) (Cell, *Error) {
 			}
 		}
 		return Cell{}, WrongArgument.Errorf("option %q must be one of %s; got %s", decl.Name, strings.Join(decl.Choices, ", "), v)
-	case OptText:
+	case TypeText:
 		switch v.Kind {
 		case KindText:
 			return TextCell(strings.TrimSpace(v.Str)), nil
@@ -353,7 +345,7 @@ func coerceOption(decl Option, v Cell) (Cell, *Error) {
 		}
 		return Cell{}, WrongArgument.Errorf("option %q must be text; got %s", decl.Name, v)
 	}
-	panic("cell: option " + decl.Name + " has unknown type " + decl.Type)
+	panic("cell: option " + decl.Name + " has unknown type " + string(decl.Type))
 }
 
 // boolOf reads a boolean from TRUE/FALSE, 1/0 or on/off, yes/no, true/false.

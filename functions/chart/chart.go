@@ -5,26 +5,37 @@ import (
 	"math"
 )
 
-// Chart kinds accepted in Spec.Kind.
+// Kind is a chart statistic, as a user names it ("cusum", "ewma").
+type Kind string
+
+// Chart kinds.
 const (
-	CUSUM = "cusum"
-	EWMA  = "ewma"
+	CUSUM Kind = "cusum" // cumulative sum (Page 1954)
+	EWMA  Kind = "ewma"  // exponentially weighted moving average (Roberts 1959)
 )
 
-// Chart sides accepted in Spec.Side.
+// Side is the direction of drift a chart watches for ("up", "down",
+// "both").
+type Side string
+
+// Chart sides.
 const (
-	Up   = "up"
-	Down = "down"
-	Both = "both"
+	Up   Side = "up"   // signal on a rise
+	Down Side = "down" // signal on a fall
+	Both Side = "both" // signal on either
+)
+
+// Kinds and Sides list the valid values, in the order users see them.
+var (
+	Kinds = []Kind{CUSUM, EWMA}
+	Sides = []Side{Up, Down, Both}
 )
 
 // Spec describes one chart. The zero value is not usable: Kind and Side must
 // be set (DefaultSpec gives a usable starting point).
 type Spec struct {
-	// Kind is "cusum" or "ewma".
-	Kind string
-	// Side is "up" (signal on a rise), "down" (on a fall) or "both".
-	Side string
+	Kind Kind
+	Side Side
 	// Allowance is the CUSUM reference value k in SDs of the charted values
 	// (common practice: half the shift to detect; DefaultSpec uses 0.5).
 	// Zero is a valid allowance. Ignored by EWMA.

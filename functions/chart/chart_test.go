@@ -32,7 +32,7 @@ func TestRunMatchesFixture(t *testing.T) {
 	}
 	signals := 0
 	for _, c := range f.Cases {
-		spec := Spec{Kind: c.Kind, Side: c.Side, Allowance: c.K, Lambda: c.Lambda, Unit: c.Unit, HeadStart: c.Hs, Restart: c.Restart}
+		spec := Spec{Kind: Kind(c.Kind), Side: Side(c.Side), Allowance: c.K, Lambda: c.Lambda, Unit: c.Unit, HeadStart: c.Hs, Restart: c.Restart}
 		if err := spec.Validate(); err != nil {
 			t.Fatal(err)
 		}
@@ -189,7 +189,7 @@ func BenchmarkRun(b *testing.B) {
 	}
 	out := make([]Point, 0, 1000)
 	for _, s := range []Spec{DefaultSpec(), {Kind: EWMA, Side: Both, Lambda: 0.1}} {
-		b.Run(s.Kind, func(b *testing.B) {
+		b.Run(string(s.Kind), func(b *testing.B) {
 			for b.Loop() {
 				out = Run(s, 4, gaps, u, out[:0])
 			}

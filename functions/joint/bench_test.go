@@ -22,7 +22,7 @@ func BenchmarkLimit(b *testing.B) {
 		b.Fatal(err)
 	}
 	spec := DefaultSpec(3)
-	spec.Sides = []string{chart.Up, chart.Up, chart.Down}
+	spec.Sides = []chart.Side{chart.Up, chart.Up, chart.Down}
 	for _, method := range []monitor.Method{monitor.Normal, monitor.Bootstrap} {
 		for _, horizon := range []monitor.Horizon{monitor.HorizonFollowUp, monitor.HorizonLong} {
 			for _, target := range []float64{20, 100, 1000} {

@@ -62,7 +62,7 @@ func TestMonteCarloMatchesExact(t *testing.T) {
 	one := func(spec Spec) Calibration {
 		return Calibration{Settings: Settings{Chart: spec, Mode: monitor.Whiten, Model: Independent(1)}, Method: monitor.Normal, Gaps: ones, Seed: 2, Paths: 6000}
 	}
-	lr, err = Limit(one(Spec{Kind: EWMA, Sides: []string{chart.Down}, Lambda: 0.2, Unit: 1}), 100)
+	lr, err = Limit(one(Spec{Kind: EWMA, Sides: []chart.Side{chart.Down}, Lambda: 0.2, Unit: 1}), 100)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -70,7 +70,7 @@ func TestMonteCarloMatchesExact(t *testing.T) {
 	if math.Abs(arl-100) > 4*lr.SE {
 		t.Errorf("directed, one marker: limit %.4f has the single-marker EWMA's exact ARL %.2f for a target of 100 (SE %.2f)", lr.H, arl, lr.SE)
 	}
-	lr, err = Limit(one(Spec{Kind: Any, Sides: []string{chart.Both}, Allowance: 0.5}), 200)
+	lr, err = Limit(one(Spec{Kind: Any, Sides: []chart.Side{chart.Both}, Allowance: 0.5}), 200)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -86,7 +86,7 @@ func TestMonteCarloMatchesExact(t *testing.T) {
 func TestLimitDelayReproducible(t *testing.T) {
 	model := testModel()
 	ref := simulateCohort(model, 300, 6, 5, []float64{0.1, 0.3, 0.2})
-	sides := []string{chart.Up, chart.Up, chart.Down}
+	sides := []chart.Side{chart.Up, chart.Up, chart.Down}
 	for _, method := range []monitor.Method{monitor.Normal, monitor.Bootstrap} {
 		c := Calibration{Settings: Settings{Chart: Spec{Kind: CUSUM, Sides: sides, Allowance: 0.5}, Mode: monitor.Whiten, Model: model},
 			Method: method, Reference: ref, Seed: 3, Horizon: monitor.HorizonLong}
@@ -146,7 +146,7 @@ func TestLimitBadInput(t *testing.T) {
 		{"no gaps known", func(c Calibration) Calibration { c.Gap = 0; return c }, 20, "no gap"},
 		{"bootstrap, 8 workers", func(c Calibration) Calibration { c.Method, c.Reference = monitor.Bootstrap, ref; return c }, 20, "at least 10"},
 		{"follow-up without reference", func(c Calibration) Calibration { c.Horizon = monitor.HorizonFollowUp; return c }, 20, "at least two exams"},
-		{"sides", func(c Calibration) Calibration { c.Settings.Chart.Sides = []string{chart.Up}; return c }, 20, "3 markers need 3 sides"},
+		{"sides", func(c Calibration) Calibration { c.Settings.Chart.Sides = []chart.Side{chart.Up}; return c }, 20, "3 markers need 3 sides"},
 		{"reference shape", func(c Calibration) Calibration {
 			c.Reference = []Series{{Time: []float64{1, 2}, Z: [][]float64{{0, 1}}}}
 			return c
@@ -290,7 +290,7 @@ func TestRealisedRate(t *testing.T) {
 	const followTarget, longTarget = 20.0, 50.0
 	for _, spec := range []Spec{DefaultSpec(3), {Kind: MEWMA, Lambda: 0.1, Unit: 1}} {
 		if spec.Kind.sided() {
-			spec.Sides = []string{chart.Up, chart.Up, chart.Down}
+			spec.Sides = []chart.Side{chart.Up, chart.Up, chart.Down}
 		}
 		set := Settings{Chart: spec, Mode: monitor.Whiten, Model: est}
 		for _, method := range []monitor.Method{monitor.Normal, monitor.Bootstrap} {

@@ -83,7 +83,7 @@ func TestMEWMAHandWorked(t *testing.T) {
 func TestEWMAHandWorked(t *testing.T) {
 	x := append([]float64(nil), handX...)
 	x[2] = -2
-	got := runHand(t, Spec{Kind: EWMA, Sides: []string{chart.Up, chart.Up}, Lambda: 0.2, Unit: 1}, x)
+	got := runHand(t, Spec{Kind: EWMA, Sides: []chart.Side{chart.Up, chart.Up}, Lambda: 0.2, Unit: 1}, x)
 	// Exam 1: E = (0.2, 0.1) is in the cone: T2 = 0.36 as for MEWMA.
 	// Exam 2: E = (0.8*0.2 - 0.2*2, 0.1) = (-0.24, 0.1), V as above.
 	//   Active set {1}: mu1 = 0, mu2 = E2 - V21/V11 E1 = 0.1 + 0.4*0.24 = 0.196;
@@ -134,7 +134,7 @@ func TestMCUSUMHandWorked(t *testing.T) {
 // k = 0.5: the MCUSUM step, then the projection onto {mu1 >= 0, mu2 <= 0}
 // in the metric R^-1 (with mu2 = 0: mu1 = S1 - 0.5 S2, Y = |mu1| sqrt(4/3)).
 func TestCUSUMHandWorked(t *testing.T) {
-	got := runHand(t, Spec{Kind: CUSUM, Sides: []string{chart.Up, chart.Down}, Allowance: 0.5}, handX)
+	got := runHand(t, Spec{Kind: CUSUM, Sides: []chart.Side{chart.Up, chart.Down}, Allowance: 0.5}, handX)
 	// Exam 1: S = (0.5, 0.25) as for MCUSUM; S2 > 0 is harmless, so
 	//   S = (0.5 - 0.125, 0) = (0.375, 0) (multiplier S2/R22 = 0.25 >= 0),
 	//   Y = 0.375 sqrt(4/3) = 0.4330127.
@@ -154,7 +154,7 @@ func TestCUSUMHandWorked(t *testing.T) {
 
 // TestAnyHandWorked: each marker's own CUSUM, marker 1 up, marker 2 down.
 func TestAnyHandWorked(t *testing.T) {
-	got := runHand(t, Spec{Kind: Any, Sides: []string{chart.Up, chart.Down}, Allowance: 0.5}, handX)
+	got := runHand(t, Spec{Kind: Any, Sides: []chart.Side{chart.Up, chart.Down}, Allowance: 0.5}, handX)
 	// Marker 1 up: 0.5, 0.5 + 2 - 0.5 = 2, 2 + 0.5 - 0.5 = 2.
 	// Marker 2 down: max(0, -0.5 - 0.5) = 0; not measured; max(0, -1.5 - 0.5) = 0.
 	for j, w := range []float64{0.5, 2, 2} {
@@ -188,7 +188,7 @@ func TestTextbookReductions(t *testing.T) {
 			t.Fatalf("exam %d: T2 %v, Lowry's %v", j+1, got, want)
 		}
 	}
-	one, _ := NewChart(Spec{Kind: EWMA, Sides: []string{chart.Up}, Lambda: lambda, Unit: 1}, [][]float64{{1}})
+	one, _ := NewChart(Spec{Kind: EWMA, Sides: []chart.Side{chart.Up}, Lambda: lambda, Unit: 1}, [][]float64{{1}})
 	spec := chart.Spec{Kind: chart.EWMA, Side: chart.Up, Lambda: lambda, Unit: 1}
 	u := make([]float64, 100)
 	gaps := make([]float64, 100)
@@ -202,7 +202,7 @@ func TestTextbookReductions(t *testing.T) {
 			t.Fatalf("exam %d: one marker's EWMA %v, single-marker EWMA %v", j+1, got, pts[j].Up)
 		}
 	}
-	cu, _ := NewChart(Spec{Kind: CUSUM, Sides: []string{chart.Down}, Allowance: 0.5}, [][]float64{{1}})
+	cu, _ := NewChart(Spec{Kind: CUSUM, Sides: []chart.Side{chart.Down}, Allowance: 0.5}, [][]float64{{1}})
 	pts = chart.Run(chart.Spec{Kind: chart.CUSUM, Side: chart.Down, Allowance: 0.5}, 1e9, gaps, u, nil)
 	for j := range u {
 		if got := cu.Next(1, u[j:j+1]); !near(got, pts[j].Down, 1e-12) {
@@ -217,9 +217,9 @@ func TestProjection(t *testing.T) {
 	rng := rand.New(rand.NewPCG(2, 2))
 	for trial := range 2000 {
 		p := 2 + rng.IntN(5)
-		sides := make([]string, p)
+		sides := make([]chart.Side, p)
 		for k := range sides {
-			sides[k] = []string{chart.Up, chart.Down, chart.Both}[rng.IntN(3)]
+			sides[k] = []chart.Side{chart.Up, chart.Down, chart.Both}[rng.IntN(3)]
 		}
 		c, err := NewChart(Spec{Kind: EWMA, Sides: sides, Lambda: 0.2, Unit: 1}, identity(p))
 		if err != nil {
@@ -268,10 +268,10 @@ func TestChartBadInput(t *testing.T) {
 		want string
 	}{
 		{"unknown kind", Spec{Kind: "hotelling", Lambda: 0.1}, ok, "chart must be"},
-		{"sides count", Spec{Kind: EWMA, Sides: []string{chart.Up}, Lambda: 0.1}, ok, "2 markers need 2 sides"},
+		{"sides count", Spec{Kind: EWMA, Sides: []chart.Side{chart.Up}, Lambda: 0.1}, ok, "2 markers need 2 sides"},
 		{"no sides", Spec{Kind: Any, Allowance: 0.5}, ok, "need 2 sides"},
-		{"bad side", Spec{Kind: CUSUM, Sides: []string{chart.Up, "upward"}, Allowance: 0.5}, ok, "side 2"},
-		{"sides on mewma", Spec{Kind: MEWMA, Sides: []string{chart.Up, chart.Up}, Lambda: 0.1}, ok, "watches every direction"},
+		{"bad side", Spec{Kind: CUSUM, Sides: []chart.Side{chart.Up, "upward"}, Allowance: 0.5}, ok, "side 2"},
+		{"sides on mewma", Spec{Kind: MEWMA, Sides: []chart.Side{chart.Up, chart.Up}, Lambda: 0.1}, ok, "watches every direction"},
 		{"lambda", Spec{Kind: MEWMA, Lambda: 0}, ok, "lambda"},
 		{"allowance", Spec{Kind: MCUSUM, Allowance: -1}, ok, "allowance"},
 		{"too many", Spec{Kind: MEWMA, Lambda: 0.1}, identity(MaxMarkers + 1), "from 1 to 8"},

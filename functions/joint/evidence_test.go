@@ -32,7 +32,7 @@ var evidenceCharts = []struct {
 
 const defaultCharts = 5
 
-var evidenceSides = []string{chart.Up, chart.Up, chart.Down}
+var evidenceSides = []chart.Side{chart.Up, chart.Up, chart.Down}
 
 func evidenceSpec(s Spec) Spec {
 	if s.Kind.sided() {

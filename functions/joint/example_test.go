@@ -26,7 +26,7 @@ func ExampleLimit() {
 // and lung function (harmful fall), the second not measured at the second
 // exam. The chart removes the markers' correlation at the same exam.
 func ExampleChart() {
-	spec := joint.Spec{Kind: joint.CUSUM, Sides: []string{chart.Up, chart.Down}, Allowance: 0.5}
+	spec := joint.Spec{Kind: joint.CUSUM, Sides: []chart.Side{chart.Up, chart.Down}, Allowance: 0.5}
 	c, _ := joint.NewChart(spec, [][]float64{{1, -0.3}, {-0.3, 1}})
 	gaps := []float64{0, 1.5, 2}
 	x := []float64{

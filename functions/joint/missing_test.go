@@ -71,8 +71,8 @@ func TestMissingMarkers(t *testing.T) {
 	full := simulateCohort(model, n/2, 50, 4, nil)
 	for _, spec := range []Spec{
 		{Kind: MEWMA, Lambda: 0.1, Unit: 1},
-		{Kind: EWMA, Sides: []string{chart.Up, chart.Up, chart.Down}, Lambda: 0.1, Unit: 1},
-		{Kind: CUSUM, Sides: []string{chart.Up, chart.Up, chart.Down}, Allowance: 0.5},
+		{Kind: EWMA, Sides: []chart.Side{chart.Up, chart.Up, chart.Down}, Lambda: 0.1, Unit: 1},
+		{Kind: CUSUM, Sides: []chart.Side{chart.Up, chart.Up, chart.Down}, Allowance: 0.5},
 		{Kind: MCUSUM, Allowance: 0.5},
 	} {
 		set := Settings{Chart: spec, Mode: monitor.Whiten, Model: model}
@@ -170,7 +170,7 @@ func TestMissingMarkersRate(t *testing.T) {
 	for _, kind := range Kinds {
 		spec := DefaultSpec(3)
 		spec.Kind = kind
-		spec.Sides = []string{chart.Up, chart.Up, chart.Down}
+		spec.Sides = []chart.Side{chart.Up, chart.Up, chart.Down}
 		if !kind.sided() {
 			spec.Sides = nil
 		}

@@ -64,7 +64,7 @@ type Spec struct {
 	// Sides holds one direction per marker for kinds CUSUM, EWMA and Any:
 	// chart.Up (a rise is harmful), chart.Down or chart.Both. MEWMA and
 	// MCUSUM watch every direction: Sides must then be empty or all Both.
-	Sides []string
+	Sides []chart.Side
 	// Lambda is the EWMA weight of an exam one Unit after the marker's
 	// previous measurement (kinds EWMA and MEWMA), in (0, 1]; Unit is
 	// in years (0 means 1).
@@ -81,7 +81,7 @@ type Spec struct {
 // every side up, lambda 0.1 per year, allowance 0.5.
 func DefaultSpec(p int) Spec {
 	s := Spec{Kind: DefaultKind, Lambda: 0.1, Unit: 1, Allowance: 0.5}
-	s.Sides = make([]string, p)
+	s.Sides = make([]chart.Side, p)
 	for i := range s.Sides {
 		s.Sides[i] = chart.Up
 	}
@@ -115,10 +115,10 @@ func (s Spec) Validate(p int) error {
 		switch side {
 		case chart.Up, chart.Down, chart.Both:
 		default:
-			return &chart.SettingError{Setting: "side", Value: side, Want: fmt.Sprintf("%q, %q or %q (side %d)", chart.Up, chart.Down, chart.Both, i+1)}
+			return &chart.SettingError{Setting: "side", Value: string(side), Want: fmt.Sprintf("%q, %q or %q (side %d)", chart.Up, chart.Down, chart.Both, i+1)}
 		}
 		if !sided && side != chart.Both {
-			return &chart.SettingError{Setting: "side", Value: side, Want: fmt.Sprintf("%q with chart %s, which watches every direction (for one direction per marker use chart %s or %s)", chart.Both, s.Kind, CUSUM, EWMA)}
+			return &chart.SettingError{Setting: "side", Value: string(side), Want: fmt.Sprintf("%q with chart %s, which watches every direction (for one direction per marker use chart %s or %s)", chart.Both, s.Kind, CUSUM, EWMA)}
 		}
 	}
 	if s.Kind.ewmaKind() {

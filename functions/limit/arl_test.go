@@ -93,7 +93,7 @@ func TestARLFixtureGrid(t *testing.T) {
 	rows := readCSV(t, "testdata/arl_grid.csv")
 	worst := 0.0
 	for _, r := range rows {
-		spec := chart.Spec{Kind: r["kind"], Side: r["side"], Allowance: num(t, r, "k"), Lambda: num(t, r, "lambda"), HeadStart: num(t, r, "hs"), Unit: 1}
+		spec := chart.Spec{Kind: chart.Kind(r["kind"]), Side: chart.Side(r["side"]), Allowance: num(t, r, "k"), Lambda: num(t, r, "lambda"), HeadStart: num(t, r, "hs"), Unit: 1}
 		// spc runs every exam at the effective lambda: compare with the
 		// same convention (sameFirst); at gap 1 it is the public ARL.
 		c, err := newCalc(spec, num(t, r, "gap"))
@@ -122,7 +122,7 @@ func TestARLFixtureGrid(t *testing.T) {
 // in testdata/crit_grid.csv.
 func TestSolveFixtureGrid(t *testing.T) {
 	for _, r := range readCSV(t, "testdata/crit_grid.csv") {
-		spec := chart.Spec{Kind: r["kind"], Side: r["side"], Allowance: num(t, r, "k"), Lambda: num(t, r, "lambda")}
+		spec := chart.Spec{Kind: chart.Kind(r["kind"]), Side: chart.Side(r["side"]), Allowance: num(t, r, "k"), Lambda: num(t, r, "lambda")}
 		got, err := Solve(spec, num(t, r, "arl0"), 1)
 		if err != nil {
 			t.Fatal(err)

@@ -18,8 +18,9 @@ type Row struct {
 // Options control Fit. The zero value asks for no transform,
 // cross-validated bandwidths, DefaultGridPoints and DefaultMinWorkers.
 type Options struct {
-	// Transform is "none" (or ""), "log" or "boxcox".
-	Transform string
+	// Transform is transform.None (or ""), transform.Log or
+	// transform.BoxCox.
+	Transform transform.Name
 	// Bandwidth of the mean curve in years; 0 chooses it by
 	// leave-one-worker-out cross-validation.
 	Bandwidth float64
@@ -57,11 +58,11 @@ const (
 
 // Settings are the options a model was fitted with, after defaults.
 type Settings struct {
-	Transform   string  `json:"transform"`
-	Bandwidth   float64 `json:"bandwidth"`
-	SDBandwidth float64 `json:"sd_bandwidth"`
-	GridPoints  int     `json:"grid_points"`
-	MinWorkers  int     `json:"min_workers"`
+	Transform   transform.Name `json:"transform"`
+	Bandwidth   float64        `json:"bandwidth"`
+	SDBandwidth float64        `json:"sd_bandwidth"`
+	GridPoints  int            `json:"grid_points"`
+	MinWorkers  int            `json:"min_workers"`
 }
 
 // CVPoint is the cross-validation result of one candidate bandwidth: the
@@ -137,11 +138,11 @@ type Curve struct {
 // Model is a fitted reference model. Its fields are exported for reading
 // and serialisation; change them only through Fit or Decode.
 type Model struct {
-	Format    string   `json:"format"`
-	Version   int      `json:"version"`
-	Transform string   `json:"transform"`
-	Lambda    float64  `json:"lambda"`
-	Settings  Settings `json:"settings"`
+	Format    string         `json:"format"`
+	Version   int            `json:"version"`
+	Transform transform.Name `json:"transform"`
+	Lambda    float64        `json:"lambda"`
+	Settings  Settings       `json:"settings"`
 	// Rows is the number of exams fitted; DataHash the SHA-256 of the
 	// input rows in canonical order ("sha256:" + hex).
 	Rows     int     `json:"rows"`

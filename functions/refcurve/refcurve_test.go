@@ -12,6 +12,8 @@ import (
 	"testing"
 
 	"gonum.org/v1/gonum/stat/distuv"
+
+	"veer/functions/transform"
 )
 
 // smallRows is a quick two-group cohort for the API tests.
@@ -29,8 +31,8 @@ func fitSmall(t testing.TB, opt Options) *Model {
 // TestFitOrderInvariant: any order of the same rows gives the same model,
 // data hash and content hash; a changed value changes both hashes.
 func TestFitOrderInvariant(t *testing.T) {
-	for _, tr := range []string{"none", "log", "boxcox"} {
-		t.Run(tr, func(t *testing.T) {
+	for _, tr := range transform.Names {
+		t.Run(string(tr), func(t *testing.T) {
 			rows := smallRows()
 			a, err := Fit(rows, Options{Transform: tr})
 			if err != nil {
@@ -285,8 +287,8 @@ func TestBoxCoxModel(t *testing.T) {
 // TestZManyMatchesZ: the bulk path must give exactly what Z gives, NaN
 // and a report for the entries Z rejects.
 func TestZManyMatchesZ(t *testing.T) {
-	for _, tr := range []string{"none", "log", "boxcox"} {
-		t.Run(tr, func(t *testing.T) {
+	for _, tr := range transform.Names {
+		t.Run(string(tr), func(t *testing.T) {
 			m := fitSmall(t, Options{Transform: tr})
 			rng := rand.New(rand.NewPCG(2, 3))
 			n := 3000

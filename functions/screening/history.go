@@ -87,11 +87,11 @@ func (h *History) Baseline() evaluation.Row {
 
 // ChartName names a chart's settings in the evaluation table, e.g.
 // "cusum up" or "ewma both".
-func ChartName(s Settings) string { return s.Chart.Kind + " " + s.Chart.Side }
+func ChartName(s Settings) string { return string(s.Chart.Kind) + " " + string(s.Chart.Side) }
 
 // BaselineName names the baseline rule in the evaluation table, e.g.
 // "centile > 97.5", "centile < 2.5" or "centile > 97.5 or < 2.5".
-func BaselineName(side string, centile float64) string {
+func BaselineName(side chart.Side, centile float64) string {
 	p := baselineCentile(centile)
 	hi, lo := strconv.FormatFloat(p, 'f', -1, 64), strconv.FormatFloat(100-p, 'f', -1, 64)
 	switch side {
@@ -115,7 +115,7 @@ func baselineCentile(p float64) float64 {
 
 // BeyondCentile flags each exam whose reading lies beyond the reference
 // centile p in the direction side (see HistoryOptions.Centile).
-func BeyondCentile(res []Result, side string, p float64) []bool {
+func BeyondCentile(res []Result, side chart.Side, p float64) []bool {
 	p = baselineCentile(p)
 	out := make([]bool, len(res))
 	for i, x := range res {

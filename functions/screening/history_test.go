@@ -184,7 +184,7 @@ func TestEvaluateHistory(t *testing.T) {
 func TestBaselineSides(t *testing.T) {
 	res := []Result{{Centile: 99}, {Centile: 50}, {Centile: 1}, {Centile: 97.5}, {Centile: 2.5}}
 	for _, tc := range []struct {
-		side string
+		side chart.Side
 		p    float64
 		name string
 		want string

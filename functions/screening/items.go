@@ -1,6 +1,10 @@
 package screening
 
-import "fmt"
+import (
+	"fmt"
+
+	"veer/functions/transform"
+)
 
 // Item is one line of a model's diagnostics: a label and a value that is a
 // number or a text.
@@ -15,9 +19,9 @@ type Item struct {
 func (m *Model) Items() []Item {
 	items := []Item{
 		{"model", m.Name},
-		{"transform", m.Curves.Transform},
+		{"transform", string(m.Curves.Transform)},
 	}
-	if m.Curves.Transform == "boxcox" {
+	if m.Curves.Transform == transform.BoxCox {
 		items = append(items, Item{"box-cox lambda", m.Curves.Lambda})
 	}
 	items = append(items, Item{"exams fitted", m.Curves.Rows})

@@ -14,25 +14,29 @@ import (
 	"veer/functions/serial"
 )
 
-// Serial handling of a worker's correlated readings.
+// Serial is how a worker's correlated readings are handled.
+type Serial string
+
+// Serial handling.
 const (
 	// SerialDirect charts z itself; limits are calibrated on correlated
 	// sequences from the fitted serial model.
-	SerialDirect = "direct"
+	SerialDirect Serial = "direct"
 	// SerialWhiten charts the Kalman innovations of z: each reading against
 	// the worker's own predicted level (the default, see package monitor).
-	SerialWhiten = "whiten"
+	// "on" and "" mean SerialWhiten too.
+	SerialWhiten Serial = "whiten"
 	// SerialOff ignores serial correlation: z is treated as independent.
 	// Limits are then too tight for correlated markers; offered for
 	// comparison and for markers whose reference shows no correlation.
-	SerialOff = "off"
+	SerialOff Serial = "off"
 )
 
 // Settings choose the chart and how serial correlation is handled.
 type Settings struct {
 	Chart chart.Spec
 	// Serial is SerialWhiten (also "" or "on"), SerialDirect or SerialOff.
-	Serial string
+	Serial Serial
 	// Extrapolate allows exams at ages outside the reference range; the
 	// curves are then held at their ends (see refcurve). Without it such an
 	// exam is an error naming the row.
@@ -55,7 +59,7 @@ func (m *Model) monitorSettings(s Settings) (monitor.Settings, error) {
 	case SerialOff:
 		out.Serial = serial.Params{}
 	default:
-		return out, &chart.SettingError{Setting: "serial", Value: s.Serial,
+		return out, &chart.SettingError{Setting: "serial", Value: string(s.Serial),
 			Want: fmt.Sprintf("%s, %s or %s (on means %s)", SerialWhiten, SerialDirect, SerialOff, SerialWhiten)}
 	}
 	if err := out.Validate(); err != nil {

@@ -86,7 +86,7 @@ func TestRealisedFalseSignalRate(t *testing.T) {
 		// Relative SE of a Poisson count of false signals.
 		return ev.YearsAtRisk / float64(ev.FalseSignals), 1 / math.Sqrt(float64(ev.FalseSignals))
 	}
-	for _, serialMode := range []string{SerialWhiten, SerialDirect} {
+	for _, serialMode := range []Serial{SerialWhiten, SerialDirect} {
 		for _, method := range []monitor.Method{monitor.Normal, monitor.Bootstrap} {
 			set := DefaultSettings()
 			set.Extrapolate = true

@@ -7,12 +7,18 @@ import (
 	"strconv"
 )
 
+// Name names a transform, as a user writes it ("none", "log", "boxcox").
+type Name string
+
 // Names of the transforms.
 const (
-	None   = "none"
-	Log    = "log"
-	BoxCox = "boxcox"
+	None   Name = "none"
+	Log    Name = "log"
+	BoxCox Name = "boxcox"
 )
+
+// Names lists the transforms in the order users see them.
+var Names = []Name{None, Log, BoxCox}
 
 // LambdaLimit bounds the Box-Cox lambda: |λ| <= LambdaLimit. Powers beyond
 // ±5 are never a sensible model for a medical marker; a likelihood pushing
@@ -21,14 +27,14 @@ const LambdaLimit = 5
 
 // Transform is one of the transforms; Lambda is used by BoxCox only.
 type Transform struct {
-	Name   string
+	Name   Name
 	Lambda float64
 }
 
 // New returns the transform called name ("none", "log" or "boxcox"; "" means
 // "none") with the given Box-Cox lambda (ignored, and stored as 0, for the
 // other two).
-func New(name string, lambda float64) (Transform, error) {
+func New(name Name, lambda float64) (Transform, error) {
 	switch name {
 	case "", None:
 		return Transform{Name: None}, nil
@@ -51,7 +57,7 @@ func (t Transform) String() string {
 	if t.Name == BoxCox {
 		return "boxcox(lambda=" + strconv.FormatFloat(t.Lambda, 'g', 6, 64) + ")"
 	}
-	return t.Name
+	return string(t.Name)
 }
 
 // ErrDomain is the kind of failure of a value outside what a transform can
@@ -63,7 +69,7 @@ var ErrDomain = errors.New("a value the transform cannot map")
 type ValueError struct {
 	Index     int
 	Value     float64
-	Transform string
+	Transform Name
 }
 
 func (e *ValueError) Error() string {
@@ -122,7 +128,7 @@ func (t Transform) Forward(y float64) (float64, error) {
 		}
 		return boxCox(math.Log(y), t.Lambda), nil
 	}
-	panic("transform: unknown transform " + strconv.Quote(t.Name))
+	panic("transform: unknown transform " + strconv.Quote(string(t.Name)))
 }
 
 // boxCox returns the Box-Cox transform of y = exp(ly). expm1 keeps full
@@ -178,7 +184,7 @@ func (t Transform) Inverse(z float64) (float64, error) {
 		}
 		y = math.Exp(math.Log1p(a) / t.Lambda)
 	default:
-		panic("transform: unknown transform " + strconv.Quote(t.Name))
+		panic("transform: unknown transform " + strconv.Quote(string(t.Name)))
 	}
 	if math.IsInf(y, 0) {
 		return 0, &InverseError{Z: z, Transform: t, Overflow: true}

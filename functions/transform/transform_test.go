@@ -78,7 +78,7 @@ func TestForwardInverse(t *testing.T) {
 	// against ±1/λ there and the round trip loses digits by construction.
 	ys := []float64{0.05, 0.5, 1, 2.5, 37, 1234.5}
 	for _, tc := range []struct {
-		name   string
+		name   Name
 		lambda float64
 	}{
 		{None, 0}, {Log, 0}, {BoxCox, -2}, {BoxCox, -0.2}, {BoxCox, 0}, {BoxCox, 1e-12}, {BoxCox, 0.5}, {BoxCox, 1}, {BoxCox, 2},

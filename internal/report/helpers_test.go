@@ -12,12 +12,16 @@ import (
 	"veer/functions/refcurve"
 	"veer/functions/rules"
 	"veer/functions/screening"
+	"veer/functions/transform"
 	"veer/internal/table"
 )
 
 // demoMarker describes one marker of the committed demo data.
 type demoMarker struct {
-	column, marker, short, unit, transform, side, rule string
+	column, marker, short, unit string
+	transform                   transform.Name
+	side                        chart.Side
+	rule                        string
 }
 
 var demoMarkers = []demoMarker{

@@ -14,6 +14,7 @@ import (
 	"veer/functions/chart"
 	"veer/functions/monitor"
 	"veer/functions/screening"
+	"veer/functions/transform"
 )
 
 // Caution is the screening-aid statement every report carries, at the top
@@ -497,9 +498,9 @@ func article(word string) string {
 
 func transformNote(m *screening.Model) string {
 	switch m.Curves.Transform {
-	case "log":
+	case transform.Log:
 		return ", on the log scale"
-	case "boxcox":
+	case transform.BoxCox:
 		return fmt.Sprintf(", on the Box-Cox scale (λ = %s)", num(m.Curves.Lambda, 3))
 	}
 	return ""
@@ -591,11 +592,11 @@ func diagnostics(m *screening.Model) ([]groupDiag, []kv, []string) {
 			warn = append(warn, groupName(c.Group)+": "+w)
 		}
 	}
-	tr := m.Curves.Transform
-	switch tr {
-	case "", "none":
+	tr := string(m.Curves.Transform)
+	switch m.Curves.Transform {
+	case "", transform.None:
 		tr = "none"
-	case "boxcox":
+	case transform.BoxCox:
 		tr = "Box-Cox, λ = " + num(m.Curves.Lambda, 4)
 	}
 	sd := m.SerialDiagnostics
