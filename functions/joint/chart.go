@@ -73,7 +73,7 @@ import (
 type Chart struct {
 	spec   Spec
 	p      int
-	decay  float64 // log(1-lambda)/unit: the weight after d years is 1 - exp(d decay)
+	decay  float64   // log(1-lambda)/unit: the weight after d years is 1 - exp(d decay)
 	r      []float64 // correlation
 	rL     []float64 // Cholesky factor of r
 	v0     []float64
