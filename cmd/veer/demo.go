@@ -121,6 +121,7 @@ func runDemo(e *env, args []string) error {
 	if err != nil {
 		return err
 	}
+	run := demoRun{e: e, ref: ref, work: work, target: *target, rules: ruleSet, out: *out}
 	var all []*demoResult
 	for _, mk := range demoMarkers() {
 		truth := map[string]screening.Truth{}
@@ -131,7 +132,7 @@ func runDemo(e *env, args []string) error {
 			}
 			truth[t.Worker] = screening.Truth{Affected: o.Affected, Onset: o.Age}
 		}
-		r, err := demoOne(e, mk, ref, work, truth, *target, ruleSet, *out)
+		r, err := run.marker(mk, truth)
 		if err != nil {
 			return fmt.Errorf("%s: %v", mk.name, err)
 		}
@@ -147,7 +148,20 @@ func runDemo(e *env, args []string) error {
 	return nil
 }
 
-func demoOne(e *env, mk demoMarker, ref, work *table.Table, truth map[string]screening.Truth, target float64, rs rules.RuleSet, out string) (*demoResult, error) {
+// demoRun is what every marker of the demo shares: the reference and
+// workforce tables, the target, the alert rules and the output folder.
+type demoRun struct {
+	e         *env
+	ref, work *table.Table
+	target    float64
+	rules     rules.RuleSet
+	out       string
+}
+
+// marker fits, screens and evaluates one marker of the demo against the
+// truth about each worker.
+func (d demoRun) marker(mk demoMarker, truth map[string]screening.Truth) (*demoResult, error) {
+	e, ref, work, target, rs, out := d.e, d.ref, d.work, d.target, d.rules, d.out
 	cols := examColumns{id: "worker", time: "age", value: mk.column, group: "group"}
 	refRows, err := readRows(ref, "reference.csv", cols)
 	if err != nil {
@@ -188,7 +202,7 @@ func demoOne(e *env, mk demoMarker, ref, work *table.Table, truth map[string]scr
 		return nil, err
 	}
 	var buf bytes.Buffer
-	if err := writeScreen(&buf, work, res, lim.H, ruleNames, ruleCols); err != nil {
+	if err := (screenTable{input: work, results: res, limit: lim.H, ruleNames: ruleNames, ruleCols: ruleCols}).write(&buf); err != nil {
 		return nil, err
 	}
 	if err := atomicfile.WriteFile(filepath.Join(out, mk.name+".screened.csv"), buf.Bytes(), outputPerm); err != nil {

@@ -214,7 +214,7 @@ func runScreen(e *env, args []string) error {
 		}
 		fmt.Fprintf(e.stderr, "wrote the sheets %q and %q into %s (previous file kept as %s)\n", workbook.DefaultResultsSheet, workbook.DefaultSummarySheet, dst, workbook.BackupPath(dst))
 	case *out == "":
-		if err := writeScreen(e.stdout, j.input, j.results, j.limit.H, j.ruleNames, j.ruleCols); err != nil {
+		if err := j.table().write(e.stdout); err != nil {
 			return err
 		}
 	default:
@@ -223,7 +223,7 @@ func runScreen(e *env, args []string) error {
 			return err
 		}
 		defer f.Abort()
-		if err := writeScreen(f, j.input, j.results, j.limit.H, j.ruleNames, j.ruleCols); err != nil {
+		if err := j.table().write(f); err != nil {
 			return fmt.Errorf("cannot write %s: %v", *out, err)
 		}
 		if err := f.Commit(); err != nil {
@@ -286,7 +286,24 @@ func writeReport(path, source string, secs []report.Section) error {
 // screenColumns are the columns screen adds to the input's.
 var screenColumns = []string{"mean", "sd", "z", "centile", "innovation", "chart_up", "chart_down", "chart", "limit", "signal", "exam", "first_signal"}
 
-func writeScreen(out io.Writer, t *table.Table, res []screening.Result, h float64, ruleNames []string, ruleCols [][]string) error {
+// screenTable is what screen writes: every input column, the screening
+// columns at limit h, and one column per rule.
+type screenTable struct {
+	input     *table.Table
+	results   []screening.Result
+	limit     float64
+	ruleNames []string
+	ruleCols  [][]string
+}
+
+// table is the job's output table.
+func (j *screenJob) table() screenTable {
+	return screenTable{input: j.input, results: j.results, limit: j.limit.H, ruleNames: j.ruleNames, ruleCols: j.ruleCols}
+}
+
+// write writes the table as CSV to out.
+func (st screenTable) write(out io.Writer) error {
+	t, res, h, ruleNames, ruleCols := st.input, st.results, st.limit, st.ruleNames, st.ruleCols
 	w := table.NewWriter(out)
 	for i, hd := range t.Header {
 		w.Text(hd, i == 0)

@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"math"
 
 	"veer/functions/cell"
 	"veer/functions/chart"
@@ -105,3 +106,5 @@ func rowError(err error, row int, groupGiven bool) *cell.Error {
 	}
 	return &cell.Error{Code: e.Code, Message: where + e.Message}
 }
+
+func round2(x float64) float64 { return math.Round(x*100) / 100 }

@@ -184,7 +184,7 @@ func callRule(ctx context.Context, env cell.Env, a cell.Args, cache *rules.Cache
 	if err != nil {
 		return nil, compileError(err)
 	}
-	sc, err := screenSheet(ctx, env, a, 1, 2, 6)
+	sc, err := screenSheet(ctx, env, a, ruleLayout)
 	if err != nil {
 		return nil, err
 	}

@@ -136,10 +136,11 @@ func (m *Model) ZMany(groups []string, t, y []float64, extrapolate bool, out []f
 	if len(groups) != n && len(groups) != 1 {
 		return fmt.Errorf("give one group per entry (%d) or a single group for all, not %d", n, len(groups))
 	}
+	b := zBatch{m: m, groups: groups, t: t, y: y, extrapolate: extrapolate, out: out}
 	const chunk = 1 << 16
 	parts := min((n+chunk-1)/chunk, runtime.GOMAXPROCS(0))
 	if parts <= 1 {
-		if e := m.zRange(groups, t, y, extrapolate, out, 0, n); e != nil {
+		if e := b.score(0, n); e != nil {
 			return e
 		}
 		return nil
@@ -150,7 +151,7 @@ func (m *Model) ZMany(groups []string, t, y []float64, extrapolate bool, out []f
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			found[p] = m.zRange(groups, t, y, extrapolate, out, p*n/parts, (p+1)*n/parts)
+			found[p] = b.score(p*n/parts, (p+1)*n/parts)
 		}()
 	}
 	wg.Wait()
@@ -175,8 +176,18 @@ func (m *Model) ZMany(groups []string, t, y []float64, extrapolate bool, out []f
 	return nil
 }
 
-// zRange is ZMany for entries from to to-1.
-func (m *Model) zRange(groups []string, t, y []float64, extrapolate bool, out []float64, from, to int) *ScoreErrors {
+// zBatch is one call of ZMany: its inputs and output.
+type zBatch struct {
+	m           *Model
+	groups      []string
+	t, y        []float64
+	extrapolate bool
+	out         []float64
+}
+
+// score is ZMany for entries from to to-1.
+func (b zBatch) score(from, to int) *ScoreErrors {
+	m, groups, t, y, extrapolate, out := b.m, b.groups, b.t, b.y, b.extrapolate, b.out
 	n := len(t)
 	tr := m.transform()
 	var errs *ScoreErrors

@@ -1,0 +1,170 @@
+// Models: reading a model a cell names, fitting (VEER.FIT), diagnostics
+// (VEER.INFO) and the list (VEER.MODELS).
+
+package catalog
+
+import (
+	"context"
+	"strings"
+
+	"veer/functions/cell"
+	"veer/functions/refcurve"
+	"veer/functions/screening"
+	"veer/functions/transform"
+)
+
+// loadModel returns the decoded model a cell names, decoding each stored
+// version once.
+func loadModel(env cell.Env, name string) (*screening.Model, cell.ModelRef, error) {
+	ref, err := env.Model(name)
+	if err != nil {
+		return nil, ref, err
+	}
+	if isRuleSet(ref.Doc) {
+		return nil, ref, cell.UnknownModel.Errorf("%s is a rule set saved with VEER.SAVERULES, not a model; give a model fitted with VEER.FIT", ref.Handle)
+	}
+	v, err := env.Once("veer.model:"+ref.Handle+":"+ref.SHA256, func() (any, error) {
+		m, err := screening.Decode(ref.Doc)
+		if err != nil {
+			return nil, cell.UnknownModel.Errorf("model %s cannot be read: %v", ref.Handle, err)
+		}
+		return m, nil
+	})
+	if err != nil {
+		return nil, ref, err
+	}
+	return v.(*screening.Model), ref, nil
+}
+
+func modelArg(ctx context.Context, env cell.Env, a cell.Args, i int) (*screening.Model, cell.ModelRef, error) {
+	name, err := a.Text(i)
+	if err != nil {
+		return nil, cell.ModelRef{}, err
+	}
+	if strings.TrimSpace(name) == "" {
+		return nil, cell.ModelRef{}, cell.WrongArgument.Errorf("the model name (argument %s) is empty", a.Func().ArgName(i))
+	}
+	return loadModel(env, strings.TrimSpace(name))
+}
+
+// checkKind refuses to save a model under the name of a rule set or a rule
+// set under the name of a model. A name keeps the kind of its first
+// version; reading that exact version (not the bare name) keeps the call's
+// result valid in the server's cache after the save.
+func checkKind(env cell.Env, name string, ruleSet bool) error {
+	ref, err := env.Model(name + "@v1")
+	if err != nil || isRuleSet(ref.Doc) == ruleSet {
+		return nil
+	}
+	if ruleSet {
+		return cell.WrongArgument.Errorf("%s is the name of a model fitted with VEER.FIT; give the rule set another name", ref.Name)
+	}
+	return cell.WrongArgument.Errorf("%s is the name of a rule set saved with VEER.SAVERULES; give the model another name", ref.Name)
+}
+
+// checkName checks the name of a model or rule set to save.
+func checkName(what, name string) (string, error) {
+	name = strings.TrimSpace(name)
+	if name == "" || strings.ContainsAny(name, "@/\\") {
+		return "", cell.WrongArgument.Errorf("the %s name must be non-empty text without @, / or \\", what)
+	}
+	return name, nil
+}
+
+func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
+	name, err := a.Text(0)
+	if err != nil {
+		return nil, err
+	}
+	if name, err = checkName("model", name); err != nil {
+		return nil, err
+	}
+	sh, err := examsArgs(a, 1)
+	if err != nil {
+		return nil, err
+	}
+	if e := sh.firstFailed(); e != nil {
+		return nil, cell.BadData.Errorf("%s; every reference row needs an id, an age and a reading", e.Message)
+	}
+	o, err := a.Options(5)
+	if err != nil {
+		return nil, err
+	}
+	rows := make([]refcurve.Row, len(sh.exams))
+	for i, e := range sh.exams {
+		rows[i] = refcurve.Row{Worker: e.Worker, Group: e.Group, Time: e.Time, Value: e.Value}
+	}
+	opt := screening.FitOptions{Name: name, Curves: refcurve.Options{
+		Transform:  transform.Name(o.Text(cell.OptionTransform, string(transform.None))),
+		Bandwidth:  o.Number(cell.OptionBandwidth, 0),
+		MinWorkers: int(o.Number(cell.OptionMinWorkers, 0)),
+		Progress:   func(stage string, done float64) { env.Progress(done) },
+	}}
+	if opt.Curves.Bandwidth < 0 {
+		return nil, cell.OutOfRange.Errorf("bandwidth must be positive (or 0 to choose it)")
+	}
+	m, err := screening.Fit(ctx, rows, opt)
+	if err != nil {
+		if cerr := ctx.Err(); cerr != nil {
+			return nil, cerr
+		}
+		return nil, cellError(err, cell.BadData)
+	}
+	doc, err := m.Encode()
+	if err != nil {
+		return nil, err
+	}
+	if err := checkKind(env, name, false); err != nil {
+		return nil, err
+	}
+	return env.SaveModel(name, doc)
+}
+
+func callInfo(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
+	m, ref, err := modelArg(ctx, env, a, 0)
+	if err != nil {
+		return nil, err
+	}
+	items := m.Items()
+	out := make([][]any, 0, len(items)+1)
+	out = append(out, []any{"handle", ref.Handle})
+	for _, it := range items {
+		out = append(out, []any{it.Name, it.Value})
+	}
+	return out, nil
+}
+
+// ModelLister is implemented by a cell.Env that can list the names of the
+// models it holds (cell.MemoryEnv does). VEER.MODELS needs it.
+type ModelLister interface {
+	// Names returns the names of the models held, sorted.
+	Names() []string
+}
+
+func callModels(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
+	l, ok := env.(ModelLister)
+	if !ok {
+		return nil, cell.WrongArgument.Errorf("this server cannot list its models; GET /v1/models lists them")
+	}
+	out := [][]any{{"name", "handle", "versions", "groups", "exams"}}
+	for _, name := range l.Names() {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		ref, err := env.Model(name)
+		if err != nil {
+			continue // deleted meanwhile
+		}
+		if isRuleSet(ref.Doc) {
+			out = append(out, []any{ref.Name, ref.Handle, ref.Version, "rule set", nil})
+			continue
+		}
+		m, _, err := loadModel(env, ref.Handle)
+		if err != nil {
+			out = append(out, []any{ref.Name, ref.Handle, ref.Version, cell.AsError(err), nil})
+			continue
+		}
+		out = append(out, []any{ref.Name, ref.Handle, ref.Version, strings.Join(m.Curves.Groups(), ", "), m.Curves.Rows})
+	}
+	return out, nil
+}
