@@ -59,7 +59,7 @@ func BenchmarkChart(b *testing.B) {
 	for _, kind := range Kinds {
 		spec := DefaultSpec(3)
 		spec.Kind = kind
-		if !kind.sided() {
+		if !sided(kind) {
 			spec.Sides = nil
 		}
 		c, err := NewChart(spec, r)

@@ -289,7 +289,7 @@ func TestRealisedRate(t *testing.T) {
 	}
 	const followTarget, longTarget = 20.0, 50.0
 	for _, spec := range []Spec{DefaultSpec(3), {Kind: MEWMA, Lambda: 0.1, Unit: 1}} {
-		if spec.Kind.sided() {
+		if sided(spec.Kind) {
 			spec.Sides = []chart.Side{chart.Up, chart.Up, chart.Down}
 		}
 		set := Settings{Chart: spec, Mode: monitor.Whiten, Model: est}

@@ -107,7 +107,7 @@ func NewChart(spec Spec, corr [][]float64) (*Chart, error) {
 		return nil, err
 	}
 	c := &Chart{spec: spec, p: p, r: r}
-	if spec.Kind.ewmaKind() {
+	if ewmaKind(spec.Kind) {
 		c.decay = math.Log1p(-spec.Lambda) / spec.ewma().UnitOrDefault()
 	}
 	c.rL = append([]float64(nil), r...)
@@ -138,7 +138,7 @@ func NewChart(spec Spec, corr [][]float64) (*Chart, error) {
 	c.mu, c.y, c.buf = make([]float64, p), make([]float64, p), make([]float64, p*p)
 	c.idx, c.act = make([]int, 0, p), make([]int, 0, p)
 	c.fbuf, c.contrib = make([]float64, p), make([]float64, p)
-	if !spec.Kind.ewmaKind() && spec.Kind != Any {
+	if !ewmaKind(spec.Kind) && spec.Kind != Any {
 		c.comp = make([][]float64, 1<<p)
 	}
 	c.Reset()
@@ -388,7 +388,7 @@ func (c *Chart) solveActive(act []int) {
 // metric is the covariance whose inverse measures distances for the
 // projection: V for the EWMA kinds, R for the CUSUM kinds.
 func (c *Chart) metric() []float64 {
-	if !c.spec.Kind.ewmaKind() {
+	if !ewmaKind(c.spec.Kind) {
 		return c.r
 	}
 	return c.v

@@ -35,7 +35,7 @@ const defaultCharts = 5
 var evidenceSides = []chart.Side{chart.Up, chart.Up, chart.Down}
 
 func evidenceSpec(s Spec) Spec {
-	if s.Kind.sided() {
+	if sided(s.Kind) {
 		s.Sides = evidenceSides
 	}
 	return s

@@ -171,7 +171,7 @@ func TestMissingMarkersRate(t *testing.T) {
 		spec := DefaultSpec(3)
 		spec.Kind = kind
 		spec.Sides = []chart.Side{chart.Up, chart.Up, chart.Down}
-		if !kind.sided() {
+		if !sided(kind) {
 			spec.Sides = nil
 		}
 		c := Calibration{Settings: Settings{Chart: spec, Mode: monitor.Whiten, Model: model}, Method: monitor.Normal, Gaps: pool, Seed: 1, Horizon: monitor.HorizonLong}

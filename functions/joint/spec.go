@@ -7,8 +7,9 @@ import (
 	"veer/functions/chart"
 )
 
-// Kind is a chart over several markers.
-type Kind string
+// Kind is a chart kind; the kinds over several markers share the type
+// and the words of package chart's, so one option names them all.
+type Kind = chart.Kind
 
 // Chart kinds. CUSUM and EWMA look only in each marker's harmful direction
 // (Spec.Sides) and, for one marker, are the single-marker charts of
@@ -20,13 +21,13 @@ const (
 	// projected onto the cone of harmful shifts (in the metric R^-1), so
 	// drifts the other way never build up. For one marker with side up or
 	// down it is the single-marker one-sided CUSUM.
-	CUSUM Kind = "cusum"
+	CUSUM = chart.CUSUM
 	// EWMA is the multivariate EWMA of Lowry et al. (1992) restricted to
 	// the harmful directions in the same way (the one-sided MEWMA of
 	// Testik & Runger 2006, reflected at the cone's boundary as the
 	// single-marker one-sided EWMA is at 0). For one marker with side up
 	// or down it is the single-marker one-sided EWMA (squared).
-	EWMA Kind = "ewma"
+	EWMA = chart.EWMA
 	// MEWMA is the multivariate EWMA of Lowry, Woodall, Champ & Rigdon
 	// (1992): it watches every direction.
 	MEWMA Kind = "mewma"
@@ -51,11 +52,11 @@ var Kinds = []Kind{CUSUM, EWMA, MEWMA, MCUSUM, Any}
 const MaxMarkers = 8
 
 // sided reports whether the kind takes one side per marker.
-func (k Kind) sided() bool { return k == CUSUM || k == EWMA || k == Any }
+func sided(k Kind) bool { return k == CUSUM || k == EWMA || k == Any }
 
 // ewmaKind reports whether the kind is an EWMA (weights lambda, tracked
 // covariance), as opposed to a CUSUM.
-func (k Kind) ewmaKind() bool { return k == EWMA || k == MEWMA }
+func ewmaKind(k Kind) bool { return k == EWMA || k == MEWMA }
 
 // Spec describes a chart over p markers. The zero value is not usable; see
 // DefaultSpec.
@@ -104,11 +105,11 @@ func (s Spec) Validate(p int) error {
 	default:
 		return &chart.SettingError{Setting: "chart", Value: string(s.Kind), Want: fmt.Sprintf("%q, %q, %q, %q or %q for several markers", CUSUM, EWMA, MEWMA, MCUSUM, Any)}
 	}
-	sided := s.Kind.sided()
+	oneWay := sided(s.Kind)
 	if len(s.Sides) != 0 && len(s.Sides) != p {
 		return &SidesError{Got: len(s.Sides), Want: p}
 	}
-	if sided && len(s.Sides) == 0 {
+	if oneWay && len(s.Sides) == 0 {
 		return &SidesError{Got: 0, Want: p}
 	}
 	for i, side := range s.Sides {
@@ -117,11 +118,11 @@ func (s Spec) Validate(p int) error {
 		default:
 			return &chart.SettingError{Setting: "side", Value: string(side), Want: fmt.Sprintf("%q, %q or %q (side %d)", chart.Up, chart.Down, chart.Both, i+1)}
 		}
-		if !sided && side != chart.Both {
+		if !oneWay && side != chart.Both {
 			return &chart.SettingError{Setting: "side", Value: string(side), Want: fmt.Sprintf("%q with chart %s, which watches every direction (for one direction per marker use chart %s or %s)", chart.Both, s.Kind, CUSUM, EWMA)}
 		}
 	}
-	if s.Kind.ewmaKind() {
+	if ewmaKind(s.Kind) {
 		if !(s.Lambda > 0 && s.Lambda <= 1) {
 			return &chart.SettingError{Setting: "lambda", Value: s.Lambda, Want: "more than 0 and at most 1"}
 		}
