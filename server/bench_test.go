@@ -20,7 +20,7 @@ func quietServer(b *testing.B) *harness {
 }
 
 func benchDial(b *testing.B, h *harness) *websocket.Conn {
-	c, _, err := h.dialRaw()
+	c, _, err := h.DialRaw()
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -200,7 +200,7 @@ func BenchmarkChart100k(b *testing.B) {
 			b.StartTimer()
 		}
 		c0 := processCPU()
-		resp, err := http.Post(h.base+"/v1/call", "application/json", bytes.NewReader(req))
+		resp, err := http.Post(h.URL+"/v1/call", "application/json", bytes.NewReader(req))
 		if err != nil {
 			b.Fatal(err)
 		}
@@ -232,7 +232,7 @@ func BenchmarkChart100k(b *testing.B) {
 func BenchmarkChart100kJSONBaseline(b *testing.B) {
 	req := chartPayload(100_000, 0)
 	h := quietServer(b)
-	resp, err := http.Post(h.base+"/v1/call", "application/json", bytes.NewReader(req))
+	resp, err := http.Post(h.URL+"/v1/call", "application/json", bytes.NewReader(req))
 	if err != nil {
 		b.Fatal(err)
 	}

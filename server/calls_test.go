@@ -1,14 +1,16 @@
 package server
 
 import (
-	"veer/functions/cell"
-
 	"encoding/json"
 	"fmt"
 	"reflect"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
+
+	"veer/functions/cell"
+	"veer/server/servertest"
 )
 
 // callCase is one call and the answer expected from both transports.
@@ -71,10 +73,10 @@ var toyCases = []callCase{
 	{"whole number", "VEER.T.TABLE", `[1.5]`, "", "#NUM!", "VEER.T.TABLE: argument 'n' must be a whole number from 0 to 1000; got 1.5"},
 }
 
-func checkAnswer(t *testing.T, c callCase, a answer, via string) {
+func checkAnswer(t *testing.T, c callCase, a servertest.Answer, via string) {
 	t.Helper()
 	if c.code != "" {
-		if a.code() != string(c.code) || !strings.Contains(a.Error.Message, c.part) {
+		if string(a.Code()) != string(c.code) || !strings.Contains(a.Error.Message, c.part) {
 			t.Errorf("%s %s: got value %s error %+v; want %s containing %q", via, c.name, a.Value, a.Error, c.code, c.part)
 		}
 		return
@@ -99,18 +101,18 @@ func TestToyFunctionsHTTPAndWebsocket(t *testing.T) {
 	for _, via := range []string{"http", "ws"} {
 		t.Run(via, func(t *testing.T) {
 			h := startServer(t, "")
-			var ws *wsClient
+			var ws *servertest.Conn
 			if via == "ws" {
-				ws = h.dial()
-				ws.sendJSON(map[string]any{"id": 0, "token": h.s.Token()})
-				if a := ws.next(5 * time.Second); string(a.Value) != "true" {
+				ws = h.Dial()
+				ws.Send(map[string]any{"id": 0, "token": h.s.Token()})
+				if a := ws.Next(5 * time.Second); string(a.Value) != "true" {
 					t.Fatalf("token message answered %+v", a)
 				}
 			}
 			for i, c := range toyCases {
-				var a answer
+				var a servertest.Answer
 				if via == "http" {
-					status, b := h.post(fmt.Sprintf(`{"fn": %q, "args": %s}`, c.fn, c.args), h.tokenHeader())
+					status, b := h.Do("POST", "/v1/call", fmt.Sprintf(`{"fn": %q, "args": %s}`, c.fn, c.args), h.tokenHeader())
 					if status != 200 {
 						t.Fatalf("%s: status %d: %s", c.name, status, b)
 					}
@@ -118,16 +120,16 @@ func TestToyFunctionsHTTPAndWebsocket(t *testing.T) {
 						t.Fatalf("%s: %s: %v", c.name, b, err)
 					}
 				} else {
-					ws.sendRaw([]byte(fmt.Sprintf(`{"id": %d, "fn": %q, "args": %s}`, i+1, c.fn, c.args)))
-					a = ws.next(10 * time.Second)
-					if string(a.ID) != itoa(i+1) {
+					ws.SendRaw([]byte(fmt.Sprintf(`{"id": %d, "fn": %q, "args": %s}`, i+1, c.fn, c.args)))
+					a = ws.Next(10 * time.Second)
+					if string(a.ID) != strconv.Itoa(i+1) {
 						t.Fatalf("%s: answer id %s; want %d", c.name, a.ID, i+1)
 					}
 				}
 				checkAnswer(t, c, a, via)
 			}
 			// The server keeps serving after all the bad input.
-			if st, _ := h.do("GET", "/v1/health", ""); st != 200 {
+			if st, _ := h.Do("GET", "/v1/health", ""); st != 200 {
 				t.Errorf("health after bad input: %d", st)
 			}
 		})
@@ -152,21 +154,21 @@ func TestBatchOrder(t *testing.T) {
 			calls = append(calls, map[string]any{"id": i, "fn": "VEER.T.NOPE", "args": []any{}})
 		}
 	}
-	check := func(via string, answers []answer) {
+	check := func(via string, answers []servertest.Answer) {
 		if len(answers) != n {
 			t.Fatalf("%s: %d answers; want %d", via, len(answers), n)
 		}
 		for i, a := range answers {
-			if string(a.ID) != itoa(i) {
+			if string(a.ID) != strconv.Itoa(i) {
 				t.Fatalf("%s: answer %d has id %s", via, i, a.ID)
 			}
 			switch i % 4 {
 			case 0:
-				if string(a.Value) != itoa(i+1000) {
+				if string(a.Value) != strconv.Itoa(i+1000) {
 					t.Errorf("%s: answer %d = %s", via, i, a.Value)
 				}
 			case 1:
-				if a.code() != "#N/A" || a.Error.Message != fmt.Sprint("VEER.T.FAIL: call ", i) {
+				if a.Code() != "#N/A" || a.Error.Message != fmt.Sprint("VEER.T.FAIL: call ", i) {
 					t.Errorf("%s: answer %d = %+v", via, i, a.Error)
 				}
 			case 2:
@@ -174,26 +176,26 @@ func TestBatchOrder(t *testing.T) {
 					t.Errorf("%s: answer %d = %+v", via, i, a.Error)
 				}
 			case 3:
-				if a.code() != "#NAME?" {
+				if a.Code() != "#NAME?" {
 					t.Errorf("%s: answer %d = %+v", via, i, a.Error)
 				}
 			}
 		}
 	}
 	body, _ := json.Marshal(calls)
-	status, b := h.post(string(body))
+	status, b := h.Do("POST", "/v1/call", string(body))
 	if status != 200 {
 		t.Fatalf("status %d: %s", status, b)
 	}
-	var answers []answer
+	var answers []servertest.Answer
 	if err := json.Unmarshal(b, &answers); err != nil {
 		t.Fatal(err)
 	}
 	check("http", answers)
 
-	ws := h.dial()
-	ws.sendRaw(body)
-	frame := ws.read(10 * time.Second)
+	ws := h.Dial()
+	ws.SendRaw(body)
+	frame := ws.Read(10 * time.Second)
 	answers = nil
 	if err := json.Unmarshal(frame, &answers); err != nil {
 		t.Fatalf("websocket batch answer is not one array frame: %.200s", frame)
@@ -201,14 +203,14 @@ func TestBatchOrder(t *testing.T) {
 	check("ws", answers)
 
 	// An empty batch is answered by an empty array.
-	if status, b := h.post(`[]`); status != 200 || strings.TrimSpace(string(b)) != "[]" {
+	if status, b := h.Do("POST", "/v1/call", `[]`); status != 200 || strings.TrimSpace(string(b)) != "[]" {
 		t.Errorf("empty batch: %d %s", status, b)
 	}
 	// A non-object inside a batch spoils only its own position.
-	status, b = h.post(`[{"fn":"VEER.T.ADD","args":[1]}, 7, {"fn":"VEER.T.ADD","args":[2]}]`)
+	status, b = h.Do("POST", "/v1/call", `[{"fn":"VEER.T.ADD","args":[1]}, 7, {"fn":"VEER.T.ADD","args":[2]}]`)
 	answers = nil
 	json.Unmarshal(b, &answers)
-	if status != 200 || len(answers) != 3 || string(answers[0].Value) != "1" || answers[1].code() != "#VALUE!" || string(answers[2].Value) != "2" {
+	if status != 200 || len(answers) != 3 || string(answers[0].Value) != "1" || answers[1].Code() != "#VALUE!" || string(answers[2].Value) != "2" {
 		t.Errorf("mixed batch: %d %s", status, b)
 	}
 }
@@ -230,33 +232,33 @@ func TestMalformedRequests(t *testing.T) {
 		{"{\"fn\": \"VEER.T.ADD\", \"args\": [\"\x01\"]}", "control character"},
 		{"\xef\xbb\xbf{}", "expected a call object"},
 	}
-	ws := h.dial()
+	ws := h.Dial()
 	for _, tt := range tests {
-		status, b := h.post(tt.body)
-		var a answer
+		status, b := h.Do("POST", "/v1/call", tt.body)
+		var a servertest.Answer
 		json.Unmarshal(b, &a)
-		if status != 400 || a.code() != "#VALUE!" || !strings.Contains(a.Error.Message, tt.part) {
+		if status != 400 || a.Code() != "#VALUE!" || !strings.Contains(a.Error.Message, tt.part) {
 			t.Errorf("POST %q: %d %s; want 400 #VALUE! containing %q", tt.body, status, b, tt.part)
 		}
-		ws.sendRaw([]byte(tt.body))
-		a = ws.next(5 * time.Second)
-		if a.code() != "#VALUE!" || !strings.Contains(a.Error.Message, tt.part) {
+		ws.SendRaw([]byte(tt.body))
+		a = ws.Next(5 * time.Second)
+		if a.Code() != "#VALUE!" || !strings.Contains(a.Error.Message, tt.part) {
 			t.Errorf("ws %q: %+v", tt.body, a)
 		}
 	}
 	// Wrong field types are per-call errors.
 	for _, body := range []string{`{"fn": 5}`, `{"fn": "VEER.T.ADD", "args": 5}`, `{"id": [1], "fn": "VEER.T.ADD", "args": [1]}`, `{"fn": "VEER.T.ADD", "args": [1], "subscribe": "yes"}`, `{"args": [1]}`} {
-		status, b := h.post(body)
-		var a answer
+		status, b := h.Do("POST", "/v1/call", body)
+		var a servertest.Answer
 		json.Unmarshal(b, &a)
-		if status != 200 || a.code() != "#VALUE!" {
+		if status != 200 || a.Code() != "#VALUE!" {
 			t.Errorf("POST %s: %d %s", body, status, b)
 		}
 	}
-	if a := ws.call(1, "VEER.T.ADD", 1, 2); string(a.Value) != "3" {
+	if a := ws.Call(1, "VEER.T.ADD", 1, 2); string(a.Value) != "3" {
 		t.Errorf("the websocket stopped serving: %+v", a)
 	}
-	if st, b := h.do("GET", "/v1/call", ""); st != 405 {
+	if st, b := h.Do("GET", "/v1/call", ""); st != 405 {
 		t.Errorf("GET /v1/call: %d %s", st, b)
 	}
 }
@@ -264,7 +266,7 @@ func TestMalformedRequests(t *testing.T) {
 // TestFunctionsAndModelsListing checks GET /v1/functions and /v1/models.
 func TestFunctionsAndModelsListing(t *testing.T) {
 	h := startServer(t, "")
-	st, b := h.do("GET", "/v1/functions", "")
+	st, b := h.Do("GET", "/v1/functions", "")
 	var l struct {
 		Functions []struct {
 			Name      string
@@ -287,9 +289,9 @@ func TestFunctionsAndModelsListing(t *testing.T) {
 			t.Errorf("listing entry %d = %+v; want %s", i, f, want[i].Name)
 		}
 	}
-	h.callHTTP("VEER.T.FIT", "Lung", []float64{1, 2})
-	h.callHTTP("VEER.T.FIT", "lung", []float64{1, 3})
-	st, b = h.do("GET", "/v1/models", "")
+	h.Call("VEER.T.FIT", "Lung", []float64{1, 2})
+	h.Call("VEER.T.FIT", "lung", []float64{1, 3})
+	st, b = h.Do("GET", "/v1/models", "")
 	var ml struct{ Models []ModelInfo }
 	if err := json.Unmarshal(b, &ml); st != 200 || err != nil || len(ml.Models) != 1 {
 		t.Fatalf("models: %d %v %s", st, err, b)

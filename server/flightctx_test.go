@@ -6,6 +6,8 @@ import (
 	"sync/atomic"
 	"testing"
 	"time"
+
+	"veer/server/servertest"
 )
 
 func TestFlightCtx(t *testing.T) {
@@ -56,7 +58,7 @@ func TestFlightCtx(t *testing.T) {
 		if !errors.Is(c.Err(), context.Canceled) || !errors.Is(child.Err(), context.Canceled) {
 			t.Errorf("Err = %v, child %v", c.Err(), child.Err())
 		}
-		eventually(t, 2*time.Second, "AfterFunc to run", ran.Load)
+		servertest.Eventually(t, 2*time.Second, "AfterFunc to run", ran.Load)
 		c.end(context.DeadlineExceeded)
 		if !errors.Is(c.Err(), context.Canceled) {
 			t.Error("first reason did not stick")

@@ -38,7 +38,7 @@ func TestManyWebsocketClients(t *testing.T) {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			conn, _, err := h.dialRaw()
+			conn, _, err := h.DialRaw()
 			if err != nil {
 				fail("client %d dial: %v", c, err)
 				return

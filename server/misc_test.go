@@ -23,13 +23,13 @@ func TestStaticFiles(t *testing.T) {
 	h := startServer(t, "", func(c *Config) {
 		c.Static = fstest.MapFS{"taskpane.html": {Data: []byte("<html>veer</html>")}}
 	})
-	if st, b := h.do("GET", "/addin/taskpane.html", ""); st != 200 || string(b) != "<html>veer</html>" {
+	if st, b := h.Do("GET", "/addin/taskpane.html", ""); st != 200 || string(b) != "<html>veer</html>" {
 		t.Errorf("static file: %d %s", st, b)
 	}
-	if st, _ := h.do("GET", "/addin/missing.js", ""); st != 404 {
+	if st, _ := h.Do("GET", "/addin/missing.js", ""); st != 404 {
 		t.Errorf("missing static file: %d", st)
 	}
-	if st, _ := h.do("GET", "/addin/taskpane.html", "", "Host: evil.example"); st != 403 {
+	if st, _ := h.Do("GET", "/addin/taskpane.html", "", "Host: evil.example"); st != 403 {
 		t.Errorf("static file with a foreign Host: %d", st)
 	}
 }

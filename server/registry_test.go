@@ -17,11 +17,12 @@ import (
 	"time"
 
 	"veer/functions/cell"
+	"veer/server/servertest"
 )
 
-func openReg(t *testing.T, dir string) (*Registry, *syncBuffer) {
+func openReg(t *testing.T, dir string) (*Registry, *servertest.LogBuffer) {
 	t.Helper()
-	logs := &syncBuffer{}
+	logs := &servertest.LogBuffer{}
 	r, err := OpenRegistry(dir, slog.New(slog.NewTextHandler(logs, nil)))
 	if err != nil {
 		t.Fatal(err)

@@ -12,6 +12,8 @@ import (
 	"time"
 
 	"github.com/gorilla/websocket"
+
+	"veer/server/servertest"
 )
 
 // TestHostHeaderDNSRebinding: a Host header naming anything but this
@@ -19,7 +21,7 @@ import (
 // websocket upgrade.
 func TestHostHeaderDNSRebinding(t *testing.T) {
 	h := startServer(t, "", func(c *Config) { c.AllowedHosts = []string{"veer.internal"} })
-	_, port, _ := net.SplitHostPort(h.host)
+	_, port, _ := net.SplitHostPort(h.Addr)
 	tests := []struct {
 		host string
 		ok   bool
@@ -40,7 +42,7 @@ func TestHostHeaderDNSRebinding(t *testing.T) {
 		{"localhost", false}, // port 80 is not served
 	}
 	for _, tt := range tests {
-		st, b := h.do("GET", "/v1/functions", "", "Host: "+tt.host)
+		st, b := h.Do("GET", "/v1/functions", "", "Host: "+tt.host)
 		if (st == 200) != tt.ok {
 			t.Errorf("GET with Host %q: %d %.100s; want ok=%v", tt.host, st, b, tt.ok)
 		}
@@ -48,12 +50,12 @@ func TestHostHeaderDNSRebinding(t *testing.T) {
 			if st != 403 || !strings.Contains(string(b), "Host") {
 				t.Errorf("Host %q: status %d body %s; want 403 naming the Host header", tt.host, st, b)
 			}
-			st, _ = h.post(`{"fn":"VEER.T.ADD","args":[1]}`, "Host: "+tt.host)
+			st, _ = h.Do("POST", "/v1/call", `{"fn":"VEER.T.ADD","args":[1]}`, "Host: "+tt.host)
 			if st != 403 {
 				t.Errorf("POST with Host %q: %d; want 403", tt.host, st)
 			}
 			// The websocket upgrade, with the Host header forged on the wire.
-			conn, err := net.Dial("tcp", h.host)
+			conn, err := net.Dial("tcp", h.Addr)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -75,7 +77,7 @@ func TestHostHeaderDNSRebinding(t *testing.T) {
 // requests without Origin (non-browser clients) are allowed.
 func TestOriginCheck(t *testing.T) {
 	h := startServer(t, "", func(c *Config) { c.AllowedOrigins = []string{"https://addin.example.org/"} })
-	_, port, _ := net.SplitHostPort(h.host)
+	_, port, _ := net.SplitHostPort(h.Addr)
 	tests := []struct {
 		origin string
 		ok     bool
@@ -101,7 +103,7 @@ func TestOriginCheck(t *testing.T) {
 		if tt.origin != "" {
 			hdr = append(hdr, "Origin: "+tt.origin)
 		}
-		st, b := h.post(`{"fn":"VEER.T.ADD","args":[1,2]}`, hdr...)
+		st, b := h.Do("POST", "/v1/call", `{"fn":"VEER.T.ADD","args":[1,2]}`, hdr...)
 		if (st == 200) != tt.ok {
 			t.Errorf("POST with Origin %q: %d %s; want ok=%v", tt.origin, st, b, tt.ok)
 		}
@@ -110,15 +112,15 @@ func TestOriginCheck(t *testing.T) {
 		}
 		if tt.ok && tt.origin != "" {
 			// CORS lets the allowed page read the answer.
-			st, _ := h.do("OPTIONS", "/v1/call", "", "Origin: "+tt.origin, "Access-Control-Request-Method: POST", "Access-Control-Request-Headers: x-veer-token")
+			st, _ := h.Do("OPTIONS", "/v1/call", "", "Origin: "+tt.origin, "Access-Control-Request-Method: POST", "Access-Control-Request-Headers: x-veer-token")
 			if st != 204 {
 				t.Errorf("preflight from %q: %d", tt.origin, st)
 			}
 		}
-		if st, _ := h.do("GET", "/v1/models", "", hdr...); (st == 200) != tt.ok {
+		if st, _ := h.Do("GET", "/v1/models", "", hdr...); (st == 200) != tt.ok {
 			t.Errorf("GET /v1/models with Origin %q: %d", tt.origin, st)
 		}
-		c, resp, err := h.dialRaw(hdr...)
+		c, resp, err := h.DialRaw(hdr...)
 		if tt.ok {
 			if err != nil {
 				t.Errorf("websocket with Origin %q refused: %v", tt.origin, err)
@@ -136,8 +138,8 @@ func TestOriginCheck(t *testing.T) {
 	}
 	// The CORS headers name the allowed origin only.
 	req := fmt.Sprintf("Origin: https://addin.example.org")
-	_, _ = h.post(`{"fn":"VEER.T.ADD","args":[1]}`, req)
-	st, _ := h.do("OPTIONS", "/v1/call", "", "Origin: https://evil.example")
+	_, _ = h.Do("POST", "/v1/call", `{"fn":"VEER.T.ADD","args":[1]}`, req)
+	st, _ := h.Do("OPTIONS", "/v1/call", "", "Origin: https://evil.example")
 	if st != 403 {
 		t.Errorf("preflight from evil origin: %d; want 403", st)
 	}
@@ -162,48 +164,48 @@ func TestWritesNeedToken(t *testing.T) {
 		{"right token in body", nil, `{"fn":"VEER.T.FIT","args":["m",[1,2,4]],"token":"` + h.s.Token() + `"}`, true, ""},
 	}
 	for _, tt := range tests {
-		st, b := h.post(tt.body, tt.headers...)
-		var a answer
+		st, b := h.Do("POST", "/v1/call", tt.body, tt.headers...)
+		var a servertest.Answer
 		json.Unmarshal(b, &a)
 		if tt.ok != (a.Error == nil) || (!tt.ok && !strings.Contains(a.Error.Message, tt.part)) || st != 200 {
 			t.Errorf("%s: %d %s", tt.name, st, b)
 		}
 	}
 	// Reads need no token.
-	if st, b := h.post(`{"fn":"VEER.T.READ","args":["m",0]}`); st != 200 || strings.Contains(string(b), "error") {
+	if st, b := h.Do("POST", "/v1/call", `{"fn":"VEER.T.READ","args":["m",0]}`); st != 200 || strings.Contains(string(b), "error") {
 		t.Errorf("read without token: %d %s", st, b)
 	}
 	// PUT and DELETE of models.
-	if st, _ := h.do("PUT", "/v1/models/up", `{"a":1}`); st != 401 {
+	if st, _ := h.Do("PUT", "/v1/models/up", `{"a":1}`); st != 401 {
 		t.Errorf("PUT without token: %d", st)
 	}
-	if st, b := h.do("PUT", "/v1/models/up", `{"a":1}`, h.tokenHeader()); st != 201 || !strings.Contains(string(b), `"up@v1"`) {
+	if st, b := h.Do("PUT", "/v1/models/up", `{"a":1}`, h.tokenHeader()); st != 201 || !strings.Contains(string(b), `"up@v1"`) {
 		t.Errorf("PUT with token: %d %s", st, b)
 	}
-	if st, b := h.do("PUT", "/v1/models/up", `{"a":1}`, h.tokenHeader()); st != 200 || !strings.Contains(string(b), `"created":false`) {
+	if st, b := h.Do("PUT", "/v1/models/up", `{"a":1}`, h.tokenHeader()); st != 200 || !strings.Contains(string(b), `"created":false`) {
 		t.Errorf("PUT of identical content: %d %s", st, b)
 	}
-	if st, _ := h.do("DELETE", "/v1/models/up", "", TokenHeader+": x"); st != 401 {
+	if st, _ := h.Do("DELETE", "/v1/models/up", "", TokenHeader+": x"); st != 401 {
 		t.Errorf("DELETE with wrong token: %d", st)
 	}
-	if st, _ := h.do("DELETE", "/v1/models/up", "", h.tokenHeader()); st != 200 {
+	if st, _ := h.Do("DELETE", "/v1/models/up", "", h.tokenHeader()); st != 200 {
 		t.Errorf("DELETE with token: %d", st)
 	}
-	if st, _ := h.do("GET", "/v1/models/up", ""); st != 404 {
+	if st, _ := h.Do("GET", "/v1/models/up", ""); st != 404 {
 		t.Errorf("GET deleted model: %d", st)
 	}
 	// Websocket: refused without the token, accepted with it in the message.
-	ws := h.dial()
-	if a := ws.call(1, "VEER.T.FIT", "w", []float64{1, 2}); a.code() != "#VALUE!" || !strings.Contains(a.Error.Message, "veer token") {
+	ws := h.Dial()
+	if a := ws.Call(1, "VEER.T.FIT", "w", []float64{1, 2}); a.Code() != "#VALUE!" || !strings.Contains(a.Error.Message, "veer token") {
 		t.Errorf("ws fit without token: %+v", a)
 	}
-	ws.sendJSON(map[string]any{"id": 2, "fn": "VEER.T.FIT", "args": []any{"w", []float64{1, 2}}, "token": h.s.Token()})
-	if a := ws.next(5 * time.Second); string(a.Value) != `"w@v1"` {
+	ws.Send(map[string]any{"id": 2, "fn": "VEER.T.FIT", "args": []any{"w", []float64{1, 2}}, "token": h.s.Token()})
+	if a := ws.Next(5 * time.Second); string(a.Value) != `"w@v1"` {
 		t.Errorf("ws fit with token: %+v", a)
 	}
-	ws2 := h.dial()
-	ws2.sendJSON(map[string]any{"id": 1, "token": "wrong"})
-	if a := ws2.next(5 * time.Second); a.code() != "#VALUE!" {
+	ws2 := h.Dial()
+	ws2.Send(map[string]any{"id": 1, "token": "wrong"})
+	if a := ws2.Next(5 * time.Second); a.Code() != "#VALUE!" {
 		t.Errorf("ws wrong token message: %+v", a)
 	}
 }
@@ -257,53 +259,53 @@ func TestLimits(t *testing.T) {
 		}
 	})
 	big := `{"fn":"VEER.T.ECHO","args":["` + strings.Repeat("x", 5000) + `"]}`
-	st, b := h.post(big)
+	st, b := h.Do("POST", "/v1/call", big)
 	if st != 413 || !strings.Contains(string(b), "larger than the limit of 4 KiB") {
 		t.Errorf("oversized body: %d %s", st, b)
 	}
-	ws := h.dial()
-	ws.sendRaw([]byte(big))
-	ws.c.SetReadDeadline(time.Now().Add(5 * time.Second))
-	_, _, err := ws.c.ReadMessage()
+	ws := h.Dial()
+	ws.SendRaw([]byte(big))
+	ws.SetReadDeadline(time.Now().Add(5 * time.Second))
+	_, _, err := ws.ReadMessage()
 	var ce *websocket.CloseError
 	if !errorsAs(err, &ce) || ce.Code != websocket.CloseMessageTooBig || !strings.Contains(ce.Text, "limit") {
 		t.Errorf("oversized frame: %v; want close 1009 with a reason", err)
 	}
-	if a := h.dial().call(1, "VEER.T.ADD", 1, 1); string(a.Value) != "2" {
+	if a := h.Dial().Call(1, "VEER.T.ADD", 1, 1); string(a.Value) != "2" {
 		t.Errorf("new connection after an oversized frame: %+v", a)
 	}
 
 	rows := make([]float64, 51)
-	a := h.callHTTP("VEER.T.MEAN", rows)
-	if a.code() != "#VALUE!" || !strings.Contains(a.Error.Message, "VEER.T.MEAN: argument 'values' has 51 rows; the limit is 50") {
+	a := h.Call("VEER.T.MEAN", rows)
+	if a.Code() != "#VALUE!" || !strings.Contains(a.Error.Message, "VEER.T.MEAN: argument 'values' has 51 rows; the limit is 50") {
 		t.Errorf("rows limit: %+v", a)
 	}
-	a = h.callHTTP("VEER.T.CUSUM", make([]float64, 45), make([]float64, 45), make([]float64, 45))
-	if a.code() != "#VALUE!" || !strings.Contains(a.Error.Message, "more than 120 cells") {
+	a = h.Call("VEER.T.CUSUM", make([]float64, 45), make([]float64, 45), make([]float64, 45))
+	if a.Code() != "#VALUE!" || !strings.Contains(a.Error.Message, "more than 120 cells") {
 		t.Errorf("cells limit: %+v", a)
 	}
-	st, b = h.post(`[{"fn":"VEER.T.ADD","args":[1]},{"fn":"VEER.T.ADD","args":[1]},{"fn":"VEER.T.ADD","args":[1]},{"fn":"VEER.T.ADD","args":[1]},{"fn":"VEER.T.ADD","args":[1]},{"fn":"VEER.T.ADD","args":[1]}]`)
+	st, b = h.Do("POST", "/v1/call", `[{"fn":"VEER.T.ADD","args":[1]},{"fn":"VEER.T.ADD","args":[1]},{"fn":"VEER.T.ADD","args":[1]},{"fn":"VEER.T.ADD","args":[1]},{"fn":"VEER.T.ADD","args":[1]},{"fn":"VEER.T.ADD","args":[1]}]`)
 	if st != 400 || !strings.Contains(string(b), "more than 5 calls") {
 		t.Errorf("batch limit: %d %s", st, b)
 	}
 
 	// Time per call.
-	if a := h.callHTTP("VEER.T.SLOW", 5); a.code() != "#BUSY!" || !strings.Contains(a.Error.Message, "time limit of 1s") {
+	if a := h.Call("VEER.T.SLOW", 5); a.Code() != "#BUSY!" || !strings.Contains(a.Error.Message, "time limit of 1s") {
 		t.Errorf("slow call over its time limit: %+v", a)
 	}
 	// Concurrency: one slot, held by a slow call; another call waits for
 	// its whole time limit and gets #BUSY!.
-	done := make(chan answer)
-	go func() { done <- h.callHTTP("VEER.T.SLOW", 0.6, "hold") }()
-	eventually(t, 5*time.Second, "the slot to be taken", func() bool { return h.st.slowStarts.Load() == 2 })
-	if a := h.callHTTP("VEER.T.ADD", 40, 2); a.code() != "#BUSY!" || !strings.Contains(a.Error.Message, "computation slots stayed busy") {
+	done := make(chan servertest.Answer)
+	go func() { done <- h.Call("VEER.T.SLOW", 0.6, "hold") }()
+	servertest.Eventually(t, 5*time.Second, "the slot to be taken", func() bool { return h.st.slowStarts.Load() == 2 })
+	if a := h.Call("VEER.T.ADD", 40, 2); a.Code() != "#BUSY!" || !strings.Contains(a.Error.Message, "computation slots stayed busy") {
 		t.Errorf("call while all slots busy: %+v", a)
 	}
 	if a := <-done; string(a.Value) != "0.6" {
 		t.Errorf("slot holder: %+v", a)
 	}
 	// #BUSY! is not cached: the same call succeeds now.
-	if a := h.callHTTP("VEER.T.ADD", 40, 2); string(a.Value) != "42" {
+	if a := h.Call("VEER.T.ADD", 40, 2); string(a.Value) != "42" {
 		t.Errorf("after the slot is free: %+v", a)
 	}
 }
@@ -321,15 +323,15 @@ func errorsAs(err error, target **websocket.CloseError) bool {
 func TestLogsCarryNoValues(t *testing.T) {
 	h := startServer(t, "")
 	secretID, secretVal, secretModel := "WORKER-7731-SECRET", 987.654321, "site-secret-model"
-	h.callHTTP("VEER.T.CUSUM", []string{secretID, secretID}, []float64{30, 31}, []float64{secretVal, 1})
-	h.callHTTP("VEER.T.FIT", secretModel, []float64{secretVal, 1})
-	h.callHTTP("VEER.T.READ", secretModel, secretVal)
-	h.callHTTP("VEER.T.FAIL", "#N/A", "message with "+secretID)
-	h.callHTTP("VEER.T.PANIC")
-	ws := h.dial()
-	ws.sendJSON(map[string]any{"id": secretID, "fn": "VEER.T.ADD", "args": []any{secretVal}})
-	ws.next(5 * time.Second)
-	h.stop()
+	h.Call("VEER.T.CUSUM", []string{secretID, secretID}, []float64{30, 31}, []float64{secretVal, 1})
+	h.Call("VEER.T.FIT", secretModel, []float64{secretVal, 1})
+	h.Call("VEER.T.READ", secretModel, secretVal)
+	h.Call("VEER.T.FAIL", "#N/A", "message with "+secretID)
+	h.Call("VEER.T.PANIC")
+	ws := h.Dial()
+	ws.Send(map[string]any{"id": secretID, "fn": "VEER.T.ADD", "args": []any{secretVal}})
+	ws.Next(5 * time.Second)
+	h.Close()
 	logs := h.logs.String()
 	for _, s := range []string{secretID, "987.65", secretModel, "message with"} {
 		if strings.Contains(logs, s) {

@@ -3,12 +3,15 @@ package server
 import (
 	"encoding/json"
 	"net/http"
+	"strconv"
 	"strings"
 	"sync"
 	"testing"
 	"time"
 
 	"github.com/gorilla/websocket"
+
+	"veer/server/servertest"
 )
 
 // TestStreamingUpdateAfterRefit: a subscribed call naming a model by bare
@@ -16,59 +19,59 @@ import (
 // a call pinned to a handle, or not subscribed, is not.
 func TestStreamingUpdateAfterRefit(t *testing.T) {
 	h := startServer(t, "")
-	if a := h.callHTTP("VEER.T.FIT", "bp", []float64{1, 2, 3}); string(a.Value) != `"bp@v1"` {
+	if a := h.Call("VEER.T.FIT", "bp", []float64{1, 2, 3}); string(a.Value) != `"bp@v1"` {
 		t.Fatalf("fit: %+v", a)
 	}
-	ws := h.dial()
-	ws.sendJSON(map[string]any{"id": 1, "fn": "VEER.T.READ", "args": []any{"bp", 10}, "subscribe": true})
-	ws.sendJSON(map[string]any{"id": 2, "fn": "VEER.T.READ", "args": []any{"bp@v1", 10}, "subscribe": true})
-	ws.sendJSON(map[string]any{"id": 3, "fn": "VEER.T.READ", "args": []any{"bp", 20}})
-	ws.sendJSON(map[string]any{"id": 4, "fn": "VEER.T.READ", "args": []any{"later", 1}, "subscribe": true})
-	got := map[string]answer{}
+	ws := h.Dial()
+	ws.Send(map[string]any{"id": 1, "fn": "VEER.T.READ", "args": []any{"bp", 10}, "subscribe": true})
+	ws.Send(map[string]any{"id": 2, "fn": "VEER.T.READ", "args": []any{"bp@v1", 10}, "subscribe": true})
+	ws.Send(map[string]any{"id": 3, "fn": "VEER.T.READ", "args": []any{"bp", 20}})
+	ws.Send(map[string]any{"id": 4, "fn": "VEER.T.READ", "args": []any{"later", 1}, "subscribe": true})
+	got := map[string]servertest.Answer{}
 	for len(got) < 4 {
-		a := ws.next(5 * time.Second)
+		a := ws.Next(5 * time.Second)
 		got[string(a.ID)] = a
 	}
-	if string(got["1"].Value) != "8" || string(got["2"].Value) != "8" || string(got["3"].Value) != "18" || got["4"].code() != "#REF!" {
+	if string(got["1"].Value) != "8" || string(got["2"].Value) != "8" || string(got["3"].Value) != "18" || got["4"].Code() != "#REF!" {
 		t.Fatalf("first answers: %+v", got)
 	}
 
 	// Refit over HTTP: only id 1 is answered again, with the new mean 20.
-	if a := h.callHTTP("VEER.T.FIT", "bp", []float64{10, 20, 30}); string(a.Value) != `"bp@v2"` {
+	if a := h.Call("VEER.T.FIT", "bp", []float64{10, 20, 30}); string(a.Value) != `"bp@v2"` {
 		t.Fatalf("refit: %+v", a)
 	}
-	a := ws.next(5 * time.Second)
+	a := ws.Next(5 * time.Second)
 	if string(a.ID) != "1" || !a.Update || string(a.Value) != "-10" {
 		t.Fatalf("update after refit = %+v; want id 1, update, -10", a)
 	}
 	// A model that did not exist yet: the subscribed call is answered when
 	// it is fitted.
-	h.callHTTP("VEER.T.FIT", "later", []float64{0, 2})
-	a = ws.next(5 * time.Second)
+	h.Call("VEER.T.FIT", "later", []float64{0, 2})
+	a = ws.Next(5 * time.Second)
 	if string(a.ID) != "4" || !a.Update || string(a.Value) != "0" {
 		t.Fatalf("update after first fit = %+v; want id 4, update, 0", a)
 	}
 	// Saving identical content adds no version and sends no update; the
 	// next frame is the answer to a fresh call.
-	h.callHTTP("VEER.T.FIT", "bp", []float64{10, 20, 30})
-	if a := ws.call(5, "VEER.T.ADD", 1, 1); string(a.Value) != "2" {
+	h.Call("VEER.T.FIT", "bp", []float64{10, 20, 30})
+	if a := ws.Call(5, "VEER.T.ADD", 1, 1); string(a.Value) != "2" {
 		t.Fatalf("after identical refit, next frame = %+v", a)
 	}
 	// Cancelling a subscription acknowledges and stops its updates.
-	ws.sendJSON(map[string]any{"cancel": 1})
-	if a := ws.next(5 * time.Second); string(a.ID) != "1" || a.Cancelled == nil || !*a.Cancelled {
+	ws.Send(map[string]any{"cancel": 1})
+	if a := ws.Next(5 * time.Second); string(a.ID) != "1" || a.Cancelled == nil || !*a.Cancelled {
 		t.Fatalf("cancel ack = %+v", a)
 	}
-	h.callHTTP("VEER.T.FIT", "bp", []float64{100, 200})
-	if a := ws.call(6, "VEER.T.ADD", 2, 2); string(a.Value) != "4" {
+	h.Call("VEER.T.FIT", "bp", []float64{100, 200})
+	if a := ws.Call(6, "VEER.T.ADD", 2, 2); string(a.Value) != "4" {
 		t.Fatalf("after cancelled subscription, next frame = %+v", a)
 	}
 	// Deleting a model answers its subscribers with #REF!.
-	if st, b := h.do("DELETE", "/v1/models/later", "", h.tokenHeader()); st != 200 {
+	if st, b := h.Do("DELETE", "/v1/models/later", "", h.tokenHeader()); st != 200 {
 		t.Fatalf("delete: %d %s", st, b)
 	}
-	a = ws.next(5 * time.Second)
-	if string(a.ID) != "4" || !a.Update || a.code() != "#REF!" {
+	a = ws.Next(5 * time.Second)
+	if string(a.ID) != "4" || !a.Update || a.Code() != "#REF!" {
 		t.Fatalf("update after delete = %+v", a)
 	}
 }
@@ -78,12 +81,12 @@ func TestStreamingUpdateAfterRefit(t *testing.T) {
 // answer; the connection keeps working.
 func TestCancellation(t *testing.T) {
 	h := startServer(t, "")
-	ws := h.dial()
-	ws.sendJSON(map[string]any{"id": "slow-1", "fn": "VEER.T.SLOW", "args": []any{30}})
+	ws := h.Dial()
+	ws.Send(map[string]any{"id": "slow-1", "fn": "VEER.T.SLOW", "args": []any{30}})
 	var progress []float64
 	for len(progress) < 2 {
-		b := ws.read(5 * time.Second)
-		var a answer
+		b := ws.Read(5 * time.Second)
+		var a servertest.Answer
 		json.Unmarshal(b, &a)
 		if a.Progress == nil || string(a.ID) != `"slow-1"` {
 			t.Fatalf("expected progress for slow-1, got %s", b)
@@ -93,9 +96,9 @@ func TestCancellation(t *testing.T) {
 	if !(progress[1] > progress[0]) {
 		t.Errorf("progress does not increase: %v", progress)
 	}
-	ws.sendJSON(map[string]any{"cancel": "slow-1"})
+	ws.Send(map[string]any{"cancel": "slow-1"})
 	for {
-		a := ws.next(5 * time.Second)
+		a := ws.Next(5 * time.Second)
 		if a.Cancelled != nil {
 			if string(a.ID) != `"slow-1"` || !*a.Cancelled {
 				t.Fatalf("cancel ack = %+v", a)
@@ -104,20 +107,20 @@ func TestCancellation(t *testing.T) {
 		}
 		t.Fatalf("unexpected answer before the cancel ack: %+v", a)
 	}
-	eventually(t, 5*time.Second, "the slow computation to stop", func() bool { return h.st.slowAborted.Load() == 1 })
-	if a := ws.call(2, "VEER.T.ADD", 1, 2); string(a.Value) != "3" {
+	servertest.Eventually(t, 5*time.Second, "the slow computation to stop", func() bool { return h.st.slowAborted.Load() == 1 })
+	if a := ws.Call(2, "VEER.T.ADD", 1, 2); string(a.Value) != "3" {
 		t.Fatalf("after cancel: %+v", a)
 	}
 	// Cancelling an unknown or finished call says so.
-	ws.sendJSON(map[string]any{"cancel": 2})
-	if a := ws.next(5 * time.Second); a.Cancelled == nil || *a.Cancelled {
+	ws.Send(map[string]any{"cancel": 2})
+	if a := ws.Next(5 * time.Second); a.Cancelled == nil || *a.Cancelled {
 		t.Fatalf("cancel of a finished call = %+v", a)
 	}
 	// Closing the connection cancels its calls too.
-	ws.sendJSON(map[string]any{"id": 3, "fn": "VEER.T.SLOW", "args": []any{31}})
-	eventually(t, 5*time.Second, "the second slow call to start", func() bool { return h.st.slowStarts.Load() == 2 })
-	ws.c.Close()
-	eventually(t, 5*time.Second, "the computation of a closed connection to stop", func() bool { return h.st.slowAborted.Load() == 2 })
+	ws.Send(map[string]any{"id": 3, "fn": "VEER.T.SLOW", "args": []any{31}})
+	servertest.Eventually(t, 5*time.Second, "the second slow call to start", func() bool { return h.st.slowStarts.Load() == 2 })
+	ws.Close()
+	servertest.Eventually(t, 5*time.Second, "the computation of a closed connection to stop", func() bool { return h.st.slowAborted.Load() == 2 })
 }
 
 // TestSharedComputationAndCache: identical concurrent calls share one
@@ -127,19 +130,19 @@ func TestSharedComputationAndCache(t *testing.T) {
 	h := startServer(t, "")
 	const n = 8
 	var wg sync.WaitGroup
-	answers := make([]answer, n)
+	answers := make([]servertest.Answer, n)
 	for i := range n {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			answers[i] = h.callHTTP("VEER.T.SLOW", 0.3, "same")
+			answers[i] = h.Call("VEER.T.SLOW", 0.3, "same")
 		}()
 	}
 	// One more caller over the websocket joins and leaves early.
-	ws := h.dial()
-	ws.sendJSON(map[string]any{"id": 1, "fn": "VEER.T.SLOW", "args": []any{0.3, "same"}})
+	ws := h.Dial()
+	ws.Send(map[string]any{"id": 1, "fn": "VEER.T.SLOW", "args": []any{0.3, "same"}})
 	time.Sleep(50 * time.Millisecond)
-	ws.sendJSON(map[string]any{"cancel": 1})
+	ws.Send(map[string]any{"cancel": 1})
 	wg.Wait()
 	for i, a := range answers {
 		if string(a.Value) != "0.3" {
@@ -149,13 +152,13 @@ func TestSharedComputationAndCache(t *testing.T) {
 	if s := h.st.slowStarts.Load(); s != 1 {
 		t.Errorf("%d computations for %d identical concurrent calls; want 1", s, n+1)
 	}
-	if a := h.callHTTP("VEER.T.SLOW", 0.3, "same"); string(a.Value) != "0.3" || h.st.slowStarts.Load() != 1 {
+	if a := h.Call("VEER.T.SLOW", 0.3, "same"); string(a.Value) != "0.3" || h.st.slowStarts.Load() != 1 {
 		t.Errorf("repeat call recomputed (starts %d): %+v", h.st.slowStarts.Load(), a)
 	}
 	// A model is parsed once per version across calls (Env.Once).
-	h.callHTTP("VEER.T.FIT", "m", []float64{1, 3})
+	h.Call("VEER.T.FIT", "m", []float64{1, 3})
 	for i := range 5 {
-		if a := h.callHTTP("VEER.T.READ", "m", i); string(a.Value) != itoa(i-2) {
+		if a := h.Call("VEER.T.READ", "m", i); string(a.Value) != strconv.Itoa(i-2) {
 			t.Errorf("read %d = %+v", i, a)
 		}
 	}
@@ -166,12 +169,12 @@ func TestSharedComputationAndCache(t *testing.T) {
 	// version is the latest; after another fit it runs again and restores
 	// the data as the latest version.
 	fits := h.st.fits.Load()
-	h.callHTTP("VEER.T.FIT", "m", []float64{1, 3})
+	h.Call("VEER.T.FIT", "m", []float64{1, 3})
 	if h.st.fits.Load() != fits {
 		t.Error("identical fit recomputed")
 	}
-	h.callHTTP("VEER.T.FIT", "m", []float64{5, 7})
-	if a := h.callHTTP("VEER.T.FIT", "m", []float64{1, 3}); string(a.Value) != `"m@v3"` {
+	h.Call("VEER.T.FIT", "m", []float64{5, 7})
+	if a := h.Call("VEER.T.FIT", "m", []float64{1, 3}); string(a.Value) != `"m@v3"` {
 		t.Errorf("fit of earlier data after a change = %s; want m@v3", a.Value)
 	}
 }
@@ -180,25 +183,25 @@ func TestSharedComputationAndCache(t *testing.T) {
 func TestRestartKeepsModels(t *testing.T) {
 	dir := t.TempDir()
 	h := startServer(t, dir)
-	h.callHTTP("VEER.T.FIT", "fev", []float64{1, 2, 3})
-	h.callHTTP("VEER.T.FIT", "fev", []float64{4, 5, 6})
+	h.Call("VEER.T.FIT", "fev", []float64{1, 2, 3})
+	h.Call("VEER.T.FIT", "fev", []float64{4, 5, 6})
 	tok := h.s.Token()
-	h.stop()
+	h.Close()
 
 	h2 := startServer(t, dir)
 	if h2.s.Token() != tok {
 		t.Error("token changed across restart")
 	}
-	if a := h2.callHTTP("VEER.T.READ", "fev", 5); string(a.Value) != "0" {
+	if a := h2.Call("VEER.T.READ", "fev", 5); string(a.Value) != "0" {
 		t.Errorf("latest after restart: %+v", a)
 	}
-	if a := h2.callHTTP("VEER.T.READ", "fev@v1", 5); string(a.Value) != "3" {
+	if a := h2.Call("VEER.T.READ", "fev@v1", 5); string(a.Value) != "3" {
 		t.Errorf("v1 after restart: %+v", a)
 	}
-	if a := h2.callHTTP("VEER.T.FIT", "fev", []float64{4, 5, 6}); string(a.Value) != `"fev@v2"` {
+	if a := h2.Call("VEER.T.FIT", "fev", []float64{4, 5, 6}); string(a.Value) != `"fev@v2"` {
 		t.Errorf("refit of the same data after restart: %+v; want the same handle", a)
 	}
-	st, b := h2.do("GET", "/v1/models/fev@v1", "")
+	st, b := h2.Do("GET", "/v1/models/fev@v1", "")
 	if st != 200 || !strings.Contains(string(b), `"mean":2`) {
 		t.Errorf("GET model v1: %d %s", st, b)
 	}
@@ -209,12 +212,12 @@ func TestRestartKeepsModels(t *testing.T) {
 // "going away" and returns.
 func TestGracefulShutdown(t *testing.T) {
 	h := startServer(t, "")
-	ws := h.dial()
-	ws.sendJSON(map[string]any{"id": 1, "fn": "VEER.T.SLOW", "args": []any{0.4, "ws"}})
-	httpDone := make(chan answer, 1)
-	go func() { httpDone <- h.callHTTP("VEER.T.SLOW", 0.4, "http") }()
-	eventually(t, 5*time.Second, "both calls to start", func() bool { return h.st.slowStarts.Load() == 2 })
-	h.cancel()
+	ws := h.Dial()
+	ws.Send(map[string]any{"id": 1, "fn": "VEER.T.SLOW", "args": []any{0.4, "ws"}})
+	httpDone := make(chan servertest.Answer, 1)
+	go func() { httpDone <- h.Call("VEER.T.SLOW", 0.4, "http") }()
+	servertest.Eventually(t, 5*time.Second, "both calls to start", func() bool { return h.st.slowStarts.Load() == 2 })
+	h.Shutdown()
 	select {
 	case a := <-httpDone:
 		if string(a.Value) != "0.4" {
@@ -223,28 +226,21 @@ func TestGracefulShutdown(t *testing.T) {
 	case <-time.After(10 * time.Second):
 		t.Fatal("HTTP call not answered during shutdown")
 	}
-	if a := ws.next(10 * time.Second); string(a.Value) != "0.4" {
+	if a := ws.Next(10 * time.Second); string(a.Value) != "0.4" {
 		t.Errorf("websocket call during shutdown: %+v", a)
 	}
-	ws.c.SetReadDeadline(time.Now().Add(10 * time.Second))
-	_, _, err := ws.c.ReadMessage()
+	ws.SetReadDeadline(time.Now().Add(10 * time.Second))
+	_, _, err := ws.ReadMessage()
 	if !websocket.IsCloseError(err, websocket.CloseGoingAway) {
 		t.Errorf("after shutdown the websocket read %v; want close 1001 (going away)", err)
 	}
-	select {
-	case err := <-h.done:
-		if err != nil {
-			t.Errorf("Serve returned %v", err)
-		}
-		h.cancel = nil
-		h.s.Close()
-	case <-time.After(10 * time.Second):
-		t.Fatal("Serve did not return")
+	if err := h.Close(); err != nil { // Serve returns, with no error
+		t.Error(err)
 	}
 	if h.st.slowAborted.Load() != 0 {
 		t.Error("a call was aborted by a graceful shutdown")
 	}
-	if _, err := http.Get(h.base + "/v1/health"); err == nil {
+	if _, err := http.Get(h.URL + "/v1/health"); err == nil {
 		t.Error("server still accepts connections after shutdown")
 	}
 }

@@ -11,7 +11,6 @@ import (
 	"encoding/json"
 	"fmt"
 	"image/color"
-	"io"
 	"math"
 	"math/rand/v2"
 	"net"
@@ -20,7 +19,6 @@ import (
 	"path/filepath"
 	"strconv"
 	"strings"
-	"sync"
 	"syscall"
 	"testing"
 	"time"
@@ -33,6 +31,7 @@ import (
 	"veer/functions/screening"
 	"veer/internal/browsertest"
 	"veer/server"
+	"veer/server/servertest"
 )
 
 // The browser tests load the REAL add-in runtime (addin/web/veer.js) and
@@ -44,88 +43,52 @@ import (
 // anything the platform would refuse. Every expected number comes from the
 // same server over plain HTTP (/v1/call): the add-in must add nothing.
 
-// addinServer is a veer server serving in this process, built exactly as
-// `veer serve` builds it, plus the test host page at /addin/test/.
-type addinServer struct {
-	addr   string
-	https  *http.Client // set when the server speaks HTTPS
-	s      *server.Server
-	cancel context.CancelFunc
-	done   chan error
-	once   sync.Once
-}
-
-func startAddinServer(t *testing.T, addr, dir string) *addinServer {
+// startAddinServer starts a veer server built exactly as `veer serve`
+// builds it, plus the test host page at /addin/test/, on addr.
+func startAddinServer(t *testing.T, addr, dir string) *liveServer {
 	t.Helper()
 	return buildAddinServer(t, addr, dir).listen(t)
 }
 
 // buildAddinServer builds the server (the demo models take a moment) without
 // listening yet.
-func buildAddinServer(t *testing.T, addr, dir string) *addinServer {
+func buildAddinServer(t *testing.T, addr, dir string) *liveServer {
 	t.Helper()
-	sf := &serverFlags{addr: addr, data: dir, testFiles: os.DirFS(filepath.Join("..", "..", "addin", "web", "testdata"))}
-	s, err := newServer(&env{stdout: io.Discard, stderr: &serveLog{}}, sf)
-	if err != nil {
-		t.Fatal(err)
-	}
-	return &addinServer{addr: addr, s: s, done: make(chan error, 1)}
+	s, log := buildLive(t, &serverFlags{addr: addr, data: dir, testFiles: os.DirFS(filepath.Join("..", "..", "addin", "web", "testdata"))})
+	return &liveServer{s: s, dir: dir, log: log}
 }
 
-func (l *addinServer) listen(t *testing.T) *addinServer {
+// listen serves a built server on its address until the test ends; https,
+// when set, is a client that trusts the server's certificate.
+func (ls *liveServer) listen(t *testing.T) *liveServer {
 	t.Helper()
-	ln, err := l.s.Listen()
+	ln, err := ls.s.Listen()
 	for i := 0; err != nil && i < 50; i++ { // the old server's port may take a moment to free
 		time.Sleep(20 * time.Millisecond)
-		ln, err = l.s.Listen()
+		ln, err = ls.s.Listen()
 	}
 	if err != nil {
 		t.Fatal(err)
 	}
-	ctx, cancel := context.WithCancel(context.Background())
-	l.addr, l.cancel = ln.Addr().String(), cancel
-	go func() { l.done <- l.s.Serve(ctx, ln) }()
-	t.Cleanup(l.stop)
-	return l
+	if ls.https != nil {
+		ls.Server = servertest.ServeTLS(t, ls.s, ln, ls.https)
+	} else {
+		ls.Server = servertest.Serve(t, ls.s, ln)
+	}
+	ls.Auth = server.TokenHeader + ": " + ls.s.Token()
+	t.Cleanup(func() { ls.stop(t) })
+	return ls
 }
 
-func (l *addinServer) stop() {
-	l.once.Do(func() {
-		l.cancel()
-		<-l.done
-		l.s.Close()
-	})
-}
-
-// call asks the server over HTTP, as a non-browser client.
-func (l *addinServer) call(t *testing.T, fn string, args ...any) json.RawMessage {
+// call asks the server over HTTP, as a non-browser client, and returns the
+// value; an error answer ends the test.
+func (ls *liveServer) call(t *testing.T, fn string, args ...any) json.RawMessage {
 	t.Helper()
-	body, err := json.Marshal(map[string]any{"fn": fn, "args": args})
-	if err != nil {
-		t.Fatal(err)
+	a := ls.For(t).Call(fn, args...)
+	if a.Error != nil {
+		t.Fatalf("the server answered %s over HTTP with %s %s", fn, a.Error.Code, a.Error.Message)
 	}
-	url, client := "http://"+l.addr+"/v1/call", http.DefaultClient
-	if l.https != nil {
-		url, client = "https://"+l.addr+"/v1/call", l.https
-	}
-	req, _ := http.NewRequest("POST", url, bytes.NewReader(body))
-	req.Header.Set(server.TokenHeader, l.s.Token())
-	resp, err := client.Do(req)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer resp.Body.Close()
-	var ans struct {
-		Value json.RawMessage `json:"value"`
-		Error *struct{ Code, Message string }
-	}
-	if err := json.NewDecoder(resp.Body).Decode(&ans); err != nil {
-		t.Fatal(err)
-	}
-	if ans.Error != nil {
-		t.Fatalf("the server answered %s over HTTP with %s %s", fn, ans.Error.Code, ans.Error.Message)
-	}
-	return ans.Value
+	return a.Value
 }
 
 // hostResult is what the stand-in host saw in a cell.
@@ -271,7 +234,7 @@ func TestWebAddinInBrowser(t *testing.T) {
 			t.Errorf("uncaught exceptions in the page:\n  %s", strings.Join(e, "\n  "))
 		}
 	}()
-	if err := chromedp.Do(ctx, chromedp.Navigate("http://"+live.addr+"/addin/test/host.html")); err != nil {
+	if err := chromedp.Do(ctx, chromedp.Navigate("http://"+live.Addr+"/addin/test/host.html")); err != nil {
 		t.Fatal(err)
 	}
 	n := inPage[int](t, ctx, 10*time.Second, `testHost.ready`)
@@ -493,10 +456,10 @@ func TestWebAddinInBrowser(t *testing.T) {
 
 	t.Run("server not running", func(t *testing.T) {
 		t0 := time.Now()
-		live.stop()
+		live.stop(t)
 		t.Logf("the server stopped in %v", time.Since(t0).Round(time.Millisecond))
 		r := hostCall(t, ctx, "VEER.ZSCORE", "demo-sbp", oneCol(44), oneCol(131), oneCol("tower"))
-		wantCellError(t, r, "#N/A", "veer server not running on "+live.addr)
+		wantCellError(t, r, "#N/A", "veer server not running on "+live.Addr)
 		if r.MS > 5000 {
 			t.Errorf("the cell waited %.0f ms for the error; want a few seconds", r.MS)
 		}
@@ -510,7 +473,7 @@ func TestWebAddinInBrowser(t *testing.T) {
 		// A cell recalculated while the server is down waits; a new server
 		// on the same port answers it, and the streaming cell subscribes
 		// again.
-		live2 := buildAddinServer(t, live.addr, dir)
+		live2 := buildAddinServer(t, live.Addr, dir)
 		connects := inPage[int](t, ctx, time.Second, `veer.client.stats.connects`)
 		id := inPage[int](t, ctx, time.Second, `testHost.invoke("VEER.ZSCORE", ["demo-sbp", [[45]], [[132]], [["tower"]]])`)
 		time.Sleep(300 * time.Millisecond)
@@ -553,7 +516,7 @@ func TestWebAddinInBrowser(t *testing.T) {
 // really drifts (truth.csv), with at least six exams, whose chart signals,
 // and returns the exam table (header first) and the
 // worker's row numbers in it.
-func demoWorker(t *testing.T, live *addinServer) (table [][]any, worker string, group string, rows []int) {
+func demoWorker(t *testing.T, live *liveServer) (table [][]any, worker string, group string, rows []int) {
 	t.Helper()
 	recs, err := csv.NewReader(bytes.NewReader(examples.WorkforceCSV())).ReadAll()
 	if err != nil {
@@ -652,7 +615,7 @@ func TestTaskPaneInBrowser(t *testing.T) {
 		}
 	}()
 	officeStub(t, ctx)
-	if err := chromedp.Do(ctx, chromedp.Navigate("http://"+live.addr+"/addin/taskpane.html")); err != nil {
+	if err := chromedp.Do(ctx, chromedp.Navigate("http://"+live.Addr+"/addin/taskpane.html")); err != nil {
 		t.Fatal(err)
 	}
 	// The pane is a module; the tests reach its exports by importing it
@@ -682,7 +645,7 @@ func TestTaskPaneInBrowser(t *testing.T) {
 	if !ps.Stubbed {
 		t.Fatal("the pane did not load the host library (the stand-in)")
 	}
-	if strings.Join(ps.Models, ",") != "demo-fev1,demo-sbp" || ps.Info < 10 || !ps.Handle || !strings.HasPrefix(ps.Status, "Connected to veer on "+live.addr) {
+	if strings.Join(ps.Models, ",") != "demo-fev1,demo-sbp" || ps.Info < 10 || !ps.Handle || !strings.HasPrefix(ps.Status, "Connected to veer on "+live.Addr) {
 		t.Errorf("the pane shows models %v, %d diagnostics (handle shown: %v), status %q", ps.Models, ps.Info, ps.Handle, ps.Status)
 	}
 
@@ -789,7 +752,7 @@ func TestTaskPaneInBrowser(t *testing.T) {
 	}
 
 	// The status line tells when the server goes away.
-	live.stop()
+	live.stop(t)
 	status := inPage[string](t, ctx, 8*time.Second, `(async () => {
 		for (let i = 0; i < 120; i++) {
 			const s = document.getElementById("status-text").textContent;
@@ -798,7 +761,7 @@ func TestTaskPaneInBrowser(t *testing.T) {
 		}
 		return document.getElementById("status-text").textContent;
 	})()`)
-	if !strings.Contains(status, "veer server not running on "+live.addr) {
+	if !strings.Contains(status, "veer server not running on "+live.Addr) {
 		t.Errorf("with the server stopped the status says %q", status)
 	}
 	t.Logf("screenshots in %s; whole pane test %v", out, time.Since(begin).Round(time.Millisecond))
@@ -816,14 +779,11 @@ func TestWebAddinOverTLS(t *testing.T) {
 		t.Fatal(err)
 	}
 	sf := &serverFlags{addr: "127.0.0.1:0", data: dir, tlsConfig: cfg, testFiles: os.DirFS(filepath.Join("..", "..", "addin", "web", "testdata"))}
-	s, err := newServer(&env{stdout: io.Discard, stderr: &serveLog{}}, sf)
-	if err != nil {
-		t.Fatal(err)
-	}
+	s, log := buildLive(t, sf)
 	pool := x509.NewCertPool()
 	pool.AddCert(leaf)
-	live := (&addinServer{s: s, done: make(chan error, 1), https: &http.Client{Transport: &http.Transport{TLSClientConfig: &tls.Config{RootCAs: pool}}}}).listen(t)
-	_, port, _ := net.SplitHostPort(live.addr)
+	live := (&liveServer{s: s, dir: dir, log: log, https: &http.Client{Transport: &http.Transport{TLSClientConfig: &tls.Config{RootCAs: pool}}}}).listen(t)
+	_, port, _ := net.SplitHostPort(live.Addr)
 	spki := sha256.Sum256(leaf.RawSubjectPublicKeyInfo)
 	ctx := browsertest.New(t, exe, 800, 600, chromedp.Flag("ignore-certificate-errors-spki-list", base64.StdEncoding.EncodeToString(spki[:])))
 	if err := chromedp.Do(ctx, chromedp.Navigate("https://localhost:"+port+"/addin/test/host.html")); err != nil {

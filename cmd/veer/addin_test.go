@@ -2,7 +2,6 @@ package main
 
 import (
 	"bytes"
-	"context"
 	"crypto/ecdsa"
 	"crypto/elliptic"
 	"crypto/tls"
@@ -12,10 +11,10 @@ import (
 	"errors"
 	"flag"
 	"io"
-	"net"
 	"net/http"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -200,27 +199,12 @@ func TestServeTLS(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	sf := &serverFlags{addr: "127.0.0.1:0", data: dir, tlsConfig: cfg}
-	s, err := newServer(&env{stdout: io.Discard, stderr: io.Discard}, sf)
-	if err != nil {
-		t.Fatal(err)
-	}
-	ln, err := s.Listen()
-	if err != nil {
-		t.Fatal(err)
-	}
-	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan error, 1)
-	go func() { done <- s.Serve(ctx, ln) }()
-	defer func() {
-		cancel()
-		<-done
-		s.Close()
-	}()
-	_, port, _ := net.SplitHostPort(ln.Addr().String())
+	s, log := buildLive(t, &serverFlags{addr: "127.0.0.1:0", data: dir, tlsConfig: cfg})
 	pool := x509.NewCertPool()
 	pool.AddCert(leaf)
 	client := &http.Client{Timeout: 10 * time.Second, Transport: &http.Transport{TLSClientConfig: &tls.Config{RootCAs: pool}}}
+	ls := (&liveServer{s: s, dir: dir, log: log, https: client}).listen(t)
+	port := strconv.Itoa(ls.port())
 	for _, c := range []struct{ url, want string }{
 		{"https://localhost:" + port + "/v1/health", ""},
 		{"https://127.0.0.1:" + port + "/addin/taskpane.html", "veer.js"},

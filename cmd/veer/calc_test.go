@@ -25,7 +25,7 @@ import (
 	"veer/functions/catalog"
 	"veer/functions/screening"
 	"veer/internal/table"
-	"veer/server"
+	"veer/server/servertest"
 )
 
 // calcRun runs the calc-extension command in-process.
@@ -267,72 +267,19 @@ func (o *calcOffice) settings(port int, token string) {
 	}
 }
 
-// calcServer is `veer serve` run in-process, restartable on its port.
-type calcServer struct {
-	t      *testing.T
-	dir    string
-	port   int
-	srv    *server.Server
-	cancel context.CancelFunc
-	done   chan error
-}
-
-func startCalcServer(t *testing.T, dir string, port int) *calcServer {
+// startCalcServer runs `veer serve` in-process on port (0: a free one);
+// it can be stopped and started again on the same port.
+func startCalcServer(t *testing.T, dir string, port int) *liveServer {
 	t.Helper()
-	addr := "127.0.0.1:0"
-	if port > 0 {
-		addr = "127.0.0.1:" + strconv.Itoa(port)
-	}
-	s, err := newServer(&env{stdout: io.Discard, stderr: io.Discard}, &serverFlags{addr: addr, data: dir})
-	if err != nil {
-		t.Fatal(err)
-	}
-	ln, err := s.Listen()
-	if err != nil {
-		t.Fatal(err)
-	}
-	ctx, cancel := context.WithCancel(context.Background())
-	ls := &calcServer{t: t, dir: dir, port: ln.Addr().(*net.TCPAddr).Port, srv: s, cancel: cancel, done: make(chan error, 1)}
-	go func() { ls.done <- s.Serve(ctx, ln) }()
-	return ls
+	s, log := buildLive(t, &serverFlags{addr: "127.0.0.1:" + strconv.Itoa(port), data: dir})
+	return (&liveServer{s: s, dir: dir, log: log}).listen(t)
 }
 
-func (ls *calcServer) stop() {
-	if ls.cancel != nil {
-		ls.cancel()
-		<-ls.done
-		ls.srv.Close()
-		ls.cancel = nil
-	}
-}
-
-func (ls *calcServer) url(p string) string { return fmt.Sprintf("http://127.0.0.1:%d%s", ls.port, p) }
-
-// calcAnswer is one answer of POST /v1/call.
-type calcAnswer struct {
-	Value json.RawMessage `json:"value"`
-	Error *struct {
-		Code    string `json:"code"`
-		Message string `json:"message"`
-	} `json:"error"`
-}
-
-func (ls *calcServer) batch(calls []map[string]any) []calcAnswer {
-	ls.t.Helper()
-	body, _ := json.Marshal(calls)
-	req, _ := http.NewRequest("POST", ls.url("/v1/call"), bytes.NewReader(body))
-	req.Header.Set("Content-Type", "application/json")
-	req.Header.Set(server.TokenHeader, ls.srv.Token())
-	resp, err := http.DefaultClient.Do(req)
-	if err != nil {
-		ls.t.Fatal(err)
-	}
-	defer resp.Body.Close()
-	var out []calcAnswer
-	if err := json.NewDecoder(resp.Body).Decode(&out); err != nil || len(out) != len(calls) {
-		ls.t.Fatalf("POST /v1/call: %v (%d answers for %d calls)", err, len(out), len(calls))
-	}
-	return out
+// port returns the port the server listens on.
+func (ls *liveServer) port() int {
+	_, p, _ := net.SplitHostPort(ls.Addr)
+	n, _ := strconv.Atoi(p)
+	return n
 }
 
 // calcArg is one argument of a VEER formula as the driver resolved it.
@@ -465,10 +412,10 @@ func calcRows(v any) [][]any {
 
 // calcCompareBlock checks every cell of a Calc block against the server's answer
 // to the same call. Cells beyond the answer show #N/A in Calc.
-func calcCompareBlock(t *testing.T, b calcBlock, a calcAnswer) int {
+func calcCompareBlock(t *testing.T, b calcBlock, a servertest.Answer) int {
 	t.Helper()
 	if a.Error != nil {
-		want := calcErrorNumbers[a.Error.Code]
+		want := calcErrorNumbers[string(a.Error.Code)]
 		if want == 0 {
 			want = calcErrorNumbers["#N/A"] // #BUSY! and other codes Calc lacks
 		}
@@ -532,9 +479,9 @@ func TestCalcExtensionInLibreOffice(t *testing.T) {
 		t.Fatalf("calc-extension: %v\n%s", err, stderr)
 	}
 	ls := startCalcServer(t, filepath.Join(dir, "data"), 0)
-	defer func() { ls.stop() }()
+	defer func() { ls.stop(t) }()
 	o := startCalcOffice(t, oxt)
-	o.settings(ls.port, ls.srv.Token())
+	o.settings(ls.port(), ls.s.Token())
 
 	fns, err := calc.Functions(catalog.New().Listing())
 	if err != nil {
@@ -601,7 +548,7 @@ func TestCalcExtensionInLibreOffice(t *testing.T) {
 // calcWorkbook opens a copy of the workbook in Calc, recalculates and
 // compares every VEER cell with the server's own answer to the same call,
 // and (withCLI) the chart columns with veer screen on the same data.
-func calcWorkbook(t *testing.T, o *calcOffice, ls *calcServer, workbook string, fns []calc.Func, withCLI bool) {
+func calcWorkbook(t *testing.T, o *calcOffice, ls *liveServer, workbook string, fns []calc.Func, withCLI bool) {
 	b, err := os.ReadFile(workbook)
 	if err != nil {
 		t.Skipf("no example workbook %s yet: %v (the bad-input checks still build their own sheets)", workbook, err)
@@ -624,7 +571,7 @@ func calcWorkbook(t *testing.T, o *calcOffice, ls *calcServer, workbook string, 
 		t.Fatalf("%s has no VEER formulas that LibreOffice recognises", workbook)
 	}
 	// The server's own answers to the same calls, in one batch.
-	var calls []map[string]any
+	var calls []servertest.Call
 	var asked []calcBlock
 	used := map[string]bool{}
 	exams, cells := 0, 0
@@ -647,10 +594,10 @@ func calcWorkbook(t *testing.T, o *calcOffice, ls *calcServer, workbook string, 
 			}
 			continue
 		}
-		calls = append(calls, map[string]any{"fn": bl.Fn, "args": args})
+		calls = append(calls, servertest.NewCall(bl.Fn, args...))
 		asked = append(asked, bl)
 	}
-	answers := ls.batch(calls)
+	answers := ls.For(t).Batch(calls...)
 	for i, bl := range asked {
 		cells += calcCompareBlock(t, bl, answers[i])
 	}
@@ -676,7 +623,7 @@ func calcWorkbook(t *testing.T, o *calcOffice, ls *calcServer, workbook string, 
 // (with the block's options as flags, and the rule of a VEER.RULE block on
 // the same data as --rule) and compares its columns with Calc's. It returns
 // the seconds the screen runs took.
-func screenLikeCalc(t *testing.T, ls *calcServer, blocks []calcBlock) float64 {
+func screenLikeCalc(t *testing.T, ls *liveServer, blocks []calcBlock) float64 {
 	t.Helper()
 	dir := t.TempDir()
 	total := 0.0
@@ -685,7 +632,7 @@ func screenLikeCalc(t *testing.T, ls *calcServer, blocks []calcBlock) float64 {
 			continue
 		}
 		model := fmt.Sprint(ch.Args[0].Rows[0][0])
-		resp, err := http.Get(ls.url("/v1/models/" + model))
+		resp, err := http.Get(ls.URL + "/v1/models/" + model)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -821,7 +768,7 @@ func calcOpen(t *testing.T, path string) io.Reader {
 
 // calcBadInput builds small sheets of VEER formulas that go wrong and checks
 // each cell shows the right error, quickly, with the message in VEER.ERRORS.
-func calcBadInput(t *testing.T, o *calcOffice, ls *calcServer) {
+func calcBadInput(t *testing.T, o *calcOffice, ls *liveServer) {
 	type cellsAnswer struct {
 		Values [][]any          `json:"values"`
 		Errors map[string]int64 `json:"errors"`
@@ -899,11 +846,11 @@ func calcBadInput(t *testing.T, o *calcOffice, ls *calcServer) {
 		}
 		return out
 	}
-	direct := ls.batch([]map[string]any{
-		{"fn": "VEER.ZSCORE", "args": []any{"demo-sbp", col(30.0, nil, 45.0), col(120.0, nil, 140.0), col("tower", "tower", "workshop"), "extrapolate=true"}},
-		{"fn": "VEER.LIMIT", "args": []any{20.0, nil, "gap=1"}},
-		{"fn": "VEER.ZSCORE", "args": []any{"demo-sbp", col(30.0, nil, 45.0), col(120.0, 130.0, 140.0), col("tower", "tower", "workshop")}},
-	})
+	direct := ls.For(t).Batch(
+		servertest.NewCall("VEER.ZSCORE", "demo-sbp", col(30.0, nil, 45.0), col(120.0, nil, 140.0), col("tower", "tower", "workshop"), "extrapolate=true"),
+		servertest.NewCall("VEER.LIMIT", 20.0, nil, "gap=1"),
+		servertest.NewCall("VEER.ZSCORE", "demo-sbp", col(30.0, nil, 45.0), col(120.0, 130.0, 140.0), col("tower", "tower", "workshop")),
+	)
 	var z, z2 []any
 	json.Unmarshal(direct[0].Value, &z)
 	var limit float64
@@ -958,13 +905,13 @@ func calcBadInput(t *testing.T, o *calcOffice, ls *calcServer) {
 	}
 
 	// A wrong token: the write is refused with a message saying so.
-	o.settings(ls.port, "not-the-token")
+	o.settings(ls.port(), "not-the-token")
 	o.do(30*time.Second, map[string]any{"cmd": "set", "formulas": []map[string]any{{"cell": "E5", "formula": `=VEER.FIT("t-model2";C6:C8;A6:A8;B6:B8)`}}}, nil)
 	recalc(30 * time.Second)
 	if e := errAt(read("E5:E5"), 0, 0); e != calcErrorNumbers["#VALUE!"] || !hasMessage("VEER.FIT", "token") {
 		t.Errorf("a wrong token: E5 shows error %d, messages %q", e, messages())
 	}
-	o.settings(ls.port, ls.srv.Token())
+	o.settings(ls.port(), ls.s.Token())
 
 	// 200,000 exam rows in one call.
 	const big = 200_000
@@ -982,7 +929,7 @@ func calcBadInput(t *testing.T, o *calcOffice, ls *calcServer) {
 		"arrays": []map[string]any{{"range": fmt.Sprintf("D1:D%d", big), "formula": fmt.Sprintf(`=VEER.ZSCORE("demo-sbp";A1:A%d;B1:B%d;C1:C%d;"extrapolate=true")`, big, big, big)}}}, nil)
 	secs := recalc(60 * time.Second)
 	bigA := read(fmt.Sprintf("D1:D%d", big))
-	want := ls.batch([]map[string]any{{"fn": "VEER.ZSCORE", "args": []any{"demo-sbp", ages, vals, groups, "extrapolate=true"}}})[0]
+	want := ls.For(t).Call("VEER.ZSCORE", "demo-sbp", ages, vals, groups, "extrapolate=true")
 	var wz []any
 	if want.Error != nil || json.Unmarshal(want.Value, &wz) != nil || len(wz) != big {
 		t.Fatalf("the server's answer for %d rows: %+v", big, want.Error)
@@ -1011,8 +958,8 @@ func calcBadInput(t *testing.T, o *calcOffice, ls *calcServer) {
 	if e := errAt(read("E1:E1"), 0, 0); e != 0 {
 		t.Fatalf("with the server running E1 shows error %d", e)
 	}
-	port := ls.port
-	ls.stop()
+	port := ls.port()
+	ls.stop(t)
 	secs = recalc(5 * time.Second)
 	down := read("D1:E2")
 	for _, rc := range [][2]int{{0, 0}, {1, 0}, {0, 1}} {

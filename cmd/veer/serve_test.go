@@ -26,76 +26,55 @@ import (
 	"veer/functions/screening"
 	"veer/internal/table"
 	"veer/server"
+	"veer/server/servertest"
 )
 
-// serveLog collects the server's log from many goroutines.
-type serveLog struct {
-	mu sync.Mutex
-	b  bytes.Buffer
-}
-
-func (l *serveLog) Write(p []byte) (int, error) {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.Write(p)
-}
-
-func (l *serveLog) String() string {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.String()
-}
-
-// liveServer is a real veer server (newServer, as veer serve builds it)
-// on a loopback port.
+// liveServer is a real veer server, built as `veer serve` builds it
+// (newServer), serving on a loopback port in this process.
 type liveServer struct {
-	s      *server.Server
-	dir    string
-	base   string // http://127.0.0.1:port
-	host   string
-	log    *serveLog
-	cancel context.CancelFunc
-	done   chan error
-	client *http.Client
+	*servertest.Server
+	s     *server.Server
+	dir   string
+	log   *servertest.LogBuffer
+	https *http.Client // for a server that speaks TLS: a client that trusts it
 }
 
-func startLive(t testing.TB, dir string) *liveServer {
+// buildLive builds the server as veer serve does with flags sf, its log
+// (stderr) going to a buffer.
+func buildLive(t testing.TB, sf *serverFlags) (*server.Server, *servertest.LogBuffer) {
 	t.Helper()
-	ls := &liveServer{dir: dir, log: &serveLog{}}
-	s, err := newServer(&env{stdout: io.Discard, stderr: ls.log, stdin: strings.NewReader("")}, &serverFlags{addr: "127.0.0.1:0", data: dir})
+	log := &servertest.LogBuffer{}
+	s, err := newServer(&env{stdout: io.Discard, stderr: log, stdin: strings.NewReader("")}, sf)
 	if err != nil {
 		t.Fatal(err)
 	}
-	ln, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	ctx, cancel := context.WithCancel(context.Background())
-	ls.s, ls.cancel, ls.done = s, cancel, make(chan error, 1)
-	ls.host = ln.Addr().String()
-	ls.base = "http://" + ls.host
-	ls.client = &http.Client{Transport: &http.Transport{MaxIdleConnsPerHost: 16}, Timeout: 2 * time.Minute}
-	go func() { ls.done <- s.Serve(ctx, ln) }()
+	return s, log
+}
+
+// serveLive serves s on ln; calls over HTTP carry the install token.
+// Stopping it (Close) is the caller's.
+func serveLive(t testing.TB, s *server.Server, log *servertest.LogBuffer, ln net.Listener, dir string) *liveServer {
+	ls := &liveServer{Server: servertest.Serve(t, s, ln), s: s, dir: dir, log: log}
+	ls.Auth = server.TokenHeader + ": " + s.Token()
 	return ls
 }
 
-// stop shuts the server down gracefully and waits for Serve to return.
+// startLive builds and serves a server on a new loopback port.
+func startLive(t testing.TB, dir string) *liveServer {
+	t.Helper()
+	s, log := buildLive(t, &serverFlags{addr: "127.0.0.1:0", data: dir})
+	ln, err := s.Listen()
+	if err != nil {
+		t.Fatal(err)
+	}
+	return serveLive(t, s, log, ln, dir)
+}
+
+// stop shuts the server down gracefully and checks that Serve ended well.
 func (ls *liveServer) stop(t testing.TB) {
-	if ls.cancel == nil {
-		return
+	if err := ls.Close(); err != nil {
+		t.Error(err)
 	}
-	ls.cancel()
-	select {
-	case err := <-ls.done:
-		if err != nil {
-			t.Errorf("Serve returned %v", err)
-		}
-	case <-time.After(30 * time.Second):
-		t.Errorf("Serve did not return after shutdown")
-	}
-	ls.s.Close()
-	ls.cancel = nil
-	ls.client.CloseIdleConnections()
 }
 
 var (
@@ -104,162 +83,30 @@ var (
 	sharedLiveDir  string
 )
 
-// shared returns a server shared by the tests that do not restart it. It
-// is stopped when the test binary ends.
+// shared returns a server shared by the tests that do not restart it,
+// failing t. It is stopped when the test binary ends.
 func shared(t testing.TB) *liveServer {
 	t.Helper()
 	sharedLiveOnce.Do(func() {
 		sharedLiveDir = filepath.Join(sharedDir, "serve")
 		sharedLive = startLive(t, sharedLiveDir)
 	})
-	return sharedLive
+	ls := *sharedLive
+	ls.Server = sharedLive.For(t)
+	return &ls
 }
 
 func stopShared() {
 	if sharedLive != nil {
-		sharedLive.cancel()
-		<-sharedLive.done
-		sharedLive.s.Close()
+		sharedLive.Close()
 	}
-}
-
-// answer is one decoded answer message.
-type answer struct {
-	ID       json.RawMessage `json:"id,omitempty"`
-	Value    json.RawMessage `json:"value,omitempty"`
-	Error    *cell.Error     `json:"error,omitempty"`
-	Update   bool            `json:"update,omitempty"`
-	Progress *float64        `json:"progress,omitempty"`
-}
-
-// post sends a body to /v1/call with the install token and returns the
-// raw answer.
-func (ls *liveServer) post(t testing.TB, body []byte) []byte {
-	t.Helper()
-	req, err := http.NewRequest("POST", ls.base+"/v1/call", bytes.NewReader(body))
-	if err != nil {
-		t.Fatal(err)
-	}
-	req.Header.Set("Content-Type", "application/json")
-	req.Header.Set(server.TokenHeader, ls.s.Token())
-	resp, err := ls.client.Do(req)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer resp.Body.Close()
-	b, err := io.ReadAll(resp.Body)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if resp.StatusCode != http.StatusOK {
-		t.Fatalf("POST /v1/call: status %d: %.300s", resp.StatusCode, b)
-	}
-	return b
-}
-
-// callHTTP makes one call over HTTP.
-func (ls *liveServer) callHTTP(t testing.TB, fn string, args ...any) answer {
-	t.Helper()
-	if args == nil {
-		args = []any{}
-	}
-	body, err := json.Marshal(map[string]any{"fn": fn, "args": args})
-	if err != nil {
-		t.Fatal(err)
-	}
-	var a answer
-	if err := json.Unmarshal(ls.post(t, body), &a); err != nil {
-		t.Fatal(err)
-	}
-	return a
-}
-
-// value decodes a successful answer's value.
-func (a answer) value(t testing.TB) any {
-	t.Helper()
-	if a.Error != nil {
-		t.Fatalf("answer is the error %v", a.Error)
-	}
-	var v any
-	if err := json.Unmarshal(a.Value, &v); err != nil {
-		t.Fatalf("value %s: %v", a.Value, err)
-	}
-	return v
-}
-
-// wsConn is a test websocket client.
-type wsConn struct {
-	t testing.TB
-	c *websocket.Conn
-}
-
-func (ls *liveServer) dial(t testing.TB) *wsConn {
-	t.Helper()
-	d := websocket.Dialer{HandshakeTimeout: 5 * time.Second}
-	c, _, err := d.Dial("ws://"+ls.host+"/v1/ws", nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { c.Close() })
-	return &wsConn{t: t, c: c}
-}
-
-func (w *wsConn) send(v any) {
-	w.t.Helper()
-	b, err := json.Marshal(v)
-	if err != nil {
-		w.t.Fatal(err)
-	}
-	if err := w.c.WriteMessage(websocket.TextMessage, b); err != nil {
-		w.t.Fatal(err)
-	}
-}
-
-// frame reads the next frame that is not a progress message.
-func (w *wsConn) frame(timeout time.Duration) []byte {
-	w.t.Helper()
-	deadline := time.Now().Add(timeout)
-	for {
-		w.c.SetReadDeadline(deadline)
-		_, b, err := w.c.ReadMessage()
-		if err != nil {
-			w.t.Fatalf("reading the websocket: %v", err)
-		}
-		if bytes.HasPrefix(bytes.TrimSpace(b), []byte("{")) {
-			var a answer
-			if json.Unmarshal(b, &a) == nil && a.Progress != nil {
-				continue
-			}
-		}
-		return b
-	}
-}
-
-func (w *wsConn) next(timeout time.Duration) answer {
-	w.t.Helper()
-	var a answer
-	if err := json.Unmarshal(w.frame(timeout), &a); err != nil {
-		w.t.Fatal(err)
-	}
-	return a
-}
-
-// call sends one call with an id and waits for its answer.
-func (w *wsConn) call(id int, fn string, args ...any) answer {
-	w.t.Helper()
-	w.send(map[string]any{"id": id, "fn": fn, "args": args})
-	a := w.next(time.Minute)
-	if string(a.ID) != strconv.Itoa(id) {
-		w.t.Fatalf("answer id %s; want %d", a.ID, id)
-	}
-	return a
 }
 
 // expected computes a call in-process with the catalogue on env, with the
 // arguments passed through JSON as the server receives them, and returns
 // the answer the server must give (its value encoded as the server
 // encodes it).
-func expected(t testing.TB, env cell.Env, fn string, args ...any) answer {
+func expected(t testing.TB, env cell.Env, fn string, args ...any) servertest.Answer {
 	t.Helper()
 	b, err := json.Marshal(args)
 	if err != nil {
@@ -272,7 +119,7 @@ func expected(t testing.TB, env cell.Env, fn string, args ...any) answer {
 	}
 	f, ok := expectCat.Lookup(fn)
 	if !ok {
-		return answer{Error: &cell.Error{Code: cell.CodeName}} // the server words it
+		return servertest.Answer{Error: &cell.Error{Code: cell.CodeName}} // the server words it
 	}
 	vals := make([]cell.Value, len(raw))
 	for i, x := range raw {
@@ -282,24 +129,24 @@ func expected(t testing.TB, env cell.Env, fn string, args ...any) answer {
 	}
 	bound, err := cell.Bind(f, vals)
 	if err != nil {
-		return answer{Error: cell.AsError(err).In(f.Name)}
+		return servertest.Answer{Error: cell.AsError(err).In(f.Name)}
 	}
 	res, err := f.Call(context.Background(), env, bound)
 	if err != nil {
-		return answer{Error: cell.AsError(err).In(f.Name)}
+		return servertest.Answer{Error: cell.AsError(err).In(f.Name)}
 	}
 	enc, e := cell.EncodeResult(nil, f.Name, res)
 	if e != nil {
-		return answer{Error: e}
+		return servertest.Answer{Error: e}
 	}
-	return answer{Value: enc}
+	return servertest.Answer{Value: enc}
 }
 
 var expectCat = catalog.New()
 
 // sameAnswer compares a server answer with the expected one: equal JSON
 // values, or the same error code and message.
-func sameAnswer(t testing.TB, what string, got, want answer) {
+func sameAnswer(t testing.TB, what string, got, want servertest.Answer) {
 	t.Helper()
 	if (got.Error == nil) != (want.Error == nil) {
 		t.Errorf("%s: got %s %v; want %s %v", what, got.Value, got.Error, want.Value, want.Error)
@@ -412,7 +259,7 @@ func TestServeCatalogue(t *testing.T) {
 	ref := synthExams(1, 160, 0)
 	env := builtinEnv(t)
 	calls := catalogueCalls(ref, f.work[:120])
-	want := make([]answer, len(calls))
+	want := make([]servertest.Answer, len(calls))
 	for i, c := range calls {
 		want[i] = expected(t, env, c.fn, c.args...)
 	}
@@ -426,7 +273,7 @@ func TestServeCatalogue(t *testing.T) {
 			// The listing lists the built-in models and every model fitted
 			// so far in this test (so a cached answer is not reused after
 			// a fit): compare names only, versions differ from in-process.
-			a := ls.callHTTP(t, c.fn)
+			a := ls.Call(c.fn)
 			if a.Error != nil {
 				t.Errorf("VEER.MODELS: %v", a.Error)
 			}
@@ -437,7 +284,7 @@ func TestServeCatalogue(t *testing.T) {
 			}
 			continue
 		}
-		got := ls.callHTTP(t, c.fn, c.args...)
+		got := ls.Call(c.fn, c.args...)
 		sameAnswer(t, fmt.Sprintf("HTTP %s#%d", c.fn, i), got, want[i])
 	}
 	for _, fi := range expectCat.Funcs() {
@@ -446,7 +293,7 @@ func TestServeCatalogue(t *testing.T) {
 		}
 	}
 	// The listing names every function.
-	resp, err := ls.client.Get(ls.base + "/v1/functions")
+	resp, err := ls.Client.Get(ls.URL + "/v1/functions")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -468,8 +315,8 @@ func TestServeCatalogue(t *testing.T) {
 		idx = append(idx, i)
 	}
 	body, _ := json.Marshal(batch)
-	var answers []answer
-	if err := json.Unmarshal(ls.post(t, body), &answers); err != nil {
+	var answers []servertest.Answer
+	if err := json.Unmarshal(ls.Post(body), &answers); err != nil {
 		t.Fatal(err)
 	}
 	if len(answers) != len(batch) {
@@ -483,21 +330,21 @@ func TestServeCatalogue(t *testing.T) {
 	}
 
 	// The websocket: each call with its id, writes with the token.
-	ws := ls.dial(t)
-	ws.send(map[string]any{"id": 0, "token": ls.s.Token()})
-	if a := ws.next(10 * time.Second); string(a.Value) != "true" {
+	ws := ls.Dial()
+	ws.Send(map[string]any{"id": 0, "token": ls.s.Token()})
+	if a := ws.Next(10 * time.Second); string(a.Value) != "true" {
 		t.Fatalf("token message answered %+v", a)
 	}
 	for i, c := range calls {
 		if c.fn == "VEER.MODELS" {
 			continue
 		}
-		got := ws.call(1000+i, c.fn, c.args...)
+		got := ws.Call(1000+i, c.fn, c.args...)
 		sameAnswer(t, fmt.Sprintf("websocket %s#%d", c.fn, i), got, want[i])
 	}
 	// A websocket batch is one frame answered by one frame, in order.
-	ws.send(batch)
-	if err := json.Unmarshal(ws.frame(time.Minute), &answers); err != nil {
+	ws.Send(batch)
+	if err := json.Unmarshal(ws.Frame(time.Minute), &answers); err != nil {
 		t.Fatal(err)
 	}
 	if len(answers) != len(batch) {
@@ -522,45 +369,45 @@ func TestServeStreaming(t *testing.T) {
 	ls := shared(t)
 	a := synthExams(31, 120, 0)
 	ids, ages, vals, groups := colsOf(a)
-	ws := ls.dial(t)
-	fit := ws.call(1, "VEER.FIT", "stream", ids, ages, vals, groups)
+	ws := ls.Dial()
+	fit := ws.Call(1, "VEER.FIT", "stream", ids, ages, vals, groups)
 	if fit.Error == nil {
 		t.Fatalf("VEER.FIT over the websocket without the token answered %s", fit.Value)
 	}
-	ws.send(map[string]any{"id": 2, "fn": "VEER.FIT", "args": []any{"stream", ids, ages, vals, groups}, "token": ls.s.Token()})
-	if a := ws.next(time.Minute); string(a.ID) != "2" || string(a.Value) != `"stream@v1"` {
+	ws.Send(map[string]any{"id": 2, "fn": "VEER.FIT", "args": []any{"stream", ids, ages, vals, groups}, "token": ls.s.Token()})
+	if a := ws.Next(time.Minute); string(a.ID) != "2" || string(a.Value) != `"stream@v1"` {
 		t.Fatalf("fit with the token answered %+v", a)
 	}
-	ws.send(map[string]any{"id": 3, "fn": "VEER.REFMEAN", "args": []any{"stream", 40, "tower"}, "subscribe": true})
-	ws.send(map[string]any{"id": 4, "fn": "VEER.REFMEAN", "args": []any{"stream@v1", 40, "tower"}, "subscribe": true})
-	first := map[string]answer{}
+	ws.Send(map[string]any{"id": 3, "fn": "VEER.REFMEAN", "args": []any{"stream", 40, "tower"}, "subscribe": true})
+	ws.Send(map[string]any{"id": 4, "fn": "VEER.REFMEAN", "args": []any{"stream@v1", 40, "tower"}, "subscribe": true})
+	first := map[string]servertest.Answer{}
 	for len(first) < 2 {
-		a := ws.next(10 * time.Second)
+		a := ws.Next(10 * time.Second)
 		first[string(a.ID)] = a
 	}
-	before := first["3"].value(t).(float64)
-	if first["4"].value(t).(float64) != before {
+	before := first["3"].Decode(t).(float64)
+	if first["4"].Decode(t).(float64) != before {
 		t.Fatalf("bare name and handle differ before the refit: %+v", first)
 	}
 	// Refit with readings 10 mmHg higher, over HTTP.
 	for i := range vals {
 		vals[i] += 10
 	}
-	if h := ls.callHTTP(t, "VEER.FIT", "stream", ids, ages, vals, groups).value(t); h != "stream@v2" {
+	if h := ls.Call("VEER.FIT", "stream", ids, ages, vals, groups).Decode(t); h != "stream@v2" {
 		t.Fatalf("refit gave %v", h)
 	}
-	up := ws.next(time.Minute)
+	up := ws.Next(time.Minute)
 	if string(up.ID) != "3" || !up.Update {
 		t.Fatalf("after the refit the websocket sent %+v; want an update of id 3", up)
 	}
-	after := up.value(t).(float64)
-	direct := ls.callHTTP(t, "VEER.REFMEAN", "stream@v2", 40, "tower").value(t).(float64)
+	after := up.Decode(t).(float64)
+	direct := ls.Call("VEER.REFMEAN", "stream@v2", 40, "tower").Decode(t).(float64)
 	if after != direct || math.Abs(after-before-10) > 1 {
 		t.Errorf("updated mean %v; stream@v2 gives %v, before %v (+10 expected)", after, direct, before)
 	}
 	// The pinned call is not answered again: the next frame answers a new call.
-	if a := ws.call(5, "VEER.ZSCORE", "stream@v1", 40, before, "tower"); math.Abs(a.value(t).(float64)) > 1e-9 {
-		t.Errorf("z of the v1 mean against v1 = %v", a.value(t))
+	if a := ws.Call(5, "VEER.ZSCORE", "stream@v1", 40, before, "tower"); math.Abs(a.Decode(t).(float64)) > 1e-9 {
+		t.Errorf("z of the v1 mean against v1 = %v", a.Decode(t))
 	}
 }
 
@@ -570,13 +417,13 @@ func TestServeRestart(t *testing.T) {
 	ls := startLive(t, dir)
 	rows := synthExams(41, 100, 0)
 	ids, ages, vals, groups := colsOf(rows)
-	h := ls.callHTTP(t, "VEER.FIT", "keep", ids, ages, vals, groups).value(t)
+	h := ls.Call("VEER.FIT", "keep", ids, ages, vals, groups).Decode(t)
 	if h != "keep@v1" {
 		t.Fatalf("fit = %v", h)
 	}
-	ls.callHTTP(t, "VEER.SAVERULES", "keep-rules", "high = chart > limit").value(t)
-	mean := ls.callHTTP(t, "VEER.REFMEAN", "keep@v1", 45, "workshop").value(t)
-	rule := ls.callHTTP(t, "VEER.RULE", "@keep-rules/high", "keep", ids, ages, vals, groups, "limit=3").value(t)
+	ls.Call("VEER.SAVERULES", "keep-rules", "high = chart > limit").Decode(t)
+	mean := ls.Call("VEER.REFMEAN", "keep@v1", 45, "workshop").Decode(t)
+	rule := ls.Call("VEER.RULE", "@keep-rules/high", "keep", ids, ages, vals, groups, "limit=3").Decode(t)
 	tok := ls.s.Token()
 	ls.stop(t)
 
@@ -586,18 +433,18 @@ func TestServeRestart(t *testing.T) {
 		t.Errorf("the token changed across a restart")
 	}
 	for _, ref := range []string{"keep@v1", "keep"} {
-		if got := ls2.callHTTP(t, "VEER.REFMEAN", ref, 45, "workshop").value(t); got != mean {
+		if got := ls2.Call("VEER.REFMEAN", ref, 45, "workshop").Decode(t); got != mean {
 			t.Errorf("after restart REFMEAN(%s) = %v; before %v", ref, got, mean)
 		}
 	}
-	if got := ls2.callHTTP(t, "VEER.RULE", "@keep-rules/high", "keep", ids, ages, vals, groups, "limit=3").value(t); !reflect.DeepEqual(got, rule) {
+	if got := ls2.Call("VEER.RULE", "@keep-rules/high", "keep", ids, ages, vals, groups, "limit=3").Decode(t); !reflect.DeepEqual(got, rule) {
 		t.Errorf("the stored rule answers differently after the restart")
 	}
 	// Fitting the same data again keeps the handle; the built-in models are back.
-	if h := ls2.callHTTP(t, "VEER.FIT", "keep", ids, ages, vals, groups).value(t); h != "keep@v1" {
+	if h := ls2.Call("VEER.FIT", "keep", ids, ages, vals, groups).Decode(t); h != "keep@v1" {
 		t.Errorf("refit of the same data after restart = %v; want keep@v1", h)
 	}
-	if a := ls2.callHTTP(t, "VEER.REFMEAN", "demo-sbp", 40, "tower"); a.Error != nil {
+	if a := ls2.Call("VEER.REFMEAN", "demo-sbp", 40, "tower"); a.Error != nil {
 		t.Errorf("built-in model after restart: %v", a.Error)
 	}
 }
@@ -609,12 +456,12 @@ func TestRuleSameEverywhere(t *testing.T) {
 	f := fixture(t)
 	ref := synthExams(1, 160, 0) // the rows of f.refCSV
 	ids, ages, vals, groups := colsOf(ref)
-	if h := ls.callHTTP(t, "VEER.FIT", "sbp", ids, ages, vals, groups).value(t); h != "sbp@v1" {
+	if h := ls.Call("VEER.FIT", "sbp", ids, ages, vals, groups).Decode(t); h != "sbp@v1" {
 		t.Fatalf("fit = %v", h)
 	}
 	// The server's model is the file veer fit wrote (same content hash;
 	// the name is part of the content).
-	info := ls.callHTTP(t, "VEER.INFO", "sbp").value(t).([]any)
+	info := ls.Call("VEER.INFO", "sbp").Decode(t).([]any)
 	hash := ""
 	for _, r := range info {
 		if row := r.([]any); row[0] == "content hash" {
@@ -647,15 +494,15 @@ func TestRuleSameEverywhere(t *testing.T) {
 		t.Fatal(err)
 	}
 	wids, wages, wvals, wgroups := colsOf(f.work)
-	ws := ls.dial(t)
+	ws := ls.Dial()
 	for k, n := range names {
 		col, err := tab.Column(n)
 		if err != nil {
 			t.Fatal(err)
 		}
 		cliVals := tab.Strings(col)
-		httpVals := ls.callHTTP(t, "VEER.RULE", rulesText[n], "sbp", wids, wages, wvals, wgroups, "target=20").value(t).([]any)
-		wsVals := ws.call(k+1, "VEER.RULE", rulesText[n], "sbp", wids, wages, wvals, wgroups, "target=20").value(t).([]any)
+		httpVals := ls.Call("VEER.RULE", rulesText[n], "sbp", wids, wages, wvals, wgroups, "target=20").Decode(t).([]any)
+		wsVals := ws.Call(k+1, "VEER.RULE", rulesText[n], "sbp", wids, wages, wvals, wgroups, "target=20").Decode(t).([]any)
 		if len(httpVals) != len(cliVals) || len(wsVals) != len(cliVals) {
 			t.Fatalf("rule %s: %d rows by CLI, %d by HTTP, %d by websocket", n, len(cliVals), len(httpVals), len(wsVals))
 		}
@@ -743,7 +590,7 @@ func benchSheet(b *testing.B, n int) (ids []string, ages, vals []float64, groups
 // p50 ≤ 0.3 ms, p99 ≤ 2 ms.
 func BenchmarkScoreWebsocket(b *testing.B) {
 	ls := shared(b)
-	ws := ls.dial(b)
+	ws := ls.Dial()
 	lat := make([]time.Duration, 0, b.N)
 	msg := make([]byte, 0, 128)
 	b.ResetTimer()
@@ -751,10 +598,10 @@ func BenchmarkScoreWebsocket(b *testing.B) {
 		msg = msg[:0]
 		msg = fmt.Appendf(msg, `{"id":%d,"fn":"VEER.ZSCORE","args":["demo-sbp",45,%s,"tower"]}`, i, strconv.FormatFloat(120+float64(i)*1e-6, 'g', -1, 64))
 		start := time.Now()
-		if err := ws.c.WriteMessage(websocket.TextMessage, msg); err != nil {
+		if err := ws.WriteMessage(websocket.TextMessage, msg); err != nil {
 			b.Fatal(err)
 		}
-		_, ans, err := ws.c.ReadMessage()
+		_, ans, err := ws.ReadMessage()
 		if err != nil {
 			b.Fatal(err)
 		}
@@ -773,7 +620,7 @@ func BenchmarkScoreWebsocket(b *testing.B) {
 // websocket frame, answered in one frame. Target: ≤ 50 ms.
 func BenchmarkScoreBatch10k(b *testing.B) {
 	ls := shared(b)
-	ws := ls.dial(b)
+	ws := ls.Dial()
 	const n = 10_000
 	build := func(iter int) []byte {
 		msg := make([]byte, 0, n*80)
@@ -795,10 +642,10 @@ func BenchmarkScoreBatch10k(b *testing.B) {
 		b.StopTimer()
 		msg := build(i)
 		b.StartTimer()
-		if err := ws.c.WriteMessage(websocket.TextMessage, msg); err != nil {
+		if err := ws.WriteMessage(websocket.TextMessage, msg); err != nil {
 			b.Fatal(err)
 		}
-		_, ans, err := ws.c.ReadMessage()
+		_, ans, err := ws.ReadMessage()
 		if err != nil {
 			b.Fatal(err)
 		}
@@ -829,7 +676,7 @@ func postJSON(b *testing.B, ls *liveServer, req any) any {
 		Value any         `json:"value"`
 		Error *cell.Error `json:"error"`
 	}
-	if err := json.Unmarshal(ls.post(b, body), &a); err != nil {
+	if err := json.Unmarshal(ls.Post(body), &a); err != nil {
 		b.Fatal(err)
 	}
 	if a.Error != nil {
