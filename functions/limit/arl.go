@@ -4,6 +4,7 @@ import (
 	"math"
 
 	"gonum.org/v1/gonum/integrate/quad"
+	lapackgonum "gonum.org/v1/gonum/lapack/gonum"
 
 	"veer/functions/chart"
 )
@@ -49,6 +50,7 @@ type solver struct {
 	y    []float64
 	a    []float64 // (m x m) system matrix, row major
 	b    []float64
+	ipiv []int // pivots of the LU factorisation
 	m    int
 }
 
@@ -58,6 +60,7 @@ func newSolver(n int) *solver {
 	s.m = n
 	s.a = make([]float64, (n+1)*(n+1))
 	s.b = make([]float64, n+1)
+	s.ipiv = make([]int, n+1)
 	return s
 }
 
@@ -107,7 +110,7 @@ func (s *solver) arl(k kernel, start float64) float64 {
 	for i := range n {
 		row(off+i, s.y[i])
 	}
-	solveInPlace(a, b, m)
+	solveLU(a, b, m, s.ipiv)
 	// Nyström interpolation at the start value (first step possibly with
 	// its own kernel).
 	a1, b1 := k.alpha, k.beta
@@ -129,44 +132,17 @@ func (s *solver) arl(k kernel, start float64) float64 {
 	return l
 }
 
-// solveInPlace solves the dense m x m system a x = b by Gaussian elimination
-// with partial pivoting, leaving x in b. Hand-written instead of gonum's LU so
-// that the root search reuses one workspace without allocating (the systems
-// are at most a few hundred unknowns and solved tens of times per limit).
-func solveInPlace(a, b []float64, m int) {
-	for c := range m {
-		p := c
-		for r := c + 1; r < m; r++ {
-			if math.Abs(a[r*m+c]) > math.Abs(a[p*m+c]) {
-				p = r
-			}
+// solveLU solves the dense m x m system a x = b (a row major) by LU
+// factorisation with partial pivoting (LAPACK dgesv, in gonum's pure-Go
+// implementation), leaving x in b. It works in the caller's slices (ipiv,
+// of length at least m, is the pivot workspace) and allocates nothing, so a
+// root search reuses one workspace. A singular system (which I - K of a
+// chart's integral equation never is in exact arithmetic) leaves NaN in b.
+func solveLU(a, b []float64, m int, ipiv []int) {
+	if !(lapackgonum.Implementation{}).Dgesv(m, 1, a[:m*m], m, ipiv[:m], b[:m], 1) {
+		for i := range b[:m] {
+			b[i] = math.NaN()
 		}
-		if p != c {
-			for j := range m {
-				a[c*m+j], a[p*m+j] = a[p*m+j], a[c*m+j]
-			}
-			b[c], b[p] = b[p], b[c]
-		}
-		piv := a[c*m+c]
-		rc := a[c*m : (c+1)*m]
-		for r := c + 1; r < m; r++ {
-			f := a[r*m+c] / piv
-			if f == 0 {
-				continue
-			}
-			rr := a[r*m : (r+1)*m]
-			for j := c + 1; j < m; j++ {
-				rr[j] -= f * rc[j]
-			}
-			b[r] -= f * b[c]
-		}
-	}
-	for c := m - 1; c >= 0; c-- {
-		v := b[c]
-		for j := c + 1; j < m; j++ {
-			v -= a[c*m+j] * b[j]
-		}
-		b[c] = v / a[c*m+c]
 	}
 }
 

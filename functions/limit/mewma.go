@@ -143,6 +143,7 @@ type mewma1 struct {
 	x, w    []float64
 	s, y    []float64
 	a, b    []float64
+	ipiv    []int // pivots of the LU factorisation
 	k0      []float64
 	lastH   float64
 	lastLam float64
@@ -150,7 +151,7 @@ type mewma1 struct {
 
 func newMEWMA1(n int) *mewma1 {
 	m := &mewma1{n: n, x: make([]float64, n), w: make([]float64, n), s: make([]float64, n), y: make([]float64, n),
-		a: make([]float64, n*n), b: make([]float64, n), k0: make([]float64, n)}
+		a: make([]float64, n*n), b: make([]float64, n), ipiv: make([]int, n), k0: make([]float64, n)}
 	quad.Legendre{}.FixedLocations(m.x, m.w, -1, 1)
 	return m
 }
@@ -175,7 +176,7 @@ func (m *mewma1) arl(lambda, h float64, p int) float64 {
 		row[i] += 1
 		m.b[i] = 1
 	}
-	solveInPlace(m.a, m.b, n)
+	solveLU(m.a, m.b, n, m.ipiv)
 	l := 1.0
 	for j := range n {
 		l += r * m.w[j] * m.s[j] * ncChi2PDF(m.y[j], k, 0) * m.b[j]
@@ -249,7 +250,7 @@ func mewmaARL2(lambda, h float64, p int, delta float64, na, nb int) float64 {
 	}
 	x, ok := gmres(a, rhs, m, 1e-12)
 	if !ok {
-		solveInPlace(a, rhs, m)
+		solveLU(a, rhs, m, make([]int, m))
 		x = rhs
 	}
 	f0 := make([]float64, nb)
