@@ -5,7 +5,6 @@ import (
 	"strconv"
 	"unicode/utf16"
 	"unicode/utf8"
-	"unsafe"
 
 	"veer/functions/cell"
 )
@@ -612,123 +611,56 @@ func (d *decoder) skip(depth int) {
 	}
 }
 
-// pow10 holds the powers of ten that float64 represents exactly.
-var pow10 = [...]float64{1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10,
-	1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22}
-
 // number parses a JSON number; numbers a float64 cannot hold are rejected.
-//
-// Numbers with at most 15 significant digits and a decimal exponent within
-// ±22 are computed as mantissa × or ÷ 10^k: both operands are exact in
-// float64 and one correctly rounded operation gives the correctly rounded
-// result (Clinger 1990, "How to read floating point numbers accurately",
-// PLDI; the same fast path strconv uses). Everything else goes to
-// strconv.ParseFloat.
+// The grammar (RFC 8259) is checked here, because strconv.ParseFloat also
+// accepts forms JSON does not ("+1", ".5", "1_000", "0x1p3", "Inf"); the
+// value is strconv.ParseFloat's (correctly rounded).
 func (d *decoder) number() float64 {
 	start := d.pos
 	p := d.pos
 	data := d.data
-	neg := false
-	if p < len(data) && data[p] == '-' {
-		neg = true
-		p++
+	digits := func() {
+		for p < len(data) && '0' <= data[p] && data[p] <= '9' {
+			p++
+		}
 	}
-	if p >= len(data) {
+	invalid := func() {
 		d.pos = p
 		d.fail("invalid number")
 	}
-	var mant uint64
-	digits := 0 // significant digits in mant
-	exp := 0    // decimal exponent to apply to mant
-	fast := true
-	addDigit := func(c byte) {
-		if digits == 0 && c == '0' {
-			return // leading zeros are not significant
-		}
-		if digits < 15 {
-			mant = mant*10 + uint64(c-'0')
-			digits++
-		} else {
-			fast = false
-		}
+	if p < len(data) && data[p] == '-' {
+		p++
 	}
 	switch {
+	case p >= len(data):
+		invalid()
 	case data[p] == '0':
 		p++
 	case '1' <= data[p] && data[p] <= '9':
-		for p < len(data) && '0' <= data[p] && data[p] <= '9' {
-			addDigit(data[p])
-			if !fast {
-				exp++
-			}
-			p++
-		}
+		digits()
 	default:
-		d.pos = p
-		d.fail("invalid number")
+		invalid()
 	}
 	if p < len(data) && data[p] == '.' {
 		p++
 		if p >= len(data) || data[p] < '0' || data[p] > '9' {
-			d.pos = p
-			d.fail("invalid number")
+			invalid()
 		}
-		for p < len(data) && '0' <= data[p] && data[p] <= '9' {
-			if fast {
-				addDigit(data[p])
-				if fast {
-					exp--
-				}
-			}
-			p++
-		}
+		digits()
 	}
 	if p < len(data) && (data[p] == 'e' || data[p] == 'E') {
 		p++
-		eneg := false
 		if p < len(data) && (data[p] == '+' || data[p] == '-') {
-			eneg = data[p] == '-'
 			p++
 		}
 		if p >= len(data) || data[p] < '0' || data[p] > '9' {
-			d.pos = p
-			d.fail("invalid number")
+			invalid()
 		}
-		e := 0
-		for p < len(data) && '0' <= data[p] && data[p] <= '9' {
-			if e < 10000 {
-				e = e*10 + int(data[p]-'0')
-			}
-			p++
-		}
-		if eneg {
-			e = -e
-		}
-		exp += e
+		digits()
 	}
 	d.pos = p
-	if fast {
-		if mant == 0 {
-			if neg {
-				return math.Copysign(0, -1)
-			}
-			return 0
-		}
-		if -22 <= exp && exp <= 22 {
-			f := float64(mant)
-			if exp >= 0 {
-				f *= pow10[exp]
-			} else {
-				f /= pow10[-exp]
-			}
-			if neg {
-				f = -f
-			}
-			return f
-		}
-	}
 	b := data[start:p]
-	f, err := strconv.ParseFloat(unsafe.String(&b[0], len(b)), 64)
+	f, err := strconv.ParseFloat(string(b), 64) // the conversion does not allocate: the string does not escape
 	if err != nil || math.IsInf(f, 0) {
 		d.pos = start
 		d.fail("the number " + string(b) + " is out of range")

@@ -313,3 +313,26 @@ func TestNumberParsing(t *testing.T) {
 		}
 	}
 }
+
+// TestNumberGrammar: forms strconv.ParseFloat accepts but JSON does not
+// (RFC 8259) are refused, and so are numbers a float64 cannot hold.
+func TestNumberGrammar(t *testing.T) {
+	for _, c := range []struct {
+		num, want string
+	}{
+		{"+1", "expected a value"}, {".5", "expected a value"}, {"Inf", "expected a value"}, {"NaN", "expected a value"},
+		{"1_000", "expected ','"}, {"0x1p3", "expected ','"}, {"01", "expected ','"}, {"1.", "invalid number"}, {"-", "invalid number"},
+		{"1e", "invalid number"}, {"1e+", "invalid number"}, {"-.5", "invalid number"},
+		{"1e309", "out of range"}, {"-1e400", "out of range"},
+	} {
+		_, _, err := decodeRequests([]byte(`{"fn":"VEER.T.ADD","args":[`+c.num+`]}`), decodeLimits{maxBatch: 10, maxCells: 100})
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s: err %v; want a syntax error (%s)", c.num, err, c.want)
+		}
+	}
+	for _, ok := range []string{"-0", "0", "1e-400", "2.5E+3", "-0.0e-0"} {
+		if _, _, err := decodeRequests([]byte(`{"fn":"VEER.T.ADD","args":[`+ok+`]}`), decodeLimits{maxBatch: 10, maxCells: 100}); err != nil {
+			t.Errorf("%s refused: %v", ok, err)
+		}
+	}
+}
