@@ -233,6 +233,8 @@ func problemAt(src string, loc common.Location, msg string) Problem {
 	return p
 }
 
+var oneLine = strings.NewReplacer("\r\n", " ", "\n", " ", "\r", " ")
+
 // collector gathers distinct problems, up to maxProblems.
 type collector struct {
 	ce   *CompileError
@@ -244,8 +246,10 @@ func newCollector(src string) *collector {
 }
 
 // add keeps p unless an identical problem is kept; it reports whether
-// there is room for more.
+// there is room for more. A message is one line (a cell shows it), even
+// one cel-go wrote with a piece of a multi-line rule in it.
 func (c *collector) add(p Problem) bool {
+	p.Message = oneLine.Replace(p.Message)
 	key := fmt.Sprint(p.Line, p.Column, p.Message)
 	if !c.seen[key] {
 		c.seen[key] = true

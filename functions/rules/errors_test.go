@@ -4,6 +4,7 @@ import (
 	"errors"
 	"strings"
 	"testing"
+	"unicode/utf8"
 )
 
 func TestCompileErrorMessages(t *testing.T) {
@@ -44,6 +45,7 @@ func TestCompileErrorMessages(t *testing.T) {
 		{"list result", "zs", Any, 0, 0, "a rule must give true/false, a number or text, but this one gives a list of numbers"},
 		{"empty", "   ", Bool, 0, 0, "the rule is empty"},
 		{"too long", "z > 1.0" + strings.Repeat(" ", 4000), Bool, 0, 0, "the rule is 4,007 characters long; the longest allowed is 4,000"},
+		{"open quote across lines", "group == \"F\n  && z > 1.0", Bool, 1, 10, "text in quotes is not closed"},
 		{"second line", "z > 2.0\n  && zs.exists(q, q > qq)", Bool, 2, 23, `unknown name "qq"`},
 		{"count needs a name", "zs.count(1, true) > 1", Bool, 1, 10, "the first argument of count must be a simple name"},
 		{"helper after a value", "zs.mean() > 1.0", Bool, 1, 4, "mean is not written after a value; use it as mean(list)"},
@@ -142,4 +144,47 @@ func TestSeveralProblems(t *testing.T) {
 	if !strings.Contains(ce.Error(), `"qq"`) {
 		t.Errorf("Error() should list every problem: %s", ce.Error())
 	}
+}
+
+// FuzzCompile: any text either compiles or gives a *CompileError whose
+// problems are placed inside the text, with a caret excerpt, in words of
+// our own: cel-go's "undeclared reference" never reaches a rule writer,
+// since unknown names are found in the expression itself.
+func FuzzCompile(f *testing.F) {
+	for _, s := range []string{"zz > 2.0", "exists(zs, v, v > 2.0)", "zs.mean() > 1.0", `contains(group, "F")`,
+		"z = 2", "(z > 2", "a.b{c: 1} == 1", "zs.all(v, v > 1.0) && v > 1.0", "z > 2.0\n  && zs.exists(q, q > qq)",
+		"sqrt (z) > 1.0", "[v].exists(v, v > 1.0)", "é > 1.0", "\tzz"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, src string) {
+		_, err := Compile(src, Any)
+		if err == nil {
+			return
+		}
+		var ce *CompileError
+		if !errors.As(err, &ce) {
+			t.Fatalf("%q: %T %v", src, err, err)
+		}
+		if len(ce.Problems) == 0 || len(ce.Problems) > maxProblems {
+			t.Fatalf("%q: %d problems", src, len(ce.Problems))
+		}
+		lines := strings.Split(src, "\n")
+		for _, p := range ce.Problems {
+			if p.Message == "" || strings.Contains(p.Message, "undeclared reference") {
+				t.Errorf("%q: message %q", src, p.Message)
+			}
+			if p.Line == 0 {
+				continue
+			}
+			if p.Line > len(lines) || p.Column < 1 || p.Column > utf8.RuneCountInString(lines[p.Line-1])+1 {
+				t.Errorf("%q: position %d:%d outside the text", src, p.Line, p.Column)
+			}
+			if !strings.Contains(p.Excerpt, "^") {
+				t.Errorf("%q: excerpt %q", src, p.Excerpt)
+			}
+		}
+		if s := ce.Short(); s == "" || strings.Contains(s, "\n") {
+			t.Errorf("%q: Short() = %q", src, s)
+		}
+	})
 }

@@ -59,20 +59,21 @@ func parseMessage(msg string) string {
 	return msg
 }
 
-// parseMessages are the parser's messages: syntax errors and limits.
+// parseMessages are the parser's messages: syntax errors and limits. The
+// text they quote from the rule may span lines ((?s)).
 var parseMessages = []translation{
-	{"token recognition", regexp.MustCompile(`^Syntax error: token recognition error at: '(.*)'$`),
+	{"token recognition", regexp.MustCompile(`(?s)^Syntax error: token recognition error at: '(.*)'$`),
 		func(m []string) string { return unreadableToken(m[1]) }},
-	{"unexpected input", regexp.MustCompile(`^Syntax error: (?:mismatched|extraneous) input '(.*?)' expecting`),
+	{"unexpected input", regexp.MustCompile(`(?s)^Syntax error: (?:mismatched|extraneous) input '(.*?)' expecting`),
 		func(m []string) string { return unexpectedToken(m[1]) }},
-	{"missing token", regexp.MustCompile(`^Syntax error: missing '(.*?)' at '(.*?)'$`),
+	{"missing token", regexp.MustCompile(`(?s)^Syntax error: missing '(.*?)' at '(.*?)'$`),
 		func(m []string) string {
 			if m[1] == ")" || m[1] == "]" || m[1] == "}" {
 				return fmt.Sprintf("a closing %q is missing", m[1])
 			}
 			return fmt.Sprintf("%q is missing here", m[1])
 		}},
-	{"no viable alternative", regexp.MustCompile(`^Syntax error: no viable alternative at input '(.*)'$`),
+	{"no viable alternative", regexp.MustCompile(`(?s)^Syntax error: no viable alternative at input '(.*)'$`),
 		func(m []string) string { return "this part cannot be read: " + strconv.Quote(lastRunes(m[1], 30)) }},
 	{"recursion limit", regexp.MustCompile(`^expression recursion limit exceeded`),
 		func([]string) string { return "the rule is too long or too deeply nested" }},
