@@ -47,13 +47,21 @@ func (c *Cache[K, V]) pushFront(e *entry[K, V]) {
 func (c *Cache[K, V]) Get(key K) (V, bool) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
-	if e, ok := c.m[key]; ok {
-		c.unlink(e)
-		c.pushFront(e)
+	if e, ok := c.touch(key); ok {
 		return e.val, true
 	}
 	var zero V
 	return zero, false
+}
+
+// touch returns the entry for key made the most recent; c.mu is held.
+func (c *Cache[K, V]) touch(key K) (*entry[K, V], bool) {
+	e, ok := c.m[key]
+	if ok {
+		c.unlink(e)
+		c.pushFront(e)
+	}
+	return e, ok
 }
 
 // GetOrAdd returns the value kept for key and true; or, when there is
@@ -65,9 +73,7 @@ func (c *Cache[K, V]) Get(key K) (V, bool) {
 func (c *Cache[K, V]) GetOrAdd(key K, add func() (V, int64)) (V, bool) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
-	if e, ok := c.m[key]; ok {
-		c.unlink(e)
-		c.pushFront(e)
+	if e, ok := c.touch(key); ok {
 		return e.val, true
 	}
 	val, size := add()
