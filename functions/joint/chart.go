@@ -3,6 +3,7 @@ package joint
 import (
 	"fmt"
 	"math"
+	"slices"
 
 	"veer/functions/chart"
 )
@@ -290,7 +291,7 @@ func (c *Chart) project() {
 		c.solveActive(act)
 		worst, wm := 0.0, -1
 		for m, s := range c.signs {
-			if s != 0 && !contains(act, m) && s*c.mu[m] < worst {
+			if s != 0 && !slices.Contains(act, m) && s*c.mu[m] < worst {
 				worst, wm = s*c.mu[m], m
 			}
 		}
@@ -373,7 +374,7 @@ func (c *Chart) solveActive(act []int) {
 	}
 	cholSolve(vaa, k, y)
 	for f := range p {
-		if contains(act, f) {
+		if slices.Contains(act, f) {
 			c.mu[f] = 0
 			continue
 		}
@@ -392,15 +393,6 @@ func (c *Chart) metric() []float64 {
 		return c.r
 	}
 	return c.v
-}
-
-func contains(s []int, x int) bool {
-	for _, v := range s {
-		if v == x {
-			return true
-		}
-	}
-	return false
 }
 
 func popcount(x int) int {

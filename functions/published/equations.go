@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"slices"
 	"strconv"
 	"strings"
 )
@@ -204,7 +205,7 @@ func build(d *docFile) (*Reference, error) {
 			where.Reason = "age is always a variable; do not declare it as a covariate"
 			fail(where)
 			continue
-		case contains(vars, name):
+		case slices.Contains(vars, name):
 			where.Err, where.Reason = ErrDuplicate, fmt.Sprintf("the covariate %q is declared twice", name)
 			fail(where)
 			continue
@@ -266,7 +267,7 @@ func build(d *docFile) (*Reference, error) {
 		// The parameters.
 		preds := dg.predictors()
 		for _, k := range []string{"L", "M", "S", "mean", "sd"} {
-			if preds[k] != nil && !contains(params, k) {
+			if preds[k] != nil && !slices.Contains(params, k) {
 				fail(&InputError{Group: name, Part: k, Err: ErrFormat,
 					Reason: fmt.Sprintf("a reference of form %q gives %s, not %s", form, strings.Join(params, ", "), k)})
 			}
@@ -381,7 +382,7 @@ func lookupTable(dg *docGroup, g *group, params []string, lookCol map[string]int
 				return
 			}
 			ageCol = ci
-		case contains(params, c):
+		case slices.Contains(params, c):
 			if _, dup := lookCol[c]; dup {
 				fail(&InputError{Group: name, Part: "lookup", Column: "columns", Err: ErrDuplicate, Reason: fmt.Sprintf("the column %s is named twice", c)})
 				return
@@ -568,15 +569,6 @@ func validName(s string) bool {
 		}
 	}
 	return s != "ln"
-}
-
-func contains(s []string, v string) bool {
-	for _, x := range s {
-		if x == v {
-			return true
-		}
-	}
-	return false
 }
 
 // Encode writes the reference as an equations document (an LMS table
