@@ -119,6 +119,22 @@ func Fit(ctx context.Context, rows []refcurve.Row, opt FitOptions) (*Model, erro
 // sample keeps up to n sequences (those with the smallest hash of the worker
 // id), in worker order, so the choice does not depend on row order.
 func sample(res []refcurve.WorkerSeries, n int) []Sequence {
+	ids := make([]string, len(res))
+	for i, r := range res {
+		ids[i] = r.Worker
+	}
+	keep := sampleIndex(ids, n)
+	out := make([]Sequence, len(keep))
+	for j, i := range keep {
+		r := res[i]
+		out[j] = Sequence{Group: r.Group, Time: round(r.Time, 1e6), Z: round(r.Z, 1e9)}
+	}
+	return out
+}
+
+// sampleIndex returns the positions of up to n workers (those with the
+// smallest hash of their id; 0 means DefaultSampleWorkers), in order.
+func sampleIndex(ids []string, n int) []int {
 	if n <= 0 {
 		n = DefaultSampleWorkers
 	}
@@ -126,10 +142,10 @@ func sample(res []refcurve.WorkerSeries, n int) []Sequence {
 		key uint64
 		i   int
 	}
-	ks := make([]keyed, len(res))
-	for i, r := range res {
+	ks := make([]keyed, len(ids))
+	for i, id := range ids {
 		h := fnv.New64a()
-		h.Write([]byte(r.Worker))
+		h.Write([]byte(id))
 		ks[i] = keyed{h.Sum64(), i}
 	}
 	if len(ks) > n {
@@ -142,10 +158,9 @@ func sample(res []refcurve.WorkerSeries, n int) []Sequence {
 		ks = ks[:n]
 		sort.Slice(ks, func(a, b int) bool { return ks[a].i < ks[b].i })
 	}
-	out := make([]Sequence, len(ks))
+	out := make([]int, len(ks))
 	for j, k := range ks {
-		r := res[k.i]
-		out[j] = Sequence{Group: r.Group, Time: round(r.Time, 1e6), Z: round(r.Z, 1e9)}
+		out[j] = k.i
 	}
 	return out
 }
@@ -219,6 +234,22 @@ func (m *Model) Encode() ([]byte, error) {
 // Decode reads a document written by Encode, checking its format, version
 // and hash: a damaged or edited file is refused.
 func Decode(data []byte) (*Model, error) {
+	if IsJoint(data) {
+		var probe struct {
+			Name    string            `json:"name"`
+			Markers []json.RawMessage `json:"markers"`
+		}
+		_ = json.Unmarshal(data, &probe)
+		e := &SeveralMarkersError{Name: probe.Name}
+		for _, b := range probe.Markers {
+			var n struct {
+				Name string `json:"name"`
+			}
+			_ = json.Unmarshal(b, &n)
+			e.Markers = append(e.Markers, n.Name)
+		}
+		return nil, e
+	}
 	var d document
 	if err := json.Unmarshal(data, &d); err != nil {
 		return nil, fmt.Errorf("this is not a veer model file (%v)", err)
