@@ -40,7 +40,7 @@ type examColumns struct {
 func (c *examColumns) register(fsAdd func(p *string, name, def, usage string)) {
 	fsAdd(&c.id, "id", "", "column holding the worker id (required)")
 	fsAdd(&c.time, "time", "", "column holding the time of the exam: the worker's age in years (required)")
-	fsAdd(&c.value, "value", "", "column holding the marker's value (required)")
+	fsAdd(&c.value, "value", "", "column holding the marker's value (required); several markers screened together: their columns, comma-separated, e.g. sbp,chol,fev1")
 	fsAdd(&c.group, "group", "", "column holding the reference group, e.g. sex or job group (optional)")
 }
 
@@ -126,7 +126,7 @@ func runFit(e *env, args []string) error {
 	in := fs.String("in", "", "CSV file of healthy reference workers' exams, one row per exam (required)")
 	name := fs.String("name", "", "name of the model, e.g. sbp (required)")
 	out := fs.String("out", "", "file to write the model to (required)")
-	tr := fs.String("transform", string(transform.None), "value transform: none, log or boxcox (lambda by maximum likelihood)")
+	tr := fs.String("transform", string(transform.None), "value transform: none, log or boxcox (lambda by maximum likelihood); with several markers one for all or one per marker, e.g. none,log,none")
 	bw := fs.Float64("bandwidth", 0, "bandwidth of the mean curve in years (0: chosen by leave-one-worker-out cross-validation)")
 	minWorkers := fs.Int("min-workers", 0, "fewest workers a group needs (0: the default)")
 	if err := parseFlags(fs, args); err != nil {
@@ -135,13 +135,24 @@ func runFit(e *env, args []string) error {
 	if err := required("in", *in, "name", *name, "out", *out); err != nil {
 		return err
 	}
+	if *bw < 0 {
+		return usagef("--bandwidth must be positive (or 0 to choose it)")
+	}
+	markers, err := valueColumns(cols.value)
+	if err != nil {
+		return err
+	}
+	if len(markers) > 1 {
+		t, err := loadTable(*in)
+		if err != nil {
+			return err
+		}
+		return fitJoint(e, t, *in, *name, *out, cols, markers, *tr, *bw, *minWorkers)
+	}
 	switch transform.Name(*tr) {
 	case transform.None, transform.Log, transform.BoxCox:
 	default:
 		return usagef("--transform must be none, log or boxcox, not %q", *tr)
-	}
-	if *bw < 0 {
-		return usagef("--bandwidth must be positive (or 0 to choose it)")
 	}
 	t, err := loadTable(*in)
 	if err != nil {

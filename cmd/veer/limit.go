@@ -4,8 +4,10 @@ import (
 	"flag"
 	"fmt"
 	"math"
+	"os"
 
 	"veer/functions/chart"
+	"veer/functions/joint"
 	"veer/functions/monitor"
 	"veer/functions/screening"
 	"veer/functions/serial"
@@ -20,12 +22,21 @@ type chartFlags struct {
 	restart                    bool
 	seed                       uint64
 	paths                      int
+	fs                         *flag.FlagSet
+}
+
+// given reports whether the flag was set on the command line.
+func (c *chartFlags) given(name string) bool {
+	set := false
+	c.fs.Visit(func(f *flag.Flag) { set = set || f.Name == name })
+	return set
 }
 
 func (c *chartFlags) register(fs *flag.FlagSet) {
+	c.fs = fs
 	d := chart.DefaultSpec()
-	fs.StringVar(&c.kind, "chart", string(d.Kind), "chart: cusum or ewma")
-	fs.StringVar(&c.side, "side", string(d.Side), "direction of drift to detect: up, down or both")
+	fs.StringVar(&c.kind, "chart", string(d.Kind), "chart: cusum or ewma; with several markers also mewma, mcusum or any (each marker's own CUSUM, one limit)")
+	fs.StringVar(&c.side, "side", string(d.Side), "direction of drift to detect: up, down or both; with several markers one per marker, comma-separated in the order of --value, e.g. up,up,down")
 	fs.Float64Var(&c.allowance, "allowance", d.Allowance, "CUSUM allowance k, in SDs (half the shift to detect fastest)")
 	fs.Float64Var(&c.lambda, "lambda", d.Lambda, "EWMA smoothing weight per unit of time, in (0,1]")
 	fs.Float64Var(&c.unit, "unit", d.UnitOrDefault(), "EWMA time unit in years (the weight of an exam after a gap d is 1-(1-lambda)^(d/unit))")
@@ -50,20 +61,26 @@ func (c *chartFlags) settings() (screening.Settings, error) {
 	if err := s.Chart.Validate(); err != nil {
 		return s, usageError{err.Error()}
 	}
+	return s, c.settingsCommon()
+}
+
+// settingsCommon checks the flags shared by charts of one marker and of
+// several.
+func (c *chartFlags) settingsCommon() error {
 	switch c.method {
 	case string(monitor.Normal), string(monitor.Bootstrap):
 	default:
-		return s, usagef("--method must be normal or bootstrap, not %q", c.method)
+		return usagef("--method must be normal or bootstrap, not %q", c.method)
 	}
 	switch monitor.Horizon(c.horizon) {
 	case monitor.HorizonFollowUp, monitor.HorizonLong:
 	default:
-		return s, usagef("--horizon must be followup or long, not %q", c.horizon)
+		return usagef("--horizon must be followup or long, not %q", c.horizon)
 	}
 	if c.gap < 0 || math.IsNaN(c.gap) {
-		return s, usagef("--gap must be positive")
+		return usagef("--gap must be positive")
 	}
-	return s, nil
+	return nil
 }
 
 func (c *chartFlags) limitOptions(progress func(done, total int)) screening.LimitOptions {
@@ -105,11 +122,24 @@ func runLimit(e *env, args []string) error {
 	cf.register(fs)
 	model := fs.String("model", "", "model file written by veer fit (optional with --gap and method normal)")
 	target := fs.Float64("target", 0, "average years to a false signal for a healthy worker (required)")
+	markers := fs.Int("markers", 0, "without --model: the number of markers charted together (independent N(0,1) readings of each)")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
 	if !(*target > 0) {
 		return usagef("--target must be a positive number of years, e.g. 20")
+	}
+	if jc, err := jointModelOrMarkers(*model, *markers); err != nil || jc.several {
+		if err != nil {
+			return err
+		}
+		res, err := jointLimit(e, &cf, jc.model, *markers, *target)
+		if err != nil {
+			return err
+		}
+		describeLimit(e, res, *target)
+		fmt.Fprintf(e.stdout, "%.4f\n", res.H)
+		return nil
 	}
 	s, err := cf.settings()
 	if err != nil {
@@ -144,6 +174,34 @@ func runLimit(e *env, args []string) error {
 	return nil
 }
 
+// jointChoice says whether limit or delay work on several markers: a model
+// of several markers, or --markers without a model.
+type jointChoice struct {
+	several bool
+	model   *screening.Joint
+}
+
+func jointModelOrMarkers(model string, markers int) (jointChoice, error) {
+	if markers < 0 || markers > joint.MaxMarkers {
+		return jointChoice{}, usagef("--markers must be from 1 to %d", joint.MaxMarkers)
+	}
+	if model == "" {
+		return jointChoice{several: markers > 0}, nil
+	}
+	if markers > 0 {
+		return jointChoice{}, usagef("--markers goes without --model (a model knows its markers)")
+	}
+	b, err := os.ReadFile(model)
+	if err != nil || !screening.IsJoint(b) {
+		return jointChoice{}, nil // read below as a model of one marker
+	}
+	_, j, err := loadAnyModel(model)
+	if err != nil {
+		return jointChoice{}, err
+	}
+	return jointChoice{several: true, model: j}, nil
+}
+
 func describeLimit(e *env, r monitor.LimitResult, target float64) {
 	how := "exact (i.i.d. normal values)"
 	if !r.Exact {
@@ -159,8 +217,9 @@ func runDelay(e *env, args []string) error {
 	model := fs.String("model", "", "model file written by veer fit (optional with --gap)")
 	limitH := fs.Float64("limit", 0, "control limit h (or give --target)")
 	target := fs.Float64("target", 0, "average years to a false signal, to compute the limit")
-	shift := fs.Float64("shift", 1, "sustained shift of the readings, in reference SDs (negative for downward)")
+	shifts := fs.String("shift", "1", "sustained shift of the readings, in reference SDs (negative for downward); with several markers one per marker, comma-separated, e.g. 0.5,0.5,0")
 	onset := fs.Float64("onset", 0, "years after the first exam at which the shift starts")
+	markers := fs.Int("markers", 0, "without --model: the number of markers charted together (independent N(0,1) readings of each)")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -170,6 +229,20 @@ func runDelay(e *env, args []string) error {
 	if *onset < 0 {
 		return usagef("--onset must not be negative")
 	}
+	if jc, err := jointModelOrMarkers(*model, *markers); err != nil || jc.several {
+		if err != nil {
+			return err
+		}
+		return jointDelay(e, &cf, jc.model, *markers, *limitH, *target, *shifts, *onset)
+	}
+	shiftList, err := parseList("shift", *shifts)
+	if err != nil {
+		return err
+	}
+	if len(shiftList) != 1 {
+		return usagef("--shift takes one number for a model of one marker")
+	}
+	shift := &shiftList[0]
 	s, err := cf.settings()
 	if err != nil {
 		return err

@@ -31,6 +31,20 @@ func (r *ruleList) Set(v string) error {
 
 // collectRules joins --rule flags and a --rules file into one checked set.
 func collectRules(flags ruleList, file string) (rules.RuleSet, error) {
+	rs, err := collectRulesUnchecked(flags, file)
+	if err != nil {
+		return rs, err
+	}
+	// Compile now, so a mistake in a rule is reported before any data are read.
+	if _, err := rules.NewCache(len(rs.Rules)+1, rules.DefaultLimits()).CompileSet(rs); err != nil {
+		return rs, usageError{err.Error()}
+	}
+	return rs, nil
+}
+
+// collectRulesUnchecked joins the rules and checks their names, not their
+// expressions.
+func collectRulesUnchecked(flags ruleList, file string) (rules.RuleSet, error) {
 	var rs rules.RuleSet
 	if file != "" {
 		b, err := os.ReadFile(file)
@@ -50,10 +64,6 @@ func collectRules(flags ruleList, file string) (rules.RuleSet, error) {
 		seen[r.Name] = true
 	}
 	if err := rs.Validate(); err != nil {
-		return rs, usageError{err.Error()}
-	}
-	// Compile now, so a mistake in a rule is reported before any data are read.
-	if _, err := rules.NewCache(len(rs.Rules)+1, rules.DefaultLimits()).CompileSet(rs); err != nil {
 		return rs, usageError{err.Error()}
 	}
 	return rs, nil

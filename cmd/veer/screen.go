@@ -188,6 +188,20 @@ func runScreen(e *env, args []string) error {
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
+	if jm, ok, err := jointModelFile(sf.model); err != nil || ok {
+		if err != nil {
+			return err
+		}
+		if *rep != "" {
+			return usagef("--report with a model of several markers: use veer report")
+		}
+		job, err := runJointScreen(e, &sf, jm, *out)
+		if err != nil {
+			return err
+		}
+		job.summary(e)
+		return nil
+	}
 	j, err := runScreenJob(e, &sf)
 	if err != nil {
 		return err

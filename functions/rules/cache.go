@@ -39,6 +39,7 @@ type cacheEntry struct {
 	ready chan struct{} // closed once rule/crule/err are set
 	rule  *Rule
 	crule *ColumnRule
+	jrule *JointRule
 	err   error
 }
 
