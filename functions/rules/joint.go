@@ -189,11 +189,11 @@ func compileJoint(expr string, markers []string, want ResultKind, lim Limits) (*
 
 // jointActivation binds a JointRule's names to one JointExam.
 type jointActivation struct {
-	r                 *JointRule
-	e                 *JointExam
-	times             floatList
-	signals           boolList
-	zs, values        []floatList // per marker
+	r          *JointRule
+	e          *JointExam
+	times      floatList
+	signals    boolList
+	zs, values []floatList // per marker
 }
 
 func (a *jointActivation) Parent() interpreter.Activation { return nil }
