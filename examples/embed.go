@@ -33,3 +33,11 @@ func WorkforceCSV() []byte { return mustRead("workforce.csv") }
 // years, the rate the drift grows at in SD per year and the sustained shift
 // it grows to in SD; empty when not affected).
 func TruthCSV() []byte { return mustRead("truth.csv") }
+
+// OutcomesCSV returns a copy of data/outcomes.csv: one row per workforce
+// worker, columns worker,hypertension,hypertension_age,obstruction,
+// obstruction_age: whether raised blood pressure and airflow obstruction
+// were later diagnosed (yes/no) and the age at diagnosis (empty when not
+// diagnosed). It is the labelled history veer evaluate and the demo score
+// methods on.
+func OutcomesCSV() []byte { return mustRead("outcomes.csv") }

@@ -26,6 +26,7 @@ func TestEmbeddedMatchesGenerator(t *testing.T) {
 		{"reference.csv", ReferenceCSV(), s.ReferenceCSV()},
 		{"workforce.csv", WorkforceCSV(), s.WorkforceCSV()},
 		{"truth.csv", TruthCSV(), s.TruthCSV()},
+		{"outcomes.csv", OutcomesCSV(), s.OutcomesCSV()},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

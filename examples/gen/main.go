@@ -18,12 +18,12 @@ func main() {
 	}
 }
 
-// run parses args, generates the scenario and writes the three files;
+// run parses args, generates the scenario and writes the four files;
 // progress goes to talk.
 func run(args []string, talk io.Writer) error {
 	fs := flag.NewFlagSet("gen", flag.ContinueOnError)
 	fs.SetOutput(talk)
-	out := fs.String("out", filepath.Join("examples", "data"), "folder to write reference.csv, workforce.csv and truth.csv into")
+	out := fs.String("out", filepath.Join("examples", "data"), "folder to write reference.csv, workforce.csv, truth.csv and outcomes.csv into")
 	seed := fs.Uint64("seed", scenario.DefaultSeed, "seed of the generator; the default gives the committed files")
 	if err := fs.Parse(args); err != nil {
 		return err
@@ -47,6 +47,7 @@ func run(args []string, talk io.Writer) error {
 		{"reference.csv", s.ReferenceCSV()},
 		{"workforce.csv", s.WorkforceCSV()},
 		{"truth.csv", s.TruthCSV()},
+		{"outcomes.csv", s.OutcomesCSV()},
 	}
 	for _, f := range files {
 		if err := atomicfile.WriteFile(filepath.Join(*out, f.name), f.data, 0o644); err != nil {

@@ -19,7 +19,7 @@ func TestRunWritesCommittedFiles(t *testing.T) {
 	if !strings.Contains(talk.String(), "wrote "+dir) {
 		t.Errorf("progress message %q does not name the folder", talk.String())
 	}
-	for _, name := range []string{"reference.csv", "workforce.csv", "truth.csv"} {
+	for _, name := range []string{"reference.csv", "workforce.csv", "truth.csv", "outcomes.csv"} {
 		got, err := os.ReadFile(filepath.Join(dir, name))
 		if err != nil {
 			t.Fatal(err)
@@ -33,8 +33,8 @@ func TestRunWritesCommittedFiles(t *testing.T) {
 		}
 	}
 	entries, _ := os.ReadDir(dir)
-	if len(entries) != 3 {
-		t.Errorf("%d files in the output folder, want 3 (no temporary files left)", len(entries))
+	if len(entries) != 4 {
+		t.Errorf("%d files in the output folder, want 4 (no temporary files left)", len(entries))
 	}
 }
 

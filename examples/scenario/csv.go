@@ -18,6 +18,11 @@ func TruthHeader() []string {
 	return []string{"worker", "group", "affected_sbp", "onset_sbp", "affected_fev1", "onset_fev1", "slope_sbp", "slope_fev1", "plateau_sbp", "plateau_fev1"}
 }
 
+// OutcomesHeader returns the header of outcomes.csv.
+func OutcomesHeader() []string {
+	return []string{"worker", "hypertension", "hypertension_age", "obstruction", "obstruction_age"}
+}
+
 // ReferenceCSV encodes the reference cohort with EncodeExams.
 func (s *Scenario) ReferenceCSV() []byte { return EncodeExams(s.Reference) }
 
@@ -26,6 +31,32 @@ func (s *Scenario) WorkforceCSV() []byte { return EncodeExams(s.Workforce) }
 
 // TruthCSV encodes the truth with EncodeTruth.
 func (s *Scenario) TruthCSV() []byte { return EncodeTruth(s.Truth) }
+
+// OutcomesCSV encodes the outcomes with EncodeOutcomes.
+func (s *Scenario) OutcomesCSV() []byte { return EncodeOutcomes(s.Outcomes) }
+
+// EncodeOutcomes writes the outcomes as CSV with the header
+// worker,hypertension,hypertension_age,obstruction,obstruction_age: yes or
+// no, and the age at diagnosis with 2 decimals, empty when not diagnosed.
+// This is the outcomes table veer evaluate reads.
+func EncodeOutcomes(outs []Outcome) []byte {
+	var buf bytes.Buffer
+	w := csv.NewWriter(&buf)
+	_ = w.Write(OutcomesHeader())
+	field := func(d Diagnosis) (string, string) {
+		if !d.Diagnosed {
+			return "no", ""
+		}
+		return "yes", strconv.FormatFloat(d.Age, 'f', 2, 64)
+	}
+	for _, o := range outs {
+		h, ha := field(o.Hypertension)
+		b, ba := field(o.Obstruction)
+		_ = w.Write([]string{o.Worker, h, ha, b, ba})
+	}
+	w.Flush()
+	return buf.Bytes()
+}
 
 // EncodeExams writes exams as CSV with the header worker,group,age,sbp,fev1,
 // "\n" line ends and fixed decimals (age 2, sbp 0, fev1 2), so the same

@@ -150,3 +150,14 @@ func FuzzParseTruth(f *testing.F) {
 		}
 	})
 }
+
+func TestEncodeOutcomesFormat(t *testing.T) {
+	got := string(EncodeOutcomes([]Outcome{
+		{Worker: "W00001"},
+		{Worker: "W00002", Hypertension: Diagnosis{Diagnosed: true, Age: 47.126}, Obstruction: Diagnosis{Diagnosed: true, Age: 50}},
+	}))
+	want := "worker,hypertension,hypertension_age,obstruction,obstruction_age\nW00001,no,,no,\nW00002,yes,47.13,yes,50.00\n"
+	if got != want {
+		t.Errorf("EncodeOutcomes:\n%s\nwant\n%s", got, want)
+	}
+}

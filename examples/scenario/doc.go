@@ -84,6 +84,17 @@
 // visits U(0.1, 0.5) yr (mean gap ≈ 1.34 yr); at least 3 exams per worker.
 // Ages are rounded to 0.01 yr before the readings are computed.
 //
+// Outcomes: what the records say was later diagnosed, the labelled history
+// veer evaluate scores methods on. A drifting marker's condition (raised
+// blood pressure for SBP, airflow obstruction for FEV1) is diagnosed with
+// probability Config.DiagnosedShare (default 0.7) at onset + U(2, 6) years;
+// a worker who does not drift in a marker is diagnosed with it all the same
+// with probability Config.OtherDiagnosedShare (default 0.02), at an age
+// uniform over their exams (a case the marker cannot show). A diagnosis
+// more than a year after the worker's last exam is not on record. So, as in
+// real records, some drifting workers are never diagnosed and count among
+// the healthy, and a few diagnosed workers never drift.
+//
 // Every worker draws from its own PCG stream (seeded by Config.Seed and the
 // worker's cohort and number), so changing the size of one cohort never
 // changes the workers already generated.

@@ -32,6 +32,12 @@ type Config struct {
 	// of their measurement noises at the same exam, -1 < CrossCorr < 1; the
 	// residuals then correlate ρ·(√(c₁c₂) + √((1-c₁)(1-c₂))).
 	CrossCorr float64
+	// DiagnosedShare is the probability that a drifting worker's condition
+	// is diagnosed some years after the onset (0 to 1); OtherDiagnosedShare
+	// the probability that a worker who does not drift in that marker is
+	// diagnosed all the same, by a route the marker does not show (0 to 1).
+	// See Outcome.
+	DiagnosedShare, OtherDiagnosedShare float64
 }
 
 // DefaultConfig returns the configuration of the committed demo files:
@@ -47,6 +53,9 @@ func DefaultConfig() Config {
 		Phi:              0.95,
 		Share:            [2]float64{SBP: 0.7, FEV1: 0.85},
 		CrossCorr:        -0.2,
+
+		DiagnosedShare:      0.7,
+		OtherDiagnosedShare: 0.02,
 	}
 }
 
@@ -71,6 +80,10 @@ func (c Config) Validate() error {
 		return fmt.Errorf("scenario: Share[FEV1] is %v; expected a share of variance from 0 to 1", c.Share[FEV1])
 	case !(c.CrossCorr > -1 && c.CrossCorr < 1):
 		return fmt.Errorf("scenario: CrossCorr is %v; expected a correlation strictly between -1 and 1", c.CrossCorr)
+	case !(c.DiagnosedShare >= 0 && c.DiagnosedShare <= 1):
+		return fmt.Errorf("scenario: DiagnosedShare is %v; expected a share from 0 to 1", c.DiagnosedShare)
+	case !(c.OtherDiagnosedShare >= 0 && c.OtherDiagnosedShare <= 1):
+		return fmt.Errorf("scenario: OtherDiagnosedShare is %v; expected a share from 0 to 1", c.OtherDiagnosedShare)
 	}
 	return nil
 }
@@ -94,18 +107,37 @@ type Truth struct {
 }
 
 // Scenario holds the generated cohorts. Exams are ordered by worker, then
-// by age; Truth has one row per workforce worker in the same order.
+// by age; Truth and Outcomes have one row per workforce worker in the same
+// order.
 type Scenario struct {
 	Config    Config
 	Reference []Exam
 	Workforce []Exam
 	Truth     []Truth
+	Outcomes  []Outcome
+}
+
+// Outcome is what an officer's records say of one workforce worker: whether
+// the condition each marker watches (raised blood pressure for SBP, airflow
+// obstruction for FEV1) was diagnosed, and at what age.
+type Outcome struct {
+	Worker       string
+	Hypertension Diagnosis
+	Obstruction  Diagnosis
+}
+
+// Diagnosis is one condition's outcome: diagnosed or not, and the age at
+// diagnosis in years (0 when not diagnosed).
+type Diagnosis struct {
+	Diagnosed bool
+	Age       float64
 }
 
 // Cohort tags, mixed into each worker's PCG stream.
 const (
 	cohortReference uint64 = 1
 	cohortWorkforce uint64 = 2
+	cohortOutcomes  uint64 = 3
 )
 
 // Schedule and drift constants of the documented model.
@@ -129,6 +161,9 @@ const (
 	gapMissedMax        = 4.0
 	gapAdhocMin         = 0.1
 	gapAdhocMax         = 0.5
+	lagMin              = 2.0 // years from onset to diagnosis, U(lagMin, lagMax)
+	lagMax              = 6.0
+	recordsAfter        = 1.0 // diagnoses up to this many years after the last exam are on record
 )
 
 // Generate builds the scenario described in the package comment.
@@ -150,8 +185,40 @@ func Generate(cfg Config) (*Scenario, error) {
 		exams, truth := worker(cfg, cohortWorkforce, i)
 		s.Workforce = append(s.Workforce, exams...)
 		s.Truth = append(s.Truth, truth)
+		s.Outcomes = append(s.Outcomes, outcome(cfg, i, truth, exams[0].Age, exams[len(exams)-1].Age))
 	}
 	return s, nil
+}
+
+// outcome draws a workforce worker's diagnoses from its own PCG stream
+// (separate from the exams', so the exams do not depend on it): a drifting
+// marker's condition is diagnosed with probability DiagnosedShare, U(2, 6)
+// years after the onset; a marker that does not drift with probability
+// OtherDiagnosedShare, at an age uniform over the exams. A diagnosis more
+// than a year after the last exam is not on record (the worker has left).
+func outcome(cfg Config, i int, truth Truth, first, last float64) Outcome {
+	rng := rand.New(rand.NewPCG(cfg.Seed, cohortOutcomes<<32|uint64(i)))
+	uniform := func(lo, hi float64) float64 { return lo + (hi-lo)*rng.Float64() }
+	draw := func(o Onset) Diagnosis {
+		var age float64
+		if o.Affected {
+			if rng.Float64() >= cfg.DiagnosedShare {
+				return Diagnosis{}
+			}
+			age = o.Age + uniform(lagMin, lagMax)
+		} else {
+			if rng.Float64() >= cfg.OtherDiagnosedShare {
+				return Diagnosis{}
+			}
+			age = uniform(first, last)
+		}
+		age = round2(age)
+		if age > last+recordsAfter {
+			return Diagnosis{}
+		}
+		return Diagnosis{Diagnosed: true, Age: age}
+	}
+	return Outcome{Worker: truth.Worker, Hypertension: draw(truth.SBP), Obstruction: draw(truth.FEV1)}
 }
 
 // worker generates one worker from its own PCG stream. The order of the

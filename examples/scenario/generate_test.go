@@ -25,6 +25,8 @@ func TestConfigValidate(t *testing.T) {
 		{"c negative", func(c *Config) { c.Share[SBP] = -0.1 }, "Share[SBP] is -0.1"},
 		{"c above 1", func(c *Config) { c.Share[FEV1] = 1.2 }, "Share[FEV1] is 1.2"},
 		{"cross corr -1", func(c *Config) { c.CrossCorr = -1 }, "CrossCorr is -1"},
+		{"diagnosed share above 1", func(c *Config) { c.DiagnosedShare = 1.1 }, "DiagnosedShare is 1.1"},
+		{"other diagnosed share NaN", func(c *Config) { c.OtherDiagnosedShare = math.NaN() }, "OtherDiagnosedShare is NaN"},
 		{"edge values", func(c *Config) { c.Share, c.AffectedShare, c.Phi = [2]float64{1, 0}, 0, 0.01 }, ""},
 	}
 	for _, tc := range tests {
@@ -395,5 +397,100 @@ func BenchmarkGenerate(b *testing.B) {
 		_ = s.ReferenceCSV()
 		_ = s.WorkforceCSV()
 		_ = s.TruthCSV()
+	}
+}
+
+// TestOutcomes checks the documented outcome model on a large workforce: a
+// drifting worker's condition is diagnosed 2 to 6 years after the onset
+// with probability DiagnosedShare (less the diagnoses that would fall more
+// than a year after the last exam), a worker who does not drift with
+// probability OtherDiagnosedShare at an age within their exams; and the
+// outcomes do not change the exams.
+func TestOutcomes(t *testing.T) {
+	cfg := DefaultConfig()
+	cfg.WorkforceWorkers = 20000
+	cfg.ReferenceWorkers = 1
+	s, err := Generate(cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(s.Outcomes) != len(s.Truth) {
+		t.Fatalf("%d outcomes for %d workers", len(s.Outcomes), len(s.Truth))
+	}
+	span := map[string][2]float64{}
+	for _, e := range s.Workforce {
+		sp, ok := span[e.Worker]
+		if !ok {
+			sp[0] = e.Age
+		}
+		sp[1] = e.Age
+		span[e.Worker] = sp
+	}
+	type tally struct{ drifting, dxDrifting, offRecord, other, dxOther int }
+	var tl [2]tally
+	for i, o := range s.Outcomes {
+		tr := s.Truth[i]
+		if o.Worker != tr.Worker {
+			t.Fatalf("outcome %d is %s, truth %s", i, o.Worker, tr.Worker)
+		}
+		sp := span[o.Worker]
+		for m, pair := range []struct {
+			on Onset
+			dx Diagnosis
+		}{{tr.SBP, o.Hypertension}, {tr.FEV1, o.Obstruction}} {
+			d := pair.dx
+			if d.Diagnosed && d.Age > sp[1]+1+1e-9 {
+				t.Errorf("%s: diagnosed at %v, more than a year after the last exam %v", o.Worker, d.Age, sp[1])
+			}
+			if pair.on.Affected {
+				tl[m].drifting++
+				// A diagnosis that would be off record: lag >= 2 years past
+				// an onset such that onset + 2 > last + 1 cannot be.
+				if pair.on.Age+6 > sp[1]+1 {
+					tl[m].offRecord++
+				}
+				if d.Diagnosed {
+					tl[m].dxDrifting++
+					if lag := d.Age - pair.on.Age; lag < 2-0.006 || lag > 6+0.006 {
+						t.Errorf("%s: diagnosed %.2f years after the onset; want 2 to 6", o.Worker, lag)
+					}
+				}
+				continue
+			}
+			tl[m].other++
+			if d.Diagnosed {
+				tl[m].dxOther++
+				if d.Age < sp[0]-0.006 || d.Age > sp[1]+0.006 {
+					t.Errorf("%s: diagnosed at %v outside the exams %v–%v", o.Worker, d.Age, sp[0], sp[1])
+				}
+			}
+		}
+	}
+	for m, x := range tl {
+		share := float64(x.dxDrifting) / float64(x.drifting)
+		other := float64(x.dxOther) / float64(x.other)
+		t.Logf("marker %d: %d of %d drifting diagnosed (%.2f; %d could fall off record), %d of %d others (%.3f)",
+			m, x.dxDrifting, x.drifting, share, x.offRecord, x.dxOther, x.other, other)
+		// At most DiagnosedShare, and at least that share of those whose
+		// whole lag window is on record (binomial, 5 SE).
+		lo := cfg.DiagnosedShare * float64(x.drifting-x.offRecord) / float64(x.drifting)
+		se := math.Sqrt(cfg.DiagnosedShare * (1 - cfg.DiagnosedShare) / float64(x.drifting))
+		if share > cfg.DiagnosedShare+5*se || share < lo-5*se {
+			t.Errorf("marker %d: %.3f of drifting workers diagnosed; want between %.3f and %.3f", m, share, lo, cfg.DiagnosedShare)
+		}
+		seO := math.Sqrt(cfg.OtherDiagnosedShare * (1 - cfg.OtherDiagnosedShare) / float64(x.other))
+		if math.Abs(other-cfg.OtherDiagnosedShare) > 5*seO {
+			t.Errorf("marker %d: %.4f of other workers diagnosed; want %.2f", m, other, cfg.OtherDiagnosedShare)
+		}
+	}
+	// The exams do not depend on the outcome model.
+	cfg2 := cfg
+	cfg2.DiagnosedShare, cfg2.OtherDiagnosedShare = 0, 1
+	s2, err := Generate(cfg2)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(s.WorkforceCSV(), s2.WorkforceCSV()) || !bytes.Equal(s.TruthCSV(), s2.TruthCSV()) {
+		t.Error("changing the outcome model changed the exams or the truth")
 	}
 }
