@@ -595,6 +595,7 @@ func TestBatchCommands(t *testing.T) {
 		{[]string{"screen", "--in", "x.csv"}, true},
 		{[]string{"fit"}, true},
 		{[]string{"report"}, true},
+		{[]string{"evaluate"}, true},
 		{[]string{"demo"}, true},
 		{[]string{"serve", "--addr", "127.0.0.1:0"}, false},
 		{[]string{"limit"}, false},

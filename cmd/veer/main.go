@@ -51,6 +51,7 @@ func commands() []command {
 		{"delay", "expected years from the start of a sustained shift to a signal", runDelay, false},
 		{"screen", "screen a CSV file or .xlsx workbook of exams against a model", runScreen, true},
 		{"report", "screen exams and write a self-contained HTML report", runReport, true},
+		{"evaluate", "score the chart, alert rules and a centile cut-off on a history of later diagnoses", runEvaluate, true},
 		{"serve", "run the local function server for spreadsheet add-ins", runServe, false},
 		{"token", "print the write token that add-ins need (creating it if needed)", runToken, false},
 		{"cert", "create the local HTTPS certificate the web add-in needs", runCert, false},

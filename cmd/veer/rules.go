@@ -29,7 +29,8 @@ func (r *ruleList) Set(v string) error {
 	return nil
 }
 
-// collectRules joins --rule flags and a --rules file into one checked set.
+// collectRules joins --rule flags and a --rules file into one checked set,
+// every rule compiled.
 func collectRules(flags ruleList, file string) (rules.RuleSet, error) {
 	rs, err := collectRulesUnchecked(flags, file)
 	if err != nil {

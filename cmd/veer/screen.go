@@ -64,6 +64,27 @@ type screenJob struct {
 
 func isXLSX(path string) bool { return strings.EqualFold(filepath.Ext(path), ".xlsx") }
 
+// readInput reads a table given on the command line: a CSV file, or a
+// sheet of an .xlsx workbook (the first when sheet is empty; sheetFlag
+// names the flag that chooses it). Screen, report and evaluate read their
+// exams, and evaluate its outcomes, this one way.
+func readInput(path, sheet, sheetFlag string) (*table.Table, error) {
+	if !isXLSX(path) {
+		if sheet != "" {
+			return nil, usagef("%s goes with an .xlsx workbook", sheetFlag)
+		}
+		return loadTable(path)
+	}
+	if _, err := os.Stat(path); err != nil {
+		return nil, fmt.Errorf("cannot find the workbook %s", path)
+	}
+	t, err := workbook.ReadSheet(path, sheet)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %v", path, err)
+	}
+	return t, nil
+}
+
 // runScreenJob reads the exams, computes the limit, screens and evaluates
 // the rules.
 func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
@@ -87,20 +108,8 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 		return nil, err
 	}
 	j := &screenJob{model: m, settings: s, ruleSet: rs, isXLSX: isXLSX(f.in), target: f.target}
-	if j.isXLSX {
-		if _, err := os.Stat(f.in); err != nil {
-			return nil, fmt.Errorf("cannot find the workbook %s", f.in)
-		}
-		if j.input, err = workbook.ReadSheet(f.in, f.sheet); err != nil {
-			return nil, fmt.Errorf("%s: %v", f.in, err)
-		}
-	} else {
-		if f.sheet != "" {
-			return nil, usagef("--sheet goes with an .xlsx workbook")
-		}
-		if j.input, err = loadTable(f.in); err != nil {
-			return nil, err
-		}
+	if j.input, err = readInput(f.in, f.sheet, "--sheet"); err != nil {
+		return nil, err
 	}
 	rows, err := readRows(j.input, f.in, f.cols)
 	if err != nil {

@@ -38,9 +38,12 @@ type Row struct {
 	Result Result
 }
 
-// TableColumn documents one column of the evaluation table.
+// TableColumn documents one column of the evaluation table. Digits is
+// the number of decimals a text rendering (CSV, a report) gives its
+// numbers; cells carry full precision.
 type TableColumn struct {
 	Name, Meaning string
+	Digits        int
 }
 
 // TableColumns are the evaluation table's columns, in order: the one
@@ -48,30 +51,30 @@ type TableColumn struct {
 // row and the documentation. Figures that are not available (a quartile
 // not reached, an interval of no workers, a follow-up too short) are blank.
 var TableColumns = []TableColumn{
-	{"method", "chart, baseline (a reading beyond the reference centile) or rule"},
-	{"name", "which chart, baseline or rule"},
-	{"target", "the chart's target in years: a healthy worker flagged on average once in this many years of exams (for a rule, the target of the chart it sees)"},
-	{"limit", "the chart's control limit at that target"},
-	{"diagnosed", "workers later diagnosed who had an exam before the diagnosis"},
-	{"flagged_before_diagnosis", "of them, workers flagged at an exam before the diagnosis"},
-	{"flagged_before_diagnosis_share", "their share of the diagnosed (0 to 1)"},
-	{"flagged_before_diagnosis_share_low", "lower end of its 95% interval (Wilson)"},
-	{"flagged_before_diagnosis_share_high", "upper end of its 95% interval (Wilson)"},
-	{"median_lead_years", "median years from the first signal to the diagnosis over all diagnosed workers, a worker never flagged counting as no lead (Kaplan–Meier, censored at the diagnosis); blank when fewer than half were flagged"},
-	{"lead_q25_years", "lower quartile of the lead: three in four diagnosed workers were flagged about this long or longer before the diagnosis; blank when fewer than three in four were flagged"},
-	{"lead_q75_years", "upper quartile of the lead: one in four diagnosed workers was flagged about this long or longer before the diagnosis"},
-	{"median_lead_flagged_years", "median years from the first signal to the diagnosis among the flagged workers only"},
-	{"healthy", "workers never diagnosed"},
-	{"healthy_flagged", "of them, workers flagged at least once (each a false signal)"},
-	{"healthy_flagged_share", "their share of the never diagnosed (0 to 1), over their whole follow-up"},
-	{"healthy_flagged_share_low", "lower end of its 95% interval (Wilson)"},
-	{"healthy_flagged_share_high", "upper end of its 95% interval (Wilson)"},
-	{"healthy_flagged_within_10_years", "share of never-diagnosed workers flagged within 10 years of their first exam (Kaplan–Meier); blank when no one was followed that long"},
-	{"worker_years_at_risk", "years from the first exam to the first signal, or to the last exam, summed over the never diagnosed"},
-	{"false_signals_per_100_worker_years", "false signals per 100 of those worker-years: 100/target for a chart that keeps its promise"},
-	{"false_signals_per_100_worker_years_low", "lower end of its 95% interval (exact Poisson, Garwood)"},
-	{"false_signals_per_100_worker_years_high", "upper end of its 95% interval (exact Poisson, Garwood)"},
-	{"exams_after_diagnosis", "exams at or after a diagnosis, left out of every figure (they are not screening)"},
+	{"method", "chart, baseline (a reading beyond the reference centile) or rule", 0},
+	{"name", "which chart, baseline or rule", 0},
+	{"target", "the chart's target in years: a healthy worker flagged on average once in this many years of exams (for a rule, the target of the chart it sees)", -1},
+	{"limit", "the chart's control limit at that target", 4},
+	{"diagnosed", "workers later diagnosed who had an exam before the diagnosis", 0},
+	{"flagged_before_diagnosis", "of them, workers flagged at an exam before the diagnosis", 0},
+	{"flagged_before_diagnosis_share", "their share of the diagnosed (0 to 1)", 4},
+	{"flagged_before_diagnosis_share_low", "lower end of its 95% interval (Wilson)", 4},
+	{"flagged_before_diagnosis_share_high", "upper end of its 95% interval (Wilson)", 4},
+	{"median_lead_years", "median years from the first signal to the diagnosis over all diagnosed workers, a worker never flagged counting as no lead (Kaplan–Meier, censored at the diagnosis); blank when fewer than half were flagged", 2},
+	{"lead_q25_years", "lower quartile of the lead: three in four diagnosed workers were flagged about this long or longer before the diagnosis; blank when fewer than three in four were flagged", 2},
+	{"lead_q75_years", "upper quartile of the lead: one in four diagnosed workers was flagged about this long or longer before the diagnosis", 2},
+	{"median_lead_flagged_years", "median years from the first signal to the diagnosis among the flagged workers only", 2},
+	{"healthy", "workers never diagnosed", 0},
+	{"healthy_flagged", "of them, workers flagged at least once (each a false signal)", 0},
+	{"healthy_flagged_share", "their share of the never diagnosed (0 to 1), over their whole follow-up", 4},
+	{"healthy_flagged_share_low", "lower end of its 95% interval (Wilson)", 4},
+	{"healthy_flagged_share_high", "upper end of its 95% interval (Wilson)", 4},
+	{"healthy_flagged_within_10_years", "share of never-diagnosed workers flagged within 10 years of their first exam (Kaplan–Meier); blank when no one was followed that long", 4},
+	{"worker_years_at_risk", "years from the first exam to the first signal, or to the last exam, summed over the never diagnosed", 1},
+	{"false_signals_per_100_worker_years", "false signals per 100 of those worker-years: 100/target for a chart that keeps its promise", 3},
+	{"false_signals_per_100_worker_years_low", "lower end of its 95% interval (exact Poisson, Garwood)", 3},
+	{"false_signals_per_100_worker_years_high", "upper end of its 95% interval (exact Poisson, Garwood)", 3},
+	{"exams_after_diagnosis", "exams at or after a diagnosis, left out of every figure (they are not screening)", 0},
 }
 
 // Header returns the column names.

@@ -237,6 +237,8 @@ func (m *Model) EvaluateHistory(ctx context.Context, exams []Exam, c *evaluation
 
 	// The chart at the baseline's false-signal rate.
 	if mt, ok := evaluation.MatchTarget(targets, rates, br.FalsePer100.Estimate); ok {
+		// A tenth of a year is finer than the sweep can tell targets apart.
+		mt = math.Max(math.Round(mt*10)/10, 0.1)
 		h.Matched = mt
 		if o.MatchBaseline && !slices.Contains(targets, mt) {
 			if lr, err := m.Limit(o.Settings, o.Limits, mt); err == nil {
