@@ -205,8 +205,8 @@ func roundSignificant(v float64, digits int) float64 {
 // evaluation.TableColumns).
 func writeEvaluation(w io.Writer, h *screening.History) error {
 	tw := table.NewWriter(w)
-	for i, c := range evaluation.Header() {
-		tw.Text(c, i == 0)
+	for _, c := range evaluation.Header() {
+		tw.Text(c)
 	}
 	if err := tw.EndRow(); err != nil {
 		return err
@@ -214,9 +214,9 @@ func writeEvaluation(w io.Writer, h *screening.History) error {
 	for _, r := range h.Rows {
 		for i, c := range r.Cells(h.Cohort) {
 			if c.IsText {
-				tw.Text(c.Text, i == 0)
+				tw.Text(c.Text)
 			} else {
-				tw.Float(c.Number, evaluation.TableColumns[i].Digits, i == 0)
+				tw.Float(c.Number, evaluation.TableColumns[i].Digits)
 			}
 		}
 		if err := tw.EndRow(); err != nil {

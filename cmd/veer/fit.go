@@ -264,12 +264,12 @@ func runCurve(e *env, args []string) error {
 		groups = []string{*group}
 	}
 	w := table.NewWriter(e.stdout)
-	w.Text("time", true)
+	w.Text("time")
 	for _, h := range []string{"group", "mean", "sd"} {
-		w.Text(h, false)
+		w.Text(h)
 	}
 	for _, c := range cents {
-		w.Text("c"+strconv.FormatFloat(c, 'f', -1, 64), false)
+		w.Text("c" + strconv.FormatFloat(c, 'f', -1, 64))
 	}
 	if err := w.EndRow(); err != nil {
 		return err
@@ -280,16 +280,16 @@ func runCurve(e *env, args []string) error {
 			if err != nil {
 				return err
 			}
-			w.Float(t, -1, true)
-			w.Text(g, false)
-			w.Float(mean, 6, false)
-			w.Float(sd, 6, false)
+			w.Float(t, -1)
+			w.Text(g)
+			w.Float(mean, 6)
+			w.Float(sd, 6)
 			for _, c := range cents {
 				v, err := m.Curves.Centile(g, t, c, *extrap)
 				if err != nil {
 					return err
 				}
-				w.Float(v, 6, false)
+				w.Float(v, 6)
 			}
 			if err := w.EndRow(); err != nil {
 				return err

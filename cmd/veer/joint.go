@@ -385,57 +385,50 @@ var jointColumns = []string{"chart", "limit", "signal", "leading_marker", "exam"
 func (job *jointScreenJob) write(out io.Writer, ruleNames []string, ruleCols [][]string) error {
 	t := job.input
 	w := table.NewWriter(out)
-	for i, hd := range t.Header {
-		w.Text(hd, i == 0)
+	for _, hd := range t.Header {
+		w.Text(hd)
 	}
 	for _, m := range job.cols {
 		for _, c := range jointMarkerColumns {
-			w.Text(c+"_"+m, false)
+			w.Text(c + "_" + m)
 		}
 	}
 	for _, hd := range jointColumns {
-		w.Text(hd, false)
+		w.Text(hd)
 	}
 	for _, hd := range ruleNames {
-		w.Text(hd, false)
+		w.Text(hd)
 	}
 	if err := w.EndRow(); err != nil {
 		return err
 	}
-	num := func(v float64, prec int) {
-		if math.IsNaN(v) {
-			w.Text("", false)
-		} else {
-			w.Float(v, prec, false)
-		}
-	}
 	for i, r := range job.results {
-		for j, c := range t.Rows[i] {
-			w.Text(c, j == 0)
+		for _, c := range t.Rows[i] {
+			w.Text(c)
 		}
 		for k := range job.cols {
-			num(r.Mean[k], 6)
-			num(r.SD[k], 6)
-			num(r.Z[k], 4)
-			num(r.Centile[k], 2)
-			num(r.Innovation[k], 4)
+			w.Float(r.Mean[k], 6)
+			w.Float(r.SD[k], 6)
+			w.Float(r.Z[k], 4)
+			w.Float(r.Centile[k], 2)
+			w.Float(r.Innovation[k], 4)
 		}
-		w.Float(r.Stat, 4, false)
-		w.Float(job.limit.H, 4, false)
+		w.Float(r.Stat, 4)
+		w.Float(job.limit.H, 4)
 		if r.Signal {
-			w.Text("1", false)
+			w.Text("1")
 		} else {
-			w.Text("0", false)
+			w.Text("0")
 		}
 		if r.Leading >= 0 {
-			w.Text(job.cols[r.Leading], false)
+			w.Text(job.cols[r.Leading])
 		} else {
-			w.Text("", false)
+			w.Text("")
 		}
-		w.Float(float64(r.Exam), 0, false)
-		num(r.FirstSignal, -1)
+		w.Float(float64(r.Exam), 0)
+		w.Float(r.FirstSignal, -1)
 		for _, col := range ruleCols {
-			w.Text(col[i], false)
+			w.Text(col[i])
 		}
 		if err := w.EndRow(); err != nil {
 			return err

@@ -328,44 +328,44 @@ func (j *screenJob) table() screenTable {
 func (st screenTable) write(out io.Writer) error {
 	t, res, h, ruleNames, ruleCols := st.input, st.results, st.limit, st.ruleNames, st.ruleCols
 	w := table.NewWriter(out)
-	for i, hd := range t.Header {
-		w.Text(hd, i == 0)
+	for _, hd := range t.Header {
+		w.Text(hd)
 	}
 	for _, hd := range screenColumns {
-		w.Text(hd, false)
+		w.Text(hd)
 	}
 	for _, hd := range ruleNames {
-		w.Text(hd, false)
+		w.Text(hd)
 	}
 	if err := w.EndRow(); err != nil {
 		return err
 	}
 	for i, r := range res {
-		for j, c := range t.Rows[i] {
-			w.Text(c, j == 0)
+		for _, c := range t.Rows[i] {
+			w.Text(c)
 		}
-		w.Float(r.Mean, 6, false)
-		w.Float(r.SD, 6, false)
-		w.Float(r.Z, 4, false)
-		w.Float(r.Centile, 2, false)
-		w.Float(r.Innovation, 4, false)
-		w.Float(r.Up, 4, false)
-		w.Float(r.Down, 4, false)
-		w.Float(r.Stat, 4, false)
-		w.Float(h, 4, false)
+		w.Float(r.Mean, 6)
+		w.Float(r.SD, 6)
+		w.Float(r.Z, 4)
+		w.Float(r.Centile, 2)
+		w.Float(r.Innovation, 4)
+		w.Float(r.Up, 4)
+		w.Float(r.Down, 4)
+		w.Float(r.Stat, 4)
+		w.Float(h, 4)
 		if r.Signal {
-			w.Text("1", false)
+			w.Text("1")
 		} else {
-			w.Text("0", false)
+			w.Text("0")
 		}
-		w.Float(float64(r.Exam), 0, false)
+		w.Float(float64(r.Exam), 0)
 		if math.IsNaN(r.FirstSignal) {
-			w.Text("", false)
+			w.Text("")
 		} else {
-			w.Float(r.FirstSignal, -1, false)
+			w.Float(r.FirstSignal, -1)
 		}
 		for _, col := range ruleCols {
-			w.Text(col[i], false)
+			w.Text(col[i])
 		}
 		if err := w.EndRow(); err != nil {
 			return err

@@ -20,14 +20,8 @@ var chartOptions = []string{
 
 // New returns the catalogue of veer's cell functions.
 func New() *cell.Catalogue {
-	c := cell.NewCatalogue()
-	for _, f := range funcs() {
-		c.Register(f)
-	}
-	for _, f := range ruleFuncs(rules.NewCache(rules.DefaultCacheSize, rules.DefaultLimits())) {
-		c.Register(f)
-	}
-	return c
+	all := append(funcs(), ruleFuncs(rules.NewCache(rules.DefaultCacheSize, rules.DefaultLimits()))...)
+	return cell.NewCatalogue(all...)
 }
 
 func modelParam() cell.Param {

@@ -6,7 +6,6 @@ import (
 	"fmt"
 	"regexp"
 	"strings"
-	"sync"
 )
 
 // Shape is the shape of a function's result.
@@ -141,69 +140,47 @@ func (f *Func) validate() error {
 	return nil
 }
 
-// Catalogue is the ordered set of cell functions. Lookup is by
-// case-insensitive name. It is safe for concurrent use; register all
-// functions before serving.
+// Catalogue is the ordered set of cell functions, fixed when it is built:
+// nothing is added or changed later, so it is safe for concurrent use
+// without locking. Lookup is by case-insensitive name.
 type Catalogue struct {
-	mu     sync.RWMutex
 	funcs  []*Func
 	byName map[string]*Func
 }
 
 // NewCatalogue returns a catalogue holding funcs in order. It panics on an
-// invalid entry or a duplicate name (programmer errors).
+// invalid entry or a duplicate name (programmer errors: the catalogue is
+// fixed at build time).
 func NewCatalogue(funcs ...Func) *Catalogue {
-	c := &Catalogue{byName: map[string]*Func{}}
+	c := &Catalogue{byName: make(map[string]*Func, len(funcs))}
 	for _, f := range funcs {
-		c.Register(f)
+		if err := f.validate(); err != nil {
+			panic(err)
+		}
+		if _, dup := c.byName[f.Name]; dup {
+			panic(fmt.Sprintf("cell: function %s is listed twice", f.Name))
+		}
+		fp := &f
+		fp.Params = append([]Param(nil), f.Params...)
+		fp.Options = append([]string(nil), f.Options...)
+		c.funcs = append(c.funcs, fp)
+		c.byName[f.Name] = fp
 	}
 	return c
-}
-
-// Register adds f. It panics if f is invalid or its name is taken
-// (programmer errors: the catalogue is fixed at build time).
-func (c *Catalogue) Register(f Func) {
-	if err := f.validate(); err != nil {
-		panic(err)
-	}
-	c.mu.Lock()
-	defer c.mu.Unlock()
-	if c.byName == nil {
-		c.byName = map[string]*Func{}
-	}
-	if _, dup := c.byName[f.Name]; dup {
-		panic(fmt.Sprintf("cell: function %s registered twice", f.Name))
-	}
-	fp := &f
-	fp.Params = append([]Param(nil), f.Params...)
-	fp.Options = append([]string(nil), f.Options...)
-	c.funcs = append(c.funcs, fp)
-	c.byName[f.Name] = fp
 }
 
 // Lookup finds a function by name, ignoring case. The returned Func must not
 // be modified.
 func (c *Catalogue) Lookup(name string) (*Func, bool) {
-	key := strings.ToUpper(name)
-	c.mu.RLock()
-	f, ok := c.byName[key]
-	c.mu.RUnlock()
+	f, ok := c.byName[strings.ToUpper(name)]
 	return f, ok
 }
 
-// Funcs returns the functions in registration order.
-func (c *Catalogue) Funcs() []*Func {
-	c.mu.RLock()
-	defer c.mu.RUnlock()
-	return append([]*Func(nil), c.funcs...)
-}
+// Funcs returns the functions in catalogue order.
+func (c *Catalogue) Funcs() []*Func { return append([]*Func(nil), c.funcs...) }
 
 // Len returns the number of functions.
-func (c *Catalogue) Len() int {
-	c.mu.RLock()
-	defer c.mu.RUnlock()
-	return len(c.funcs)
-}
+func (c *Catalogue) Len() int { return len(c.funcs) }
 
 // FuncInfo is the JSON description of one function in the listing.
 type FuncInfo struct {

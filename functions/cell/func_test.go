@@ -20,7 +20,7 @@ func validFunc() Func {
 	}
 }
 
-func TestRegisterPanics(t *testing.T) {
+func TestNewCataloguePanics(t *testing.T) {
 	tests := []struct {
 		name   string
 		modify func(*Func)
@@ -47,7 +47,7 @@ func TestRegisterPanics(t *testing.T) {
 			defer func() {
 				r := recover()
 				if r == nil {
-					t.Fatal("Register did not panic")
+					t.Fatal("NewCatalogue did not panic")
 				}
 				if !strings.Contains(toString(r), tt.part) {
 					t.Errorf("panic %q does not mention %q", r, tt.part)

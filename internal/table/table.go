@@ -172,11 +172,14 @@ func ParseNumber(s string, decimalComma bool) (float64, error) {
 	return v, nil
 }
 
-// Writer writes CSV quickly: fields are quoted only when they need it.
+// Writer writes CSV quickly: fields are quoted only when they need it. It
+// keeps track of its place in the row, so a field is just appended
+// (Text, Float) and EndRow starts the next row.
 type Writer struct {
-	w     *bufio.Writer
-	comma byte
-	buf   []byte
+	w      *bufio.Writer
+	comma  byte
+	buf    []byte
+	fields int // fields written to the current row
 }
 
 // NewWriter returns a CSV writer with a comma delimiter.
@@ -184,12 +187,17 @@ func NewWriter(w io.Writer) *Writer {
 	return &Writer{w: bufio.NewWriterSize(w, 1<<20), comma: ','}
 }
 
-// Text appends a text field to the current row; first says whether it is
-// the first field of the row.
-func (w *Writer) Text(s string, first bool) {
-	if !first {
+// sep starts a field: after the row's first field, with the delimiter.
+func (w *Writer) sep() {
+	if w.fields > 0 {
 		w.buf = append(w.buf, w.comma)
 	}
+	w.fields++
+}
+
+// Text appends a text field to the current row.
+func (w *Writer) Text(s string) {
+	w.sep()
 	if strings.ContainsAny(s, "\",\r\n") || (s != "" && (s[0] == ' ' || s[len(s)-1] == ' ')) {
 		w.buf = append(w.buf, '"')
 		w.buf = append(w.buf, strings.ReplaceAll(s, `"`, `""`)...)
@@ -201,21 +209,20 @@ func (w *Writer) Text(s string, first bool) {
 
 // Float appends a number with the shortest representation that reads back
 // exactly, or with prec decimals when prec >= 0. NaN is written as an empty cell.
-func (w *Writer) Float(v float64, prec int, first bool) {
-	if !first {
-		w.buf = append(w.buf, w.comma)
-	}
+func (w *Writer) Float(v float64, prec int) {
+	w.sep()
 	if math.IsNaN(v) {
 		return
 	}
 	w.buf = strconv.AppendFloat(w.buf, v, 'f', prec, 64)
 }
 
-// EndRow finishes the current row.
+// EndRow finishes the current row; the next field starts a new one.
 func (w *Writer) EndRow() error {
 	w.buf = append(w.buf, '\n')
 	_, err := w.w.Write(w.buf)
 	w.buf = w.buf[:0]
+	w.fields = 0
 	return err
 }
 

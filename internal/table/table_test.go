@@ -2,6 +2,7 @@ package table
 
 import (
 	"bytes"
+	"math"
 	"strings"
 	"testing"
 )
@@ -60,17 +61,26 @@ func TestReadDelimitersAndErrors(t *testing.T) {
 func TestWriterRoundTrip(t *testing.T) {
 	var b bytes.Buffer
 	w := NewWriter(&b)
-	w.Text(`a "quoted", text`, true)
-	w.Float(1.25, -1, false)
-	w.Float(2, 2, false)
-	w.Text(" padded", false)
+	w.Text(`a "quoted", text`)
+	w.Float(1.25, -1)
+	w.Float(2, 2)
+	w.Text(" padded")
+	if err := w.EndRow(); err != nil {
+		t.Fatal(err)
+	}
+	// The writer keeps its place: the next row starts without a comma,
+	// and a NaN is an empty field in its place.
+	w.Float(math.NaN(), 2)
+	w.Text("x")
+	w.Float(math.NaN(), -1)
+	w.Text("y")
 	if err := w.EndRow(); err != nil {
 		t.Fatal(err)
 	}
 	if err := w.Flush(); err != nil {
 		t.Fatal(err)
 	}
-	want := "\"a \"\"quoted\"\", text\",1.25,2.00,\" padded\"\n"
+	want := "\"a \"\"quoted\"\", text\",1.25,2.00,\" padded\"\n,x,,y\n"
 	if b.String() != want {
 		t.Fatalf("got %q want %q", b.String(), want)
 	}
