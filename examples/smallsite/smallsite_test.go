@@ -2,6 +2,7 @@ package smallsite
 
 import (
 	"bytes"
+	"context"
 	"math"
 	"testing"
 
@@ -99,7 +100,7 @@ func TestSite(t *testing.T) {
 		for _, w := range order {
 			ws = append(ws, series[w][k])
 		}
-		est, err := published.EstimateSerial(ws, nil)
+		est, err := published.EstimateSerial(context.Background(), ws, nil)
 		if err != nil {
 			t.Fatal(err)
 		}

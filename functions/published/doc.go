@@ -97,7 +97,8 @@
 // Problems with the user's table or document are *InputError values
 // (several in *InputErrors) naming the row and column (or group, parameter
 // and lookup row, or the line and column of a syntax error); lookups fail
-// with *RangeError, *UnknownGroupError, *CovariateError, *ParamsError and
+// with refcurve's *RangeError (an age) and *GroupError, *RangeError (a
+// covariate), *CovariateError, *ParamsError and
 // *ReadingError. All wrap the sentinels of errors.go, for errors.Is.
 //
 // The package is pure: it reads no files and keeps no globals.

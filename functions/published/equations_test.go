@@ -147,6 +147,10 @@ func TestEquationCovariates(t *testing.T) {
 	if err != nil || p != q {
 		t.Errorf("held at 200: %+v %v vs %+v", p, err, q)
 	}
+	if ref.Within("female", 30, []float64{210}) || !ref.Within("female", 30, []float64{180}) || ref.Within("female", 70, []float64{180}) ||
+		!ref.Within("female", 30, nil) || ref.Within("male", 30, []float64{180}) {
+		t.Errorf("Within")
+	}
 	// Age outside the lookup's 20–60.
 	p, err = ref.At("female", 70, []float64{165}, true)
 	q, _ = ref.At("female", 60, []float64{165}, false)

@@ -4,6 +4,8 @@ import (
 	"errors"
 	"strconv"
 	"strings"
+
+	"veer/functions/refcurve"
 )
 
 // Sentinel errors. Every error of this package wraps one of them, so
@@ -35,10 +37,13 @@ var (
 	// positive under a logarithm).
 	ErrCovariate = errors.New("covariate cannot be used")
 	// ErrOutOfRange: an age or covariate lies outside the range the
-	// reference covers, and extrapolation was not asked for.
-	ErrOutOfRange = errors.New("outside the reference range")
-	// ErrUnknownGroup: the group is not in the reference.
-	ErrUnknownGroup = errors.New("unknown group")
+	// reference covers, and extrapolation was not asked for. It is the
+	// same kind as refcurve's, so fitted and published references fail
+	// alike.
+	ErrOutOfRange = refcurve.ErrOutsideRange
+	// ErrUnknownGroup: the group is not in the reference (the same kind
+	// as refcurve's).
+	ErrUnknownGroup = refcurve.ErrUnknownGroup
 	// ErrNoCentile: the centile does not exist for these L, M, S
 	// (1 + L·S·z ≤ 0).
 	ErrNoCentile = errors.New("centile does not exist")
@@ -123,8 +128,9 @@ func joinInts(v []int) string {
 
 func (e *InputError) Unwrap() error { return e.Err }
 
-// RangeError is an age or covariate outside the range a group of the
-// reference covers. Name is "age" or the covariate's name.
+// RangeError is a covariate (height, say) outside the range a group of
+// the reference declares for it. An age outside the reference's ages is
+// refcurve's *RangeError, as for fitted curves. Both match ErrOutOfRange.
 type RangeError struct {
 	Group    string
 	Name     string
@@ -139,27 +145,9 @@ func (e *RangeError) Error() string {
 
 func (e *RangeError) Unwrap() error { return ErrOutOfRange }
 
-// UnknownGroupError is a group the reference does not have.
-type UnknownGroupError struct {
-	Group string
-	Known []string
-}
-
-func (e *UnknownGroupError) Error() string {
-	if len(e.Known) == 1 && e.Known[0] == "" {
-		return "this reference has no groups, so group " + strconv.Quote(e.Group) + " is unknown; leave the group empty"
-	}
-	names := make([]string, len(e.Known))
-	for i, g := range e.Known {
-		names[i] = strconv.Quote(g)
-	}
-	if e.Group == "" {
-		return "this reference has groups " + strings.Join(names, ", ") + "; say which group"
-	}
-	return "unknown group " + strconv.Quote(e.Group) + "; the reference has groups " + strings.Join(names, ", ")
-}
-
-func (e *UnknownGroupError) Unwrap() error { return ErrUnknownGroup }
+// UnknownGroupError is a group the reference does not have: refcurve's
+// *GroupError, so fitted and published references answer alike.
+type UnknownGroupError = refcurve.GroupError
 
 // ReadingError is a reading that cannot be scored against L, M, S: not a
 // finite number, or not positive while L ≠ 1 (the Box-Cox power of
@@ -223,42 +211,13 @@ func (e *ParamsError) Error() string {
 
 func (e *ParamsError) Unwrap() error { return e.Err }
 
-// EntryError is the failure of one entry of a batch; Index is 0-based.
-type EntryError struct {
-	Index int
-	Err   error
-}
-
-func (e EntryError) Unwrap() error { return e.Err }
-
-// ScoreErrors reports the entries of a batch (ZMany) that could not be
-// scored: Count of Total, the first few in First.
-type ScoreErrors struct {
-	Count, Total int
-	First        []EntryError
-}
-
-func (e *ScoreErrors) Error() string {
-	var b strings.Builder
-	b.WriteString(strconv.Itoa(e.Count) + " of " + strconv.Itoa(e.Total) + " scores could not be computed")
-	for _, f := range e.First {
-		b.WriteString("; entry " + strconv.Itoa(f.Index+1) + ": " + f.Err.Error())
-	}
-	if e.Count > len(e.First) {
-		b.WriteString("; ...")
-	}
-	return b.String()
-}
-
-// Unwrap gives the errors of the first entries, so errors.Is and errors.As
-// see their kinds.
-func (e *ScoreErrors) Unwrap() []error {
-	out := make([]error, len(e.First))
-	for i, f := range e.First {
-		out[i] = f.Err
-	}
-	return out
-}
+// EntryError and ScoreErrors report the entries of a batch (ZMany) that
+// could not be scored; they are refcurve's types, so a batch fails the
+// same way against fitted curves and against a published reference.
+type (
+	EntryError  = refcurve.EntryError
+	ScoreErrors = refcurve.ScoreErrors
+)
 
 const maxReportedEntries = 5
 

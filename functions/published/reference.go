@@ -4,6 +4,7 @@ import (
 	"math"
 	"runtime"
 	"sync"
+	"veer/functions/refcurve"
 )
 
 // Form is how a reference gives the distribution of a reading.
@@ -158,7 +159,26 @@ func (r *Reference) group(name string) (*group, error) {
 	if i, ok := r.index[name]; ok {
 		return &r.groups[i], nil
 	}
-	return nil, &UnknownGroupError{Group: name, Known: r.Groups()}
+	return nil, &refcurve.GroupError{Group: name, Groups: r.Groups()}
+}
+
+// Within reports whether age and the covariates group's equations use
+// lie inside the ranges the reference covers (blank covariates count as
+// inside: At reports them). An unknown group is not within.
+func (r *Reference) Within(group string, age float64, cov []float64) bool {
+	g, err := r.group(group)
+	if err != nil || !(age >= g.ageMin && age <= g.ageMax) {
+		return false
+	}
+	for k, c := range r.covs {
+		if !g.uses[k] || k >= len(cov) {
+			continue
+		}
+		if v := cov[k]; v < c.Min || v > c.Max {
+			return false
+		}
+	}
+	return true
 }
 
 // At returns L, M and S of group at age, with cov holding the covariates'
@@ -166,7 +186,8 @@ func (r *Reference) group(name string) (*group, error) {
 // only those the group's equations use are read).
 //
 // Outside the group's ages, or outside a covariate's declared range, it is
-// a *RangeError unless extrapolate; then the age and each covariate are
+// a *refcurve.RangeError (an age) or *RangeError (a covariate) unless
+// extrapolate; then the age and each covariate are
 // held at the nearest end of their range (constant extrapolation, the rule
 // of fitted reference curves: the reference is not extended by a trend
 // nobody measured). A blank covariate the group needs, or a non-positive
@@ -186,11 +207,11 @@ func (r *Reference) At(group string, age float64, cov []float64, extrapolate boo
 func (r *Reference) at(g *group, age float64, cov []float64, extrapolate bool, buf []float64) (LMS, error) {
 	x := buf[:0]
 	if isNaNOrInf(age) {
-		return LMS{}, &RangeError{Group: g.name, Name: "age", Value: age, Min: g.ageMin, Max: g.ageMax}
+		return LMS{}, &refcurve.RangeError{Group: g.name, Time: age, Min: g.ageMin, Max: g.ageMax}
 	}
 	if age < g.ageMin || age > g.ageMax {
 		if !extrapolate {
-			return LMS{}, &RangeError{Group: g.name, Name: "age", Value: age, Min: g.ageMin, Max: g.ageMax}
+			return LMS{}, &refcurve.RangeError{Group: g.name, Time: age, Min: g.ageMin, Max: g.ageMax}
 		}
 		age = math.Min(math.Max(age, g.ageMin), g.ageMax)
 	}

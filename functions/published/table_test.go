@@ -2,9 +2,11 @@ package published
 
 import (
 	"errors"
+
 	"math"
 	"strings"
 	"testing"
+	"veer/functions/refcurve"
 )
 
 var nan = math.NaN()
@@ -63,11 +65,11 @@ func TestTableLookup(t *testing.T) {
 	// Outside the ages: an error naming the range, unless extrapolating,
 	// which holds the end values (the rule of fitted curves).
 	_, err = ref.At("f", 65, nil, false)
-	var re *RangeError
-	if !errors.As(err, &re) || !errors.Is(err, ErrOutOfRange) || re.Min != 20 || re.Max != 60 || re.Name != "age" || re.Group != "f" {
+	var re *refcurve.RangeError
+	if !errors.As(err, &re) || !errors.Is(err, ErrOutOfRange) || re.Min != 20 || re.Max != 60 || re.Time != 65 || re.Group != "f" {
 		t.Fatalf("age 65: %v", err)
 	}
-	if !strings.Contains(err.Error(), "age 65 is outside the reference range 20–60 of group \"f\"") {
+	if !strings.Contains(err.Error(), "time 65 is outside the reference range 20–60 of group \"f\"") {
 		t.Errorf("message: %v", err)
 	}
 	for _, c := range []struct{ age, end float64 }{{65, 60}, {12, 20}, {1e9, 60}} {

@@ -7,7 +7,6 @@ import (
 	"math"
 
 	"veer/functions/chart"
-	"veer/functions/limit"
 	"veer/functions/monitor"
 	"veer/functions/serial"
 )
@@ -25,17 +24,14 @@ const (
 // FirstPass asks EstimateSerial to leave out the workers a first screening
 // pass flags: Chart and Mode as the screening will use them, Target the
 // average time to a false signal in years for that pass (a longer target
-// than the screening's leaves out only clear drifts). Seed, Paths and
-// Stop steer the Monte Carlo limit of the pass (monitor.Calibration); Stop
-// is also asked while the workers are charted, and answering true ends the
-// estimate with limit.ErrStopped.
+// than the screening's leaves out only clear drifts). Seed and Paths steer
+// the Monte Carlo limit of the pass (monitor.Calibration).
 type FirstPass struct {
 	Chart  chart.Spec
 	Mode   monitor.Mode
 	Target float64
 	Seed   uint64
 	Paths  int
-	Stop   func() bool
 }
 
 // DefaultFirstPassTarget is the target of DefaultFirstPass, in years: a
@@ -102,7 +98,10 @@ const MinWorkforce = 20
 // highest persistent levels, so on a site without drifts the estimate of c
 // leans low and false signals come a few percent less often than the
 // target; a long first-pass target keeps that small.
-func EstimateSerial(series []serial.Series, first *FirstPass) (SerialEstimate, error) {
+//
+// A cancelled ctx ends the work (the first pass's simulation and charting
+// included) with ctx's error.
+func EstimateSerial(ctx context.Context, series []serial.Series, first *FirstPass) (SerialEstimate, error) {
 	est := SerialEstimate{Source: SerialFromWorkforce, Workers: len(series)}
 	for i, s := range series {
 		if len(s.Time) != len(s.Z) {
@@ -128,7 +127,7 @@ func EstimateSerial(series []serial.Series, first *FirstPass) (SerialEstimate, e
 	for i := range keep {
 		keep[i] = true
 	}
-	p, loc, sc, err := estimateKept(series, keep)
+	p, loc, sc, err := estimateKept(ctx, series, keep)
 	if err != nil {
 		return est, err
 	}
@@ -142,15 +141,18 @@ func EstimateSerial(series []serial.Series, first *FirstPass) (SerialEstimate, e
 		}
 		set := monitor.Settings{Chart: first.Chart, Mode: first.Mode, Serial: p}
 		lr, err := monitor.Limit(monitor.Calibration{Settings: set, Method: monitor.Normal, Reference: centred,
-			Horizon: monitor.HorizonFollowUp, Seed: first.Seed, Paths: first.Paths, Stop: first.Stop}, first.Target)
+			Horizon: monitor.HorizonFollowUp, Seed: first.Seed, Paths: first.Paths, Stop: func() bool { return ctx.Err() != nil }}, first.Target)
+		if cerr := ctx.Err(); cerr != nil {
+			return est, cerr
+		}
 		if err != nil {
 			return est, fmt.Errorf("first pass: %w", err)
 		}
 		est.FirstPassLimit = lr.H
 		var rows []monitor.Row
 		for i, s := range centred {
-			if first.Stop != nil && i%256 == 255 && first.Stop() {
-				return est, limit.ErrStopped
+			if i%256 == 255 && ctx.Err() != nil {
+				return est, ctx.Err()
 			}
 			rows, err = monitor.Run(set, lr.H, s.Time, s.Z, rows[:0])
 			if err != nil {
@@ -171,7 +173,7 @@ func EstimateSerial(series []serial.Series, first *FirstPass) (SerialEstimate, e
 			return est, fmt.Errorf("the first pass flagged %d workers, leaving %d with two or more exams; at least %d are needed (use a longer first-pass target, or no first pass): %w",
 				len(est.LeftOut), left, MinWorkforce, ErrTooFewWorkers)
 		}
-		if p, loc, sc, err = estimateKept(series, keep); err != nil {
+		if p, loc, sc, err = estimateKept(ctx, series, keep); err != nil {
 			return est, err
 		}
 		est.MeanGap = meanGap(series, keep)
@@ -186,7 +188,7 @@ var ErrTooFewWorkers = errors.New("too few workers with repeated exams")
 
 // estimateKept centres and scales the kept workers' z and estimates the
 // serial model from them.
-func estimateKept(series []serial.Series, keep []bool) (serial.Params, float64, float64, error) {
+func estimateKept(ctx context.Context, series []serial.Series, keep []bool) (serial.Params, float64, float64, error) {
 	var n int
 	var sum, sum2 float64
 	for i, s := range series {
@@ -217,7 +219,7 @@ func estimateKept(series []serial.Series, keep []bool) (serial.Params, float64, 
 			kept = append(kept, serial.Series{Time: s.Time, Z: standardise(s.Z, loc, sc)})
 		}
 	}
-	p, err := serial.Estimate(context.Background(), kept)
+	p, err := serial.Estimate(ctx, kept)
 	if err != nil {
 		return p, loc, sc, fmt.Errorf("serial correlation from the workforce: %w", err)
 	}

@@ -1,16 +1,18 @@
 package published
 
 import (
+	"context"
 	"errors"
 	"math"
 	"math/rand/v2"
 	"testing"
 
 	"veer/functions/chart"
-	"veer/functions/limit"
 	"veer/functions/monitor"
 	"veer/functions/serial"
 )
+
+var ctx = context.Background()
 
 // truthLMS is the known reference the simulated workforces are drawn
 // from: a skewed blood-pressure-like marker whose median rises with age.
@@ -109,7 +111,7 @@ func TestWorkforceSerialRecovery(t *testing.T) {
 		var coverPhi, coverC int
 		var biasPhi, biasC, sePhi, seC float64
 		for s := range c.sites {
-			est, err := EstimateSerial(scored(t, ref, workforce(c.workers, c.par, uint64(100+s), 0, 0)), nil)
+			est, err := EstimateSerial(ctx, scored(t, ref, workforce(c.workers, c.par, uint64(100+s), 0, 0)), nil)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -154,7 +156,7 @@ func TestWorkforceOffset(t *testing.T) {
 			series[i].Z[j] += 0.5
 		}
 	}
-	est, err := EstimateSerial(series, nil)
+	est, err := EstimateSerial(ctx, series, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -216,12 +218,12 @@ func TestWorkforceLeaveOut(t *testing.T) {
 		for s := range sites {
 			ws := workforce(400, par, uint64(70+s), drifting, 0.6)
 			series := scored(t, ref, ws)
-			plain, err := EstimateSerial(series, nil)
+			plain, err := EstimateSerial(ctx, series, nil)
 			if err != nil {
 				t.Fatal(err)
 			}
 			fp := DefaultFirstPass(spec, monitor.Whiten)
-			est, err := EstimateSerial(series, &fp)
+			est, err := EstimateSerial(ctx, series, &fp)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -268,7 +270,7 @@ func TestWorkforceRealisedFalseSignalRate(t *testing.T) {
 	ref := truthTable(t)
 	par := serial.Params{Phi: 0.85, C: 0.7}
 	site := scored(t, ref, workforce(300, par, 4, 0, 0))
-	est, err := EstimateSerial(site, nil)
+	est, err := EstimateSerial(ctx, site, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -288,30 +290,32 @@ func TestWorkforceRealisedFalseSignalRate(t *testing.T) {
 func TestWorkforceBadInput(t *testing.T) {
 	ref := truthTable(t)
 	few := scored(t, ref, workforce(12, serial.Params{Phi: 0.8, C: 0.6}, 9, 0, 0))
-	if _, err := EstimateSerial(few, nil); !errors.Is(err, ErrTooFewWorkers) {
+	if _, err := EstimateSerial(ctx, few, nil); !errors.Is(err, ErrTooFewWorkers) {
 		t.Errorf("12 workers: %v", err)
 	}
 	bad := scored(t, ref, workforce(30, serial.Params{Phi: 0.8, C: 0.6}, 9, 0, 0))
 	bad[3].Z[1] = math.NaN()
-	if _, err := EstimateSerial(bad, nil); err == nil {
+	if _, err := EstimateSerial(ctx, bad, nil); err == nil {
 		t.Errorf("NaN accepted")
 	}
 	bad[3].Z[1], bad[4].Time[1] = 0, bad[4].Time[0]
-	if _, err := EstimateSerial(bad, nil); err == nil {
+	if _, err := EstimateSerial(ctx, bad, nil); err == nil {
 		t.Errorf("repeated time accepted")
 	}
 	// A first pass that flags so many that too few workers remain.
 	ok := scored(t, ref, workforce(25, serial.Params{Phi: 0.8, C: 0.6}, 9, 10, 1.5))
-	_, err := EstimateSerial(ok, &FirstPass{Chart: chart.DefaultSpec(), Mode: monitor.Whiten, Target: 20, Seed: 1})
+	_, err := EstimateSerial(ctx, ok, &FirstPass{Chart: chart.DefaultSpec(), Mode: monitor.Whiten, Target: 20, Seed: 1})
 	if !errors.Is(err, ErrTooFewWorkers) {
 		t.Errorf("strict first pass: %v", err)
 	}
-	// A cancelled first pass.
-	calls := 0
-	stop := func() bool { calls++; return calls > 1 }
+	// A cancelled estimate, with and without a first pass.
 	big := scored(t, ref, workforce(600, serial.Params{Phi: 0.8, C: 0.6}, 9, 0, 0))
-	if _, err := EstimateSerial(big, &FirstPass{Chart: chart.DefaultSpec(), Mode: monitor.Whiten, Target: 50, Seed: 1, Stop: stop}); !errors.Is(err, limit.ErrStopped) {
-		t.Errorf("cancelled: %v", err)
+	cancelled, cancel := context.WithCancel(ctx)
+	cancel()
+	for _, fp := range []*FirstPass{nil, {Chart: chart.DefaultSpec(), Mode: monitor.Whiten, Target: 50, Seed: 1}} {
+		if _, err := EstimateSerial(cancelled, big, fp); !errors.Is(err, context.Canceled) {
+			t.Errorf("cancelled (first pass %v): %v", fp != nil, err)
+		}
 	}
 	// Set by the user.
 	if p, err := SetSerial(0.9, 0.6); err != nil || p.Phi != 0.9 || p.C != 0.6 || p.SEPhi != 0 {
