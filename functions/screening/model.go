@@ -1,6 +1,7 @@
 package screening
 
 import (
+	"bytes"
 	"context"
 	"crypto/sha256"
 	"encoding/hex"
@@ -10,17 +11,23 @@ import (
 	"hash/fnv"
 	"math"
 	"sort"
+	"strconv"
 	"strings"
 
+	"veer/functions/published"
 	"veer/functions/refcurve"
 	"veer/functions/serial"
 	"veer/internal/numeric"
 )
 
-// Format and FormatVersion identify a screening model document.
+// Format and FormatVersion identify a screening model document (fitted
+// curves, and joint models of several markers). A model on a published
+// reference is written as PublishedVersion, so that an older veer refuses
+// it plainly.
 const (
-	Format        = "veer.model"
-	FormatVersion = 1
+	Format           = "veer.model"
+	FormatVersion    = 1
+	PublishedVersion = 2
 )
 
 // DefaultSampleWorkers is how many reference workers' residual sequences a
@@ -46,12 +53,34 @@ type Sequence struct {
 	Z     []float64 `json:"z"`
 }
 
-// Model is a fitted screening model. Build one with Fit or Decode.
+// Where a model's serial correlation comes from (Model.SerialSource).
+const (
+	// SerialFromReference: estimated from the healthy reference cohort the
+	// curves were fitted from.
+	SerialFromReference = "reference"
+	// SerialFromWorkforce: estimated from the screened workforce's own
+	// exams against a published reference (published.EstimateSerial).
+	SerialFromWorkforce = published.SerialFromWorkforce
+	// SerialFromUser: set by the user.
+	SerialFromUser = published.SerialFromUser
+)
+
+// Model is a screening model. Build one with Fit, FitPublished or Decode.
 type Model struct {
-	Name   string
+	Name string
+	// Curves are the fitted reference curves; nil when the model uses a
+	// published reference. Reference gives either behind one interface.
 	Curves *refcurve.Model
+	// Published is the published reference (LMS table or equations), nil
+	// for fitted curves.
+	Published *published.Reference
 	// Serial is the serial correlation of reference residuals within a worker.
 	Serial serial.Params
+	// SerialSource says where Serial comes from: SerialFromReference,
+	// SerialFromWorkforce or SerialFromUser. Workforce describes the
+	// estimate from the workforce (nil otherwise).
+	SerialSource string
+	Workforce    *WorkforceSerial
 	// SerialDiagnostics checks the whitened reference residuals.
 	SerialDiagnostics serial.Diagnostics
 	// MeanGap is the mean years between consecutive exams of reference workers.
@@ -101,10 +130,11 @@ func Fit(ctx context.Context, rows []refcurve.Row, opt FitOptions) (*Model, erro
 		params.SEC = 0
 	}
 	m := &Model{
-		Name:    opt.Name,
-		Curves:  curves,
-		Serial:  params,
-		MeanGap: gapSum / float64(gapN),
+		Name:         opt.Name,
+		Curves:       curves,
+		Serial:       params,
+		SerialSource: SerialFromReference,
+		MeanGap:      gapSum / float64(gapN),
 	}
 	if m.SerialDiagnostics, err = serial.Diagnose(params, series); err != nil {
 		return nil, fmt.Errorf("serial correlation: %v", err)
@@ -128,6 +158,21 @@ func sample(res []refcurve.WorkerSeries, n int) []Sequence {
 	for j, i := range keep {
 		r := res[i]
 		out[j] = Sequence{Group: r.Group, Time: round(r.Time, 1e6), Z: round(r.Z, 1e9)}
+	}
+	return out
+}
+
+// sampleOf is sample for any workers' series.
+func sampleOf(res []workerSeries, n int) []Sequence {
+	ids := make([]string, len(res))
+	for i, r := range res {
+		ids[i] = r.worker
+	}
+	keep := sampleIndex(ids, n)
+	out := make([]Sequence, len(keep))
+	for j, i := range keep {
+		r := res[i]
+		out[j] = Sequence{Group: r.group, Time: round(r.time, 1e6), Z: round(r.z, 1e9)}
 	}
 	return out
 }
@@ -175,29 +220,52 @@ func round(v []float64, scale float64) []float64 {
 	return out
 }
 
-// document is the JSON form of a Model.
+// document is the JSON form of a Model: version 1 (fitted curves) has
+// curves; version 2 (a published reference) has reference, the reference's
+// equations document, and the serial model's source.
 type document struct {
 	Format            string             `json:"format"`
 	Version           int                `json:"version"`
 	Name              string             `json:"name"`
 	Hash              string             `json:"hash"`
-	Curves            json.RawMessage    `json:"curves"`
+	Curves            json.RawMessage    `json:"curves,omitempty"`
+	Reference         json.RawMessage    `json:"reference,omitempty"`
 	Serial            serial.Params      `json:"serial"`
+	SerialSource      string             `json:"serial_source,omitempty"`
+	Workforce         *WorkforceSerial   `json:"workforce,omitempty"`
 	SerialDiagnostics serial.Diagnostics `json:"serial_diagnostics"`
 	MeanGap           float64            `json:"mean_gap"`
 	Sample            []Sequence         `json:"sample"`
 }
 
 func (m *Model) document() (document, error) {
-	curves, err := m.Curves.Encode()
-	if err != nil {
-		return document{}, err
-	}
-	return document{
+	d := document{
 		Format: Format, Version: FormatVersion, Name: m.Name,
-		Curves: curves, Serial: m.Serial, SerialDiagnostics: m.SerialDiagnostics,
+		Serial: m.Serial, SerialDiagnostics: m.SerialDiagnostics,
 		MeanGap: m.MeanGap, Sample: m.Sample,
-	}, nil
+	}
+	var err error
+	if m.Published != nil {
+		d.Version = PublishedVersion
+		d.SerialSource, d.Workforce = m.SerialSource, m.Workforce
+		d.Reference, err = m.Published.Encode()
+		if err == nil {
+			d.Reference, err = compactJSON(d.Reference)
+		}
+	} else {
+		d.Curves, err = m.Curves.Encode()
+	}
+	return d, err
+}
+
+// compactJSON removes insignificant space, so a reference embedded in a
+// model hashes the same however it was laid out.
+func compactJSON(b []byte) ([]byte, error) {
+	var buf bytes.Buffer
+	if err := json.Compact(&buf, b); err != nil {
+		return nil, err
+	}
+	return buf.Bytes(), nil
 }
 
 func contentHash(d document) (string, error) {
@@ -257,8 +325,8 @@ func Decode(data []byte) (*Model, error) {
 	if d.Format != Format {
 		return nil, fmt.Errorf("this is not a veer model file (format %q, want %q)", d.Format, Format)
 	}
-	if d.Version != FormatVersion {
-		return nil, fmt.Errorf("this model file has version %d; this veer reads version %d", d.Version, FormatVersion)
+	if d.Version != FormatVersion && d.Version != PublishedVersion {
+		return nil, fmt.Errorf("this model file has version %d; this veer reads versions %d and %d", d.Version, FormatVersion, PublishedVersion)
 	}
 	want, err := contentHash(d)
 	if err != nil {
@@ -267,11 +335,30 @@ func Decode(data []byte) (*Model, error) {
 	if d.Hash != want {
 		return nil, errors.New("the model file is damaged or was edited by hand (its checksum does not match); fit the model again")
 	}
-	curves, err := refcurve.Decode(d.Curves)
-	if err != nil {
-		return nil, err
+	m := &Model{
+		Name: d.Name, Serial: d.Serial, SerialSource: d.SerialSource, Workforce: d.Workforce,
+		SerialDiagnostics: d.SerialDiagnostics, MeanGap: d.MeanGap, Sample: d.Sample, Hash: d.Hash,
 	}
-	if !(d.MeanGap > 0) {
+	switch d.Version {
+	case FormatVersion:
+		if m.Curves, err = refcurve.Decode(d.Curves); err != nil {
+			return nil, err
+		}
+		m.SerialSource = SerialFromReference
+	default:
+		if m.Published, err = published.DecodeEquations(d.Reference); err != nil {
+			return nil, fmt.Errorf("the model file's published reference: %w", err)
+		}
+		switch m.SerialSource {
+		case SerialFromWorkforce, SerialFromUser:
+		default:
+			return nil, fmt.Errorf("the model file names an unknown source of its serial model (%q)", m.SerialSource)
+		}
+	}
+	if err := m.Serial.Validate(); err != nil {
+		return nil, fmt.Errorf("the model file's serial model: %w", err)
+	}
+	if !(d.MeanGap > 0) && !(m.Published != nil && len(d.Sample) == 0 && d.MeanGap == 0) {
 		return nil, errors.New("the model file has no valid mean gap between exams")
 	}
 	for i, s := range d.Sample {
@@ -279,14 +366,37 @@ func Decode(data []byte) (*Model, error) {
 			return nil, fmt.Errorf("the model file's reference sequence %d is damaged", i+1)
 		}
 	}
-	return &Model{
-		Name: d.Name, Curves: curves, Serial: d.Serial, SerialDiagnostics: d.SerialDiagnostics,
-		MeanGap: d.MeanGap, Sample: d.Sample, Hash: d.Hash,
-	}, nil
+	return m, nil
 }
 
 // Summary is a one-line description for people.
 func (m *Model) Summary() string {
-	return fmt.Sprintf("groups %s; %s; mean gap %.2f years",
-		strings.Join(m.Curves.Groups(), ", "), m.Serial.Finding(), m.MeanGap)
+	ref := m.Reference()
+	s := "groups " + strings.Join(ref.Groups(), ", ")
+	if m.Published != nil {
+		s = "published reference"
+		if info := m.Published.Info(); info.Name != "" {
+			s += " " + strconv.Quote(info.Name)
+		}
+		s += "; groups " + strings.Join(ref.Groups(), ", ")
+		if cv := ref.Covariates(); len(cv) > 0 {
+			s += "; covariates " + strings.Join(cv, ", ")
+		}
+	}
+	s += "; " + m.Serial.Finding() + " (" + SerialSourceText(m.SerialSource) + ")"
+	if m.MeanGap > 0 {
+		s += fmt.Sprintf("; mean gap %.2f years", m.MeanGap)
+	}
+	return s
+}
+
+// SerialSourceText says in words where a serial model comes from.
+func SerialSourceText(source string) string {
+	switch source {
+	case SerialFromWorkforce:
+		return "estimated from the screened workforce's own exams"
+	case SerialFromUser:
+		return "set by the user"
+	}
+	return "estimated from the reference cohort"
 }

@@ -1,6 +1,7 @@
 package screening
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"runtime"
@@ -10,7 +11,6 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 	"veer/functions/chart"
 	"veer/functions/monitor"
-	"veer/functions/refcurve"
 	"veer/functions/serial"
 )
 
@@ -76,13 +76,18 @@ type Exam struct {
 	Time float64
 	// Value is the marker's reading on the user's scale.
 	Value float64
+	// Covariates are the values of the reference's covariates besides age
+	// (Reference().Covariates(), e.g. height), in that order; NaN or absent
+	// for a blank one. Fitted curves have none.
+	Covariates []float64
 }
 
 // Result is the screening of one exam.
 type Result struct {
-	// Mean and SD are the reference curves at the exam's age (transformed
-	// scale); Z is the standardised reading and Centile its centile in the
-	// reference (0–100).
+	// Mean and SD are the reference at the exam's age (Reference.MeanSD:
+	// fitted curves on the model's transformed scale; a published
+	// reference's median M and M·S); Z is the standardised reading and
+	// Centile its centile in the reference (0–100).
 	Mean, SD, Z, Centile float64
 	// Innovation is the Kalman innovation of Z (equal to Z when the serial
 	// model is off).
@@ -99,7 +104,8 @@ type Result struct {
 	Gap float64
 	// FirstSignal is the age of the worker's first signal (NaN if none).
 	FirstSignal float64
-	// InRange says whether the age is inside the reference range.
+	// InRange says whether the age (and any covariate) is inside the
+	// ranges the reference covers.
 	InRange bool
 }
 
@@ -121,26 +127,18 @@ func (m *Model) Screen(exams []Exam, set Settings, h float64) ([]Result, error) 
 	if n == 0 {
 		return nil, ErrNoExams
 	}
-	groups := make([]string, n)
 	times := make([]float64, n)
-	values := make([]float64, n)
 	for i, e := range exams {
-		groups[i], times[i], values[i] = e.Group, e.Time, e.Value
+		times[i] = e.Time
 	}
 	out := make([]Result, n)
-	z := make([]float64, n)
-	if err := m.Curves.ZMany(groups, times, values, set.Extrapolate, z); err != nil {
+	z, err := m.scoreAll(exams, set.Extrapolate)
+	if err != nil {
 		return nil, err
 	}
 	workers := groupByWorker(exams)
-	// Check order and fill per-exam reference values.
-	for _, idx := range workers {
-		for j := 1; j < len(idx); j++ {
-			a, b := idx[j-1], idx[j]
-			if exams[a].Time == exams[b].Time {
-				return nil, &refcurve.DuplicateError{Worker: exams[a].Worker, Time: exams[a].Time, Rows: [2]int{min(a, b) + 1, max(a, b) + 1}}
-			}
-		}
+	if err := checkDuplicates(exams, workers); err != nil {
+		return nil, err
 	}
 	var first error
 	var mu sync.Mutex
@@ -197,15 +195,25 @@ func (m *Model) Screen(exams []Exam, set Settings, h float64) ([]Result, error) 
 		return nil, first
 	}
 	std := distuv.UnitNormal
-	for i := range out {
-		mean, sd, err := m.Curves.At(groups[i], times[i], true)
+	ref := m.Reference()
+	var cov []float64
+	if k := len(ref.Covariates()); k > 0 {
+		cov = make([]float64, k)
+	}
+	for i, e := range exams {
+		for c := range cov {
+			cov[c] = math.NaN()
+			if c < len(e.Covariates) {
+				cov[c] = e.Covariates[c]
+			}
+		}
+		mean, sd, err := ref.MeanSD(e.Group, e.Time, cov, true)
 		if err != nil {
 			return nil, fmt.Errorf("row %d: %w", i+1, err)
 		}
+		out[i].InRange = ref.Within(e.Group, e.Time, cov)
 		out[i].Mean, out[i].SD = mean, sd
 		out[i].Centile = 100 * std.CDF(out[i].Z)
-		lo, hi, _ := m.Curves.Range(groups[i])
-		out[i].InRange = times[i] >= lo && times[i] <= hi
 	}
 	return out, nil
 }
@@ -251,6 +259,8 @@ type LimitOptions struct {
 	// exams per false signal across workers followed as long as the
 	// reference workers were; monitor.HorizonLong is the textbook average
 	// time to a false signal of one worker with an unending exam history.
+	// A model with no exam histories (a published reference with the
+	// serial model set by hand and no exams) defaults to HorizonLong.
 	Horizon monitor.Horizon
 }
 
@@ -272,6 +282,14 @@ func (m *Model) Calibration(set Settings, o LimitOptions) (monitor.Calibration, 
 	}
 	if o.Horizon == "" {
 		o.Horizon = monitor.HorizonFollowUp
+		if len(m.Sample) == 0 {
+			// A model on a published reference with a serial model set by
+			// hand has no exam histories to follow.
+			o.Horizon = monitor.HorizonLong
+		}
+	}
+	if len(m.Sample) == 0 && o.Horizon == monitor.HorizonFollowUp {
+		return monitor.Calibration{}, errors.New("this model holds no workers' exam histories (its serial model was set by hand), so the target cannot count worker-years over real follow-ups: use the long horizon with the planned gap between exams")
 	}
 	ref := make([]serial.Series, len(m.Sample))
 	for i, s := range m.Sample {
