@@ -347,7 +347,7 @@ func TestWebAddinInBrowser(t *testing.T) {
 		// Text in a numeric range names the row and the text.
 		wantCellError(t, hostCall(t, ctx, "VEER.ZSCORE", "demo-sbp", oneCol(40, 41), oneCol[any](120, "abc"), oneCol("tower")), "#VALUE!", "row 2", "abc")
 		// A missing argument.
-		wantCellError(t, hostCall(t, ctx, "VEER.ZSCORE", "demo-sbp", oneCol(40)), "#VALUE!", "3 to 5 arguments")
+		wantCellError(t, hostCall(t, ctx, "VEER.ZSCORE", "demo-sbp", oneCol(40)), "#VALUE!", "3 to 6 arguments")
 		wantCellError(t, hostCall(t, ctx, "VEER.LIMIT"), "#VALUE!", "target")
 		// Blank and error cells give #N/A in their own row only.
 		type cells struct {

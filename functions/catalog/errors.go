@@ -9,6 +9,7 @@ import (
 	"veer/functions/cell"
 	"veer/functions/chart"
 	"veer/functions/limit"
+	"veer/functions/published"
 	"veer/functions/refcurve"
 	"veer/functions/screening"
 	"veer/functions/transform"
@@ -42,6 +43,13 @@ var failureKinds = []struct {
 	{limit.ErrTargetTooShort, cell.OutOfRange},
 	{limit.ErrTargetTooLong, cell.OutOfRange},
 	{screening.ErrNoExams, cell.BadData},
+	// Published references (an age or group outside them is refcurve's
+	// kind, above).
+	{published.ErrMissingCovariate, cell.BlankInput},
+	{published.ErrReading, cell.OutOfDomain},
+	{published.ErrCovariate, cell.OutOfDomain},
+	{published.ErrNoCentile, cell.OutOfDomain},
+	{published.ErrInvalidParams, cell.OutOfDomain},
 }
 
 // failureOf returns the contract failure of err's kind, or fallback.
@@ -84,9 +92,17 @@ func rowError(err error, row int, groupGiven bool) *cell.Error {
 	}
 	var (
 		re *refcurve.RangeError
+		ce *published.RangeError
 		ge *refcurve.GroupError
 	)
 	switch {
+	case errors.As(err, &ce):
+		g := "the reference"
+		if ce.Group != "" {
+			g = fmt.Sprintf("group %q", ce.Group)
+		}
+		return cell.OutsideReference.Errorf(`%s%s %s is outside the range %s to %s the reference of %s covers; add "extrapolate=true" to the options to hold it at the nearest end`,
+			where, ce.Name, cell.FormatNumber(ce.Value), cell.FormatNumber(ce.Min), cell.FormatNumber(ce.Max), g)
 	case errors.As(err, &re):
 		g := "the reference data"
 		if re.Group != "" {

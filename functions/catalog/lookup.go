@@ -64,12 +64,14 @@ type lookupRows struct {
 	ages       []float64
 	values     []float64 // nil: no readings
 	groups     []string
+	cov        [][]float64 // covariates per column, nil without
 	groupGiven bool
 	scalar     bool
 }
 
-func (l lookupRows) answer(at func(group string, age, value float64) (float64, error)) (any, error) {
+func (l lookupRows) answer(at func(group string, age, value float64, cov []float64) (float64, error)) (any, error) {
 	out := make([]any, len(l.ages))
+	var buf []float64
 	for i, t := range l.ages {
 		y := math.NaN()
 		if l.values != nil {
@@ -83,7 +85,8 @@ func (l lookupRows) answer(at func(group string, age, value float64) (float64, e
 			out[i] = cell.BlankInput.Errorf("row %d: the age is blank", i+1)
 			continue
 		}
-		v, err := at(l.groups[i], t, y)
+		buf = covRow(l.cov, i, buf)
+		v, err := at(l.groups[i], t, y, buf)
 		if err != nil {
 			out[i] = rowError(err, rowLabel(len(l.ages), i), l.groupGiven)
 			continue
@@ -95,7 +98,7 @@ func (l lookupRows) answer(at func(group string, age, value float64) (float64, e
 
 // lookupLayout says where a lookup's arguments are: the model is argument
 // 0 and the ages argument 1 in every lookup; values is -1 when the lookup
-// takes no readings.
+// takes no readings. The covariates follow the options.
 type lookupLayout struct {
 	values, groups, options int
 }
@@ -106,6 +109,16 @@ var (
 	centileLayout = lookupLayout{values: -1, groups: 3, options: 4} // VEER.CENTILE (p is argument 2)
 	zLayout       = lookupLayout{values: 2, groups: 3, options: 4}  // VEER.ZSCORE
 )
+
+// lookupParams are the parameters every lookup ends with: groups, options
+// and covariates.
+func lookupParams(groupHelp string) []cell.Param {
+	return []cell.Param{
+		{Name: "groups", Type: cell.TypeRange, Optional: true, Help: groupHelp},
+		{Name: "options", Type: cell.TypeAny, Optional: true, Help: "extrapolate=true to allow ages (and covariates) outside the reference range"},
+		covariatesParam(),
+	}
+}
 
 // lookupArgs reads the model, ages, readings, groups and options of a
 // lookup laid out as at.
@@ -134,6 +147,9 @@ func lookupArgs(ctx context.Context, env cell.Env, a cell.Args, at lookupLayout)
 	}
 	l.groupGiven = !a.Missing(at.groups)
 	l.scalar = isScalarArgs(a, scalarArgs...)
+	if l.cov, err = covariatesArg(a, at.options+1, m, len(l.ages)); err != nil {
+		return l, cell.Options{}, err
+	}
 	o, err := a.Options(at.options)
 	return l, o, err
 }
@@ -144,8 +160,9 @@ func callMean(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		return nil, err
 	}
 	ext := o.Bool(cell.OptionExtrapolate, false)
-	return l.answer(func(g string, t, _ float64) (float64, error) {
-		mean, _, err := l.m.Curves.At(g, t, ext)
+	ref := l.m.Reference()
+	return l.answer(func(g string, t, _ float64, cov []float64) (float64, error) {
+		mean, _, err := ref.MeanSD(g, t, cov, ext)
 		return mean, err
 	})
 }
@@ -156,8 +173,9 @@ func callSD(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		return nil, err
 	}
 	ext := o.Bool(cell.OptionExtrapolate, false)
-	return l.answer(func(g string, t, _ float64) (float64, error) {
-		_, sd, err := l.m.Curves.At(g, t, ext)
+	ref := l.m.Reference()
+	return l.answer(func(g string, t, _ float64, cov []float64) (float64, error) {
+		_, sd, err := ref.MeanSD(g, t, cov, ext)
 		return sd, err
 	})
 }
@@ -196,7 +214,8 @@ func callCentile(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		return nil, cell.OutOfRange.Errorf("the centile p must be between 0 and 100 (percent), not %s", cell.FormatNumber(p))
 	}
 	ext := o.Bool(cell.OptionExtrapolate, false)
-	return l.answer(func(g string, t, _ float64) (float64, error) { return l.m.Curves.Centile(g, t, p, ext) })
+	ref := l.m.Reference()
+	return l.answer(func(g string, t, _ float64, cov []float64) (float64, error) { return ref.Centile(g, t, cov, p, ext) })
 }
 
 func callZ(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
@@ -205,5 +224,6 @@ func callZ(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		return nil, err
 	}
 	ext := o.Bool(cell.OptionExtrapolate, false)
-	return l.answer(func(g string, t, y float64) (float64, error) { return l.m.Curves.Z(g, t, y, ext) })
+	ref := l.m.Reference()
+	return l.answer(func(g string, t, y float64, cov []float64) (float64, error) { return ref.Z(g, t, cov, y, ext) })
 }

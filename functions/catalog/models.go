@@ -164,7 +164,11 @@ func callModels(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 			out = append(out, []any{ref.Name, ref.Handle, ref.Version, cell.AsError(err), nil})
 			continue
 		}
-		out = append(out, []any{ref.Name, ref.Handle, ref.Version, strings.Join(m.Curves.Groups(), ", "), m.Curves.Rows})
+		var rows any
+		if m.Curves != nil {
+			rows = m.Curves.Rows
+		}
+		out = append(out, []any{ref.Name, ref.Handle, ref.Version, strings.Join(m.Reference().Groups(), ", "), rows})
 	}
 	return out, nil
 }

@@ -29,6 +29,7 @@ func ruleFuncs(cache *rules.Cache) []cell.Func {
 				{Name: "values", Type: cell.TypeRange, Help: "the reading at each exam"},
 				{Name: "groups", Type: cell.TypeRange, Optional: true, Help: "group per exam"},
 				{Name: "options", Type: cell.TypeAny, Optional: true, Help: `e.g. "target=20"`},
+				covariatesParam(),
 			},
 			Options: chartOptions, Result: cell.ShapeColumn, Streaming: true, Slow: true,
 			Call: func(ctx context.Context, env cell.Env, a cell.Args) (any, error) { return callRule(ctx, env, a, cache) },

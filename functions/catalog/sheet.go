@@ -112,7 +112,11 @@ func (sh *sheet) screenable(m *screening.Model, ext bool) error {
 	spans := map[string]span{}
 	var last span
 	lastGroup, haveLast := "", false
-	positive := m.Curves.Transform != "" && m.Curves.Transform != "none"
+	ref := m.Reference()
+	// Published references score positive readings only (unless L = 1) and
+	// may need covariates: such rows are checked one by one.
+	positive := m.Published != nil || (m.Curves.Transform != "" && m.Curves.Transform != "none")
+	each := len(ref.Covariates()) > 0
 	kept := sh.exams[:0]
 	rowOf := sh.rowOf[:0]
 	for k, e := range sh.exams {
@@ -120,14 +124,14 @@ func (sh *sheet) screenable(m *screening.Model, ext bool) error {
 		if !haveLast || e.Group != lastGroup {
 			sp, found := spans[e.Group]
 			if !found {
-				lo, hi, err := m.Curves.Range(e.Group)
+				lo, hi, err := ref.Range(e.Group)
 				sp = span{lo, hi, err == nil}
 				spans[e.Group] = sp
 			}
 			last, lastGroup, haveLast = sp, e.Group, true
 		}
-		if !last.ok || (!ext && (e.Time < last.lo || e.Time > last.hi)) || (positive && !(e.Value > 0)) {
-			if _, err := m.Curves.Z(e.Group, e.Time, e.Value, ext); err != nil {
+		if each || !last.ok || (!ext && (e.Time < last.lo || e.Time > last.hi)) || (positive && !(e.Value > 0)) {
+			if _, err := ref.Z(e.Group, e.Time, e.Covariates, e.Value, ext); err != nil {
 				sh.failed[r] = rowError(err, r+1, sh.groupGiven)
 				continue
 			}
@@ -169,7 +173,7 @@ type screened struct {
 
 // sheetLayout says where the arguments of VEER.CHART or VEER.RULE are: the
 // model, the first of the ids, ages, values and groups columns, and the
-// options.
+// options; the covariates follow the options.
 type sheetLayout struct {
 	model, exams, options int
 }
@@ -190,6 +194,15 @@ func screenSheet(ctx context.Context, env cell.Env, a cell.Args, at sheetLayout)
 	sh, err := examsArgs(a, at.exams)
 	if err != nil {
 		return nil, err
+	}
+	cov, err := covariatesArg(a, at.options+1, c.m, sh.n)
+	if err != nil {
+		return nil, err
+	}
+	if cov != nil {
+		for k := range sh.exams {
+			sh.exams[k].Covariates = covRow(cov, sh.rowOf[k], nil)
+		}
 	}
 	if err := c.readOptions(ctx, a, at.options); err != nil {
 		return nil, err
