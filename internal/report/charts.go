@@ -14,14 +14,16 @@ import (
 // centileLevels are the centiles drawn, lowest first.
 var centileLevels = [5]float64{2.5, 10, 50, 90, 97.5}
 
-// centilesOver returns the centile curves of group g at times ts; a centile
-// that cannot be computed (far Box-Cox tails) is NaN.
-func centilesOver(s *Section, g string, ts []float64) [5][]float64 {
+// centilesOver returns the centile curves of group g at times ts, with
+// covariates cov (nil for a reference without covariates); a centile that
+// cannot be computed (far Box-Cox tails) is NaN.
+func centilesOver(s *Section, g string, ts, cov []float64) [5][]float64 {
 	var out [5][]float64
+	ref := s.Model.Reference()
 	for k, p := range centileLevels {
 		out[k] = make([]float64, len(ts))
 		for i, t := range ts {
-			v, err := s.Model.Curves.Centile(g, t, p, true)
+			v, err := ref.Centile(g, t, cov, p, true)
 			if err != nil {
 				v = math.NaN()
 			}
@@ -77,13 +79,14 @@ func drawBands(p *plot, xs []float64, c [5][]float64, lines bool) {
 
 // referenceFigure draws the reference centiles of one group over its age range.
 func referenceFigure(s *Section, g, id string) (figure, error) {
-	lo, hi, err := s.Model.Curves.Range(g)
+	lo, hi, err := s.Model.Reference().Range(g)
 	if err != nil {
 		return figure{}, err
 	}
 	name, _, axis := markerLabel(s)
 	xs := floats.Span(make([]float64, 121), lo, hi)
-	c := centilesOver(s, g, xs)
+	cov := covariatesOf(s, groupRows(s, g))
+	c := centilesOver(s, g, xs, cov)
 	ylo, yhi := minMaxFinite(c[:]...)
 	if !numeric.Finite(ylo) {
 		return figure{}, fmt.Errorf("%s, group %q: the reference centiles cannot be computed", name, g)
@@ -116,6 +119,16 @@ func referenceFigure(s *Section, g, id string) (figure, error) {
 		p.text(p.plotRight+6, ys[k], l, colBlue, "start", 10.5)
 	}
 	svg := p.end()
+	const key = "Solid line: median (50th centile); darker band and dotted lines: 10th–90th centile; lighter band and dashed lines: 2.5th–97.5th centile."
+	if s.Model.Published != nil {
+		at := ""
+		if cov != nil {
+			at = ", drawn at the group's median" + strings.TrimPrefix(covariateText(s, groupRows(s, g)), ",")
+		}
+		caption := fmt.Sprintf("Group %s: reference centiles of %s by age from %s, ages %s–%s%s. %s",
+			groupName(g), axis, referenceName(s.Model), age(lo), age(hi), at, key)
+		return figure{SVG: template.HTML(svg), Caption: caption}, nil
+	}
 	d := s.Model.Curves.Curves
 	var workers, exams int
 	for _, cv := range d {
@@ -123,9 +136,8 @@ func referenceFigure(s *Section, g, id string) (figure, error) {
 			workers, exams = cv.Diagnostics.Workers, cv.Diagnostics.Exams
 		}
 	}
-	caption := fmt.Sprintf("Group %s: reference centiles of %s by age, from %s healthy workers (%s exams), ages %s–%s. "+
-		"Solid line: median (50th centile); darker band and dotted lines: 10th–90th centile; lighter band and dashed lines: 2.5th–97.5th centile.",
-		groupName(g), axis, thousands(workers), thousands(exams), age(lo), age(hi))
+	caption := fmt.Sprintf("Group %s: reference centiles of %s by age, from %s healthy workers (%s exams), ages %s–%s. %s",
+		groupName(g), axis, thousands(workers), thousands(exams), age(lo), age(hi), key)
 	return figure{SVG: template.HTML(svg), Caption: caption}, nil
 }
 
@@ -155,7 +167,7 @@ func workerPanel(s *Section, w *workerView, n int, sectionID string) (panelView,
 	anchor := panelAnchor(sectionID, n)
 
 	// Left: readings against the band, inside the reference range only.
-	rlo, rhi, err := s.Model.Curves.Range(w.group)
+	rlo, rhi, err := s.Model.Reference().Range(w.group)
 	if err != nil {
 		return panelView{}, fmt.Errorf("worker %q: %v", w.id, err)
 	}
@@ -164,7 +176,7 @@ func workerPanel(s *Section, w *workerView, n int, sectionID string) (panelView,
 	var bc [5][]float64
 	if bhi > blo {
 		bx = floats.Span(make([]float64, 41), blo, bhi)
-		bc = centilesOver(s, w.group, bx)
+		bc = centilesOver(s, w.group, bx, covariatesOf(s, w.idx))
 	}
 	ylo, yhi := minMaxFinite(vs, bc[0], bc[4])
 	ypad := 0.06 * (yhi - ylo)
@@ -229,7 +241,7 @@ func workerPanel(s *Section, w *workerView, n int, sectionID string) (panelView,
 	right.frame()
 
 	var cap strings.Builder
-	fmt.Fprintf(&cap, "group %s · %d exams, ages %s–%s", groupName(w.group), len(ts), age(t0), age(t1))
+	fmt.Fprintf(&cap, "group %s%s · %d exams, ages %s–%s", groupName(w.group), covariateText(s, w.idx), len(ts), age(t0), age(t1))
 	if !math.IsNaN(w.firstSignal) {
 		if w.firstSignal == t0 {
 			fmt.Fprintf(&cap, " · first chart signal at age %s, at the first exam", age(w.firstSignal))

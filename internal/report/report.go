@@ -105,8 +105,8 @@ func (d Data) validate() error {
 			name = "section " + strconv.Itoa(k+1)
 		}
 		switch {
-		case s.Model == nil || s.Model.Curves == nil:
-			return fmt.Errorf("%s: the report needs the fitted model", name)
+		case s.Model == nil || (s.Model.Curves == nil && s.Model.Published == nil):
+			return fmt.Errorf("%s: the report needs the screening model (a fitted model or one on a published reference)", name)
 		case len(s.Exams) != len(s.Results):
 			return fmt.Errorf("%s: %d exams but %d results; give the results of screening these exams", name, len(s.Exams), len(s.Results))
 		case !(s.Limit.H > 0) || math.IsInf(s.Limit.H, 0):
@@ -166,6 +166,7 @@ type sectionView struct {
 	LimitRows     []kv
 	RuleRows      []kv
 	RefFigures    []figure
+	Assumptions   []string
 	Diag          []groupDiag
 	ModelDiag     []kv
 	Warnings      []string
@@ -324,7 +325,7 @@ func buildSection(s *Section, k, maxPanels int, all bool) (*sectionView, error) 
 	sv.LimitText, sv.LimitRows = describeLimit(s)
 
 	// Reference curves and diagnostics per group.
-	groups := s.Model.Curves.Groups()
+	groups := s.Model.Reference().Groups()
 	for gi, g := range groups {
 		fig, err := referenceFigure(s, g, sv.ID+"-ref"+strconv.Itoa(gi+1))
 		if err != nil {
@@ -332,7 +333,12 @@ func buildSection(s *Section, k, maxPanels int, all bool) (*sectionView, error) 
 		}
 		sv.RefFigures = append(sv.RefFigures, fig)
 	}
-	sv.Diag, sv.ModelDiag, sv.Warnings = diagnostics(s.Model)
+	if s.Model.Published != nil {
+		sv.Diag, sv.ModelDiag, sv.Warnings = publishedDiagnostics(s.Model)
+		sv.Assumptions = assumptions(s.Model)
+	} else {
+		sv.Diag, sv.ModelDiag, sv.Warnings = diagnostics(s.Model)
+	}
 
 	// Panels, in order of first flag.
 	var fl []*workerView
@@ -374,7 +380,7 @@ func buildSection(s *Section, k, maxPanels int, all bool) (*sectionView, error) 
 		}
 		first, last := s.Exams[w.idx[0]].Time, s.Exams[w.idx[len(w.idx)-1]].Time
 		row := summaryRow{
-			Worker: w.id, Group: groupName(w.group), Exams: strconv.Itoa(len(w.idx)),
+			Worker: w.id, Group: groupName(w.group) + covariateText(s, w.idx), Exams: strconv.Itoa(len(w.idx)),
 			FirstExam: age(first), LastExam: age(last), FirstSignal: "—", Rules: "—",
 			Flagged: w.flagged(), Panel: "—",
 		}
@@ -453,6 +459,15 @@ func describeChart(set screening.Settings, m *screening.Model) string {
 	default:
 		serial = fmt.Sprintf("%s. The standardised readings are charted directly; the limit allows for the correlation between "+
 			"a worker's successive exams (%s).", serialFinding(m), serialModel(m))
+	}
+	if m.Published != nil {
+		std := "Each reading is standardised against the published reference of the worker's group at the worker's age"
+		if cv := m.Reference().Covariates(); len(cv) > 0 {
+			std += " and " + strings.Join(cv, ", ")
+		}
+		std += " by the LMS method (Cole & Green 1992): z = ((reading / M)^L − 1) / (L·S), with L, M (the median) and S from the reference; " +
+			"z is the reading's standard normal deviate, so the reading's centile is Φ(z)"
+		return std + ". The chart is " + what + ". " + serial
 	}
 	return "Each reading is standardised against the reference of the worker's group at the worker's age: " +
 		"z = (reading − reference mean) / reference SD" + transformNote(m) + ". The chart is " + what + ". " + serial
@@ -552,6 +567,9 @@ func describeLimit(s *Section) ([]string, []kv) {
 	}
 	if l.MeanGap > 0 {
 		rows = append(rows, kv{"Mean time between exams used", num(l.MeanGap, 3) + " years"})
+	}
+	if s.Model.Published != nil && l.Paths > 0 {
+		rows = append(rows, kv{"Exam histories simulated from", "the screened workforce's own exam gaps and follow-up (there is no reference cohort)"})
 	}
 	switch {
 	case l.Exact:

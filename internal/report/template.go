@@ -94,6 +94,10 @@ reading crosses a fixed cut-off, and it can also flag healthy workers by chance 
 <h3>Reference curves</h3>
 {{range .RefFigures}}<figure>{{.SVG}}<figcaption>{{.Caption}}</figcaption></figure>
 {{end}}
+{{if .Assumptions}}<h3>Assumptions to review</h3>
+<ul class="warn">
+{{range .Assumptions}}<li>{{.}}</li>
+{{end}}</ul>{{end}}
 <h3>Model diagnostics</h3>
 <div class="diag">
 {{range .Diag}}<div><table class="kv"><thead><tr><th colspan="2">group {{.Group}}</th></tr></thead><tbody>
