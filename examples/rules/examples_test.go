@@ -74,6 +74,14 @@ func expected() map[string][]string {
 		"next_step": {"", "", "", "", "", "", "", "review: signal older than a year", "check: age outside the reference"},
 		// 100 * chart / 4
 		"percent_of_limit": {"0", "0", "5", "12.5", "87.5", "107.5", "140", "200", "50"},
+		// Trade thresholds. Centile < 5 means z < -1.645: A2 (z -2.5).
+		"below_lln": {F, T, F, F, F, F, F, F, F},
+		// value = 120 + 15 z: A's first 121.5, 85% of it 103.3; A2 is 82.5.
+		// B's first 135, 85% is 114.75, never passed; C has one exam.
+		"fev1_fall_15pct": {F, T, F, F, F, F, F, F, F},
+		// value >= 140: B2 153, B3 159, B4 147, B5 163.5, C1 157.5
+		// (A1 121.5, A2 82.5, A3 127.5, B1 135 are below).
+		"sbp_at_or_above_140": {F, F, F, F, T, T, T, T, T},
 	}
 }
 
