@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"flag"
 	"fmt"
 	"os"
 	"strconv"
@@ -120,10 +121,12 @@ func (p *progress) finish() {
 }
 
 func runFit(e *env, args []string) error {
-	fs := newFlags(e, "fit", "--in F.csv --id C --time C --value C [--group C] --name N --out M.json")
+	fs := newFlags(e, "fit", "--in F.csv --id C --time C --value C [--group C] --name N --out M.json\n       veer fit (--lms-table T.csv | --equations E.json) [--in F.csv --id C --time C --value C [--group C] [--covariate NAME=COL]] [--serial-phi P --serial-c C] --name N --out M.json")
 	var cols examColumns
 	cols.register(fs.StringVar)
-	in := fs.String("in", "", "CSV file of healthy reference workers' exams, one row per exam (required)")
+	in := fs.String("in", "", "CSV file of healthy reference workers' exams, one row per exam (required); with a published reference, the exams of the workforce to be screened")
+	var pub publishedFlags
+	pub.register(fs)
 	name := fs.String("name", "", "name of the model, e.g. sbp (required)")
 	out := fs.String("out", "", "file to write the model to (required)")
 	tr := fs.String("transform", string(transform.None), "value transform: none, log or boxcox (lambda by maximum likelihood); with several markers one for all or one per marker, e.g. none,log,none")
@@ -131,6 +134,21 @@ func runFit(e *env, args []string) error {
 	minWorkers := fs.Int("min-workers", 0, "fewest workers a group needs (0: the default)")
 	if err := parseFlags(fs, args); err != nil {
 		return err
+	}
+	set := map[string]bool{}
+	fs.Visit(func(f *flag.Flag) { set[f.Name] = true })
+	if pub.wanted() {
+		for _, n := range []string{"transform", "bandwidth", "min-workers"} {
+			if set[n] {
+				return usagef("--%s is for curves fitted from a reference cohort; a published reference gives its own", n)
+			}
+		}
+		return runFitPublished(e, &pub, *in, *name, *out, cols)
+	}
+	for _, n := range []string{"interpolate", "serial-phi", "serial-c", "first-pass-target", "side", "covariate", "extrapolate"} {
+		if set[n] {
+			return usagef("--%s goes with a published reference (--lms-table or --equations)", n)
+		}
 	}
 	if err := required("in", *in, "name", *name, "out", *out); err != nil {
 		return err
@@ -228,12 +246,14 @@ func parseList(flagName, s string) ([]float64, error) {
 }
 
 func runCurve(e *env, args []string) error {
-	fs := newFlags(e, "curve", "--model M.json --at 30,40,50 [--group G] [--centiles 2.5,97.5]")
+	fs := newFlags(e, "curve", "--model M.json --at 30,40,50 [--group G] [--centiles 2.5,97.5] [--covariate height=170]")
 	model := fs.String("model", "", "model file written by veer fit (required)")
 	at := fs.String("at", "", "ages in years, comma-separated (required)")
 	group := fs.String("group", "", "reference group (default: every group of the model)")
 	centiles := fs.String("centiles", "", "centiles to add as columns, in percent, comma-separated, e.g. 2.5,97.5")
 	extrap := fs.Bool("extrapolate", false, "allow ages outside the reference range (the curve is held at its end)")
+	var covs covariateList
+	fs.Var(&covs, "covariate", "for a model on reference equations: NAME=VALUE, the covariate value to look the reference up at, e.g. height=170 (repeatable)")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -259,7 +279,20 @@ func runCurve(e *env, args []string) error {
 	if err != nil {
 		return err
 	}
-	groups := m.Curves.Groups()
+	ref := m.Reference()
+	covText, err := covs.match(ref.Covariates())
+	if err != nil {
+		return err
+	}
+	var cov []float64
+	for k, t := range covText {
+		v, err := strconv.ParseFloat(t, 64)
+		if err != nil {
+			return usagef("--covariate %s=%s: give a number", ref.Covariates()[k], t)
+		}
+		cov = append(cov, v)
+	}
+	groups := ref.Groups()
 	if *group != "" {
 		groups = []string{*group}
 	}
@@ -276,7 +309,7 @@ func runCurve(e *env, args []string) error {
 	}
 	for _, g := range groups {
 		for _, t := range ages {
-			mean, sd, err := m.Curves.At(g, t, *extrap)
+			mean, sd, err := ref.MeanSD(g, t, cov, *extrap)
 			if err != nil {
 				return err
 			}
@@ -285,7 +318,7 @@ func runCurve(e *env, args []string) error {
 			w.Float(mean, 6)
 			w.Float(sd, 6)
 			for _, c := range cents {
-				v, err := m.Curves.Centile(g, t, c, *extrap)
+				v, err := ref.Centile(g, t, cov, c, *extrap)
 				if err != nil {
 					return err
 				}

@@ -23,15 +23,16 @@ import (
 
 // screenFlags are the inputs of screen and report.
 type screenFlags struct {
-	cols      examColumns
-	chart     chartFlags
-	model     string
-	in, sheet string
-	target    float64
-	limit     float64
-	extrap    bool
-	rules     ruleList
-	rulesFile string
+	cols       examColumns
+	chart      chartFlags
+	model      string
+	in, sheet  string
+	target     float64
+	limit      float64
+	extrap     bool
+	rules      ruleList
+	rulesFile  string
+	covariates covariateList
 }
 
 func (f *screenFlags) register(fs *flag.FlagSet) {
@@ -45,6 +46,7 @@ func (f *screenFlags) register(fs *flag.FlagSet) {
 	fs.BoolVar(&f.extrap, "extrapolate", false, "allow exams at ages outside the reference range (curves held at their ends)")
 	fs.Var(&f.rules, "rule", "alert rule NAME=EXPRESSION in CEL, adds a column NAME (repeatable), e.g. --rule 'high=chart > limit || centile > 99.0'")
 	fs.StringVar(&f.rulesFile, "rules", "", "file of alert rules, one 'name = expression' per line, each adds a column")
+	fs.Var(&f.covariates, "covariate", "for a model on reference equations: NAME=COLUMN, the column holding a covariate the equations use, e.g. height=height (repeatable)")
 }
 
 // screenJob is a screened sheet with everything needed to write it out.
@@ -107,11 +109,19 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 	if err != nil {
 		return nil, err
 	}
+	covCols, err := f.covariates.match(m.Reference().Covariates())
+	if err != nil {
+		return nil, err
+	}
 	j := &screenJob{model: m, settings: s, ruleSet: rs, isXLSX: isXLSX(f.in), target: f.target}
 	if j.input, err = readInput(f.in, f.sheet, "--sheet"); err != nil {
 		return nil, err
 	}
 	rows, err := readRows(j.input, f.in, f.cols)
+	if err != nil {
+		return nil, err
+	}
+	cov, err := readCovariates(j.input, f.in, covCols)
 	if err != nil {
 		return nil, err
 	}
@@ -130,9 +140,12 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 	j.exams = make([]screening.Exam, len(rows))
 	for i, r := range rows {
 		j.exams[i] = screening.Exam{Worker: r.Worker, Group: r.Group, Time: r.Time, Value: r.Value}
+		if cov != nil {
+			j.exams[i].Covariates = cov[i]
+		}
 	}
 	if j.results, err = m.Screen(j.exams, s, h); err != nil {
-		return nil, fmt.Errorf("%s: %v", f.in, err)
+		return nil, rowsError(err, f.in, f.cols, covCols, m.Reference().Covariates())
 	}
 	if j.ruleNames, j.ruleCols, err = evalRules(context.Background(), rs, j.exams, j.results, h); err != nil {
 		return nil, err
