@@ -91,14 +91,15 @@ func tableFromBytes(b []byte, name string) (*table.Table, error) {
 }
 
 func runDemo(e *env, args []string) error {
-	fs := newFlags(e, "demo", "[--out DIR] [--target YEARS]")
+	fs := newFlags(e, "demo", "[--out DIR] [--target YEARS] [--small-site-target YEARS]")
 	out := fs.String("out", "veer-demo", "folder to write the models, screened CSV files and the report to")
 	target := fs.Float64("target", 20, "average years to a false signal for a healthy worker")
+	smallTarget := fs.Float64("small-site-target", DefaultSmallSiteTarget, "the same for the small site (60 workers, no reference cohort), written to the folder small-site")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
-	if !(*target > 0) {
-		return usagef("--target must be a positive number of years")
+	if !(*target > 0) || !(*smallTarget > 0) {
+		return usagef("--target and --small-site-target must be positive numbers of years")
 	}
 	start := time.Now()
 	if err := os.MkdirAll(*out, 0o755); err != nil {
@@ -140,6 +141,9 @@ func runDemo(e *env, args []string) error {
 	}
 	printDemoSummary(e.stdout, all, *target)
 	if err := writeDemoExtras(e, *out, all, *target); err != nil {
+		return err
+	}
+	if err := runSmallSiteDemo(e, filepath.Join(*out, "small-site"), *smallTarget); err != nil {
 		return err
 	}
 	fmt.Fprintf(e.stderr, "\nwritten to %s/ in %.1f s\n", *out, time.Since(start).Seconds())
