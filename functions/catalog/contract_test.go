@@ -8,6 +8,7 @@ import (
 
 	"veer/functions/cell"
 	"veer/functions/chart"
+	"veer/functions/joint"
 	"veer/functions/monitor"
 	"veer/functions/screening"
 	"veer/functions/transform"
@@ -142,12 +143,15 @@ func TestHelpStatesTheContract(t *testing.T) {
 // a cell accepts exactly what the engine does.
 func TestOptionChoicesAreTheTypedSets(t *testing.T) {
 	want := map[string][]string{
-		cell.OptionChart:     names(chart.Kinds),
+		cell.OptionChart:     names(joint.Kinds), // chart.Kinds and the kinds over several markers
 		cell.OptionSide:      names(chart.Sides),
 		cell.OptionTransform: names(transform.Names),
 		cell.OptionMethod:    names([]monitor.Method{monitor.Normal, monitor.Bootstrap}),
 		cell.OptionHorizon:   names([]monitor.Horizon{monitor.HorizonFollowUp, monitor.HorizonLong}),
 		cell.OptionSerial:    append(names([]screening.Serial{screening.SerialWhiten, screening.SerialDirect, screening.SerialOff}), "on"),
+	}
+	if !slices.Equal(names(joint.Kinds)[:len(chart.Kinds)], names(chart.Kinds)) {
+		t.Errorf("the kinds over several markers %q do not start with one marker's %q", joint.Kinds, chart.Kinds)
 	}
 	for name, choices := range want {
 		o, ok := cell.LookupOption(name)

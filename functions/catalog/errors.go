@@ -8,6 +8,7 @@ import (
 
 	"veer/functions/cell"
 	"veer/functions/chart"
+	"veer/functions/joint"
 	"veer/functions/limit"
 	"veer/functions/published"
 	"veer/functions/refcurve"
@@ -50,6 +51,11 @@ var failureKinds = []struct {
 	{published.ErrCovariate, cell.OutOfDomain},
 	{published.ErrNoCentile, cell.OutOfDomain},
 	{published.ErrInvalidParams, cell.OutOfDomain},
+	{screening.ErrSeveralMarkers, cell.WrongArgument},
+	{joint.ErrSides, cell.WrongArgument},
+	{joint.ErrDuplicateMarker, cell.WrongArgument},
+	{joint.ErrNotPositiveDefinite, cell.BadData},
+	{joint.ErrTooFewReadings, cell.BadData},
 }
 
 // failureOf returns the contract failure of err's kind, or fallback.

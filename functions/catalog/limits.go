@@ -11,13 +11,17 @@ import (
 
 	"veer/functions/cell"
 	"veer/functions/chart"
+	"veer/functions/joint"
 	"veer/functions/monitor"
 	"veer/functions/screening"
 )
 
 // chartSettings reads the chart options shared by CHART, RULE, LIMIT and
 // DELAY.
-func chartSettings(o cell.Options) (screening.Settings, screening.LimitOptions, error) {
+//
+// With joint, the chart itself is not checked (the chart of several
+// markers is read by jointSettings).
+func chartSettings(o cell.Options, joint bool) (screening.Settings, screening.LimitOptions, error) {
 	d := chart.DefaultSpec()
 	s := screening.Settings{
 		Chart: chart.Spec{
@@ -35,7 +39,7 @@ func chartSettings(o cell.Options) (screening.Settings, screening.LimitOptions, 
 
 		Extrapolate: o.Bool(cell.OptionExtrapolate, false),
 	}
-	if err := s.Chart.Validate(); err != nil {
+	if err := s.Chart.Validate(); err != nil && !joint {
 		return s, screening.LimitOptions{}, cellError(err, cell.OutOfRange)
 	}
 	seed := o.Number(cell.OptionSeed, screening.DefaultSeed)
@@ -70,6 +74,11 @@ type chartCall struct {
 	opts cell.Options
 	set  screening.Settings
 	lim  screening.LimitOptions
+	// Several markers: the model (nil without one), how many markers, and
+	// the joint chart settings.
+	j       *screening.Joint
+	markers int
+	jset    screening.JointSettings
 }
 
 // newChartCall reads the optional model (argument model) and the options
@@ -87,10 +96,13 @@ func newChartCall(ctx context.Context, env cell.Env, a cell.Args, model, options
 	return c, nil
 }
 
-// readModel reads the model argument i.
+// readModel reads the model argument i (of one marker or several).
 func (c *chartCall) readModel(ctx context.Context, a cell.Args, i int) error {
 	var err error
-	c.m, c.ref, err = modelArg(ctx, c.env, a, i)
+	c.m, c.j, c.ref, err = anyModelArg(c.env, a, i)
+	if c.j != nil {
+		c.markers = len(c.j.Markers)
+	}
 	return err
 }
 
@@ -100,7 +112,30 @@ func (c *chartCall) readOptions(ctx context.Context, a cell.Args, i int) error {
 	if c.opts, err = a.Options(i); err != nil {
 		return err
 	}
-	if c.set, c.lim, err = chartSettings(c.opts); err != nil {
+	if c.j == nil && c.m == nil && c.opts.Has(cell.OptionMarkers) {
+		names := splitOption(c.opts.Text(cell.OptionMarkers, ""))
+		c.markers = len(names)
+		if len(names) == 1 {
+			n, err := strconv.Atoi(names[0])
+			if err != nil || n < 1 || n > joint.MaxMarkers {
+				return cell.OutOfRange.Errorf("markers must be a number of markers from 1 to %d, or their names", joint.MaxMarkers)
+			}
+			c.markers = n
+		}
+	} else if c.opts.Has(cell.OptionMarkers) {
+		return cell.WrongArgument.Errorf("the markers option goes without a model (a model knows its markers)")
+	}
+	if c.markers > 0 {
+		// Settings shared with one marker (method, gap, seed, ...) are read
+		// as for one marker, with a chart of one marker standing in.
+		o := c.opts
+		if c.jset, err = jointSettings(o, c.markers); err != nil {
+			return err
+		}
+		if _, c.lim, err = chartSettings(o, true); err != nil {
+			return err
+		}
+	} else if c.set, c.lim, err = chartSettings(c.opts, false); err != nil {
 		return err
 	}
 	c.lim.Stop = func() bool { return ctx.Err() != nil }
@@ -132,7 +167,11 @@ func (c *chartCall) resolveLimit() (float64, error) {
 		}
 		return h, nil
 	case hasT:
-		r, err := c.limit(c.opts.Number(cell.OptionTarget, 0))
+		limit := c.limit
+		if c.markers > 0 {
+			limit = c.jointLimit
+		}
+		r, err := limit(c.opts.Number(cell.OptionTarget, 0))
 		if err != nil {
 			return 0, err
 		}
@@ -217,7 +256,11 @@ func callLimit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if c.opts.Has(cell.OptionTarget) || c.opts.Has(cell.OptionLimit) {
 		return nil, cell.WrongArgument.Errorf("the target is the first argument; do not give target or limit as options")
 	}
-	r, err := c.limit(target)
+	limit := c.limit
+	if c.markers > 0 {
+		limit = c.jointLimit
+	}
+	r, err := limit(target)
 	if err != nil {
 		return nil, err
 	}
@@ -225,7 +268,7 @@ func callLimit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 }
 
 func callDelay(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
-	shift, err := a.Number(0)
+	shifts, err := a.Numbers(0, cell.PolicyError)
 	if err != nil {
 		return nil, err
 	}
@@ -241,5 +284,14 @@ func callDelay(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if onset < 0 {
 		return nil, cell.OutOfRange.Errorf("onset must not be negative")
 	}
-	return c.delay(h, shift, onset)
+	if c.markers > 0 {
+		if len(shifts) != c.markers {
+			return nil, cell.WrongArgument.Errorf("%d markers need %d shifts, one per marker in order, got %d", c.markers, c.markers, len(shifts))
+		}
+		return c.jointDelay(h, shifts, onset)
+	}
+	if len(shifts) != 1 {
+		return nil, cell.WrongArgument.Errorf("shift is one number for a model of one marker, got %d", len(shifts))
+	}
+	return c.delay(h, shifts[0], onset)
 }

@@ -13,27 +13,19 @@ import (
 	"veer/functions/transform"
 )
 
-// loadModel returns the decoded model a cell names, decoding each stored
-// version once.
+// loadModel returns the decoded model of one marker a cell names, decoding
+// each stored version once; "name/marker" is one marker of a model of
+// several.
 func loadModel(env cell.Env, name string) (*screening.Model, cell.ModelRef, error) {
-	ref, err := env.Model(name)
+	m, j, ref, err := loadAny(env, name)
 	if err != nil {
 		return nil, ref, err
 	}
-	if isRuleSet(ref.Doc) {
-		return nil, ref, cell.UnknownModel.Errorf("%s is a rule set saved with VEER.SAVERULES, not a model; give a model fitted with VEER.FIT", ref.Handle)
+	if j != nil {
+		return nil, ref, cell.WrongArgument.Errorf("model %s holds several markers (%s); here give one of them as %s/%s, or use it with VEER.CHART, VEER.LIMIT or VEER.DELAY",
+			ref.Handle, strings.Join(j.MarkerNames(), ", "), ref.Name, j.MarkerNames()[0])
 	}
-	v, err := env.Once("veer.model:"+ref.Handle+":"+ref.SHA256, func() (any, error) {
-		m, err := screening.Decode(ref.Doc)
-		if err != nil {
-			return nil, cell.UnknownModel.Errorf("model %s cannot be read: %v", ref.Handle, err)
-		}
-		return m, nil
-	})
-	if err != nil {
-		return nil, ref, err
-	}
-	return v.(*screening.Model), ref, nil
+	return m, ref, nil
 }
 
 func modelArg(ctx context.Context, env cell.Env, a cell.Args, i int) (*screening.Model, cell.ModelRef, error) {
@@ -79,6 +71,9 @@ func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if name, err = checkName("model", name); err != nil {
 		return nil, err
 	}
+	if _, _, cols, _ := a.Matrix(3, cell.PolicyMissing); cols > 1 {
+		return fitJoint(ctx, env, a, name)
+	}
 	sh, err := examsArgs(a, 1)
 	if err != nil {
 		return nil, err
@@ -121,9 +116,12 @@ func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 }
 
 func callInfo(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
-	m, ref, err := modelArg(ctx, env, a, 0)
+	m, j, ref, err := anyModelArg(env, a, 0)
 	if err != nil {
 		return nil, err
+	}
+	if j != nil {
+		return jointInfo(j, ref), nil
 	}
 	items := m.Items()
 	out := make([][]any, 0, len(items)+1)
@@ -159,9 +157,13 @@ func callModels(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 			out = append(out, []any{ref.Name, ref.Handle, ref.Version, "rule set", nil})
 			continue
 		}
-		m, _, err := loadModel(env, ref.Handle)
+		m, j, _, err := loadAny(env, ref.Handle)
 		if err != nil {
 			out = append(out, []any{ref.Name, ref.Handle, ref.Version, cell.AsError(err), nil})
+			continue
+		}
+		if j != nil {
+			out = append(out, []any{ref.Name, ref.Handle, ref.Version, "markers " + strings.Join(j.MarkerNames(), ", "), j.Markers[0].Curves.Rows})
 			continue
 		}
 		var rows any

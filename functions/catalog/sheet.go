@@ -191,6 +191,10 @@ func screenSheet(ctx context.Context, env cell.Env, a cell.Args, at sheetLayout)
 	if err := c.readModel(ctx, a, at.model); err != nil {
 		return nil, err
 	}
+	if c.j != nil {
+		return nil, cell.WrongArgument.Errorf("model %s holds several markers (%s); rules over several markers run in veer screen, and here on one of them as %s/%s",
+			c.ref.Handle, strings.Join(c.j.MarkerNames(), ", "), c.ref.Name, c.j.MarkerNames()[0])
+	}
 	sh, err := examsArgs(a, at.exams)
 	if err != nil {
 		return nil, err
@@ -222,6 +226,12 @@ func screenSheet(ctx context.Context, env cell.Env, a cell.Args, at sheetLayout)
 }
 
 func callChart(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
+	if c, ok, err := jointChartCall(ctx, env, a, chartLayout); ok || err != nil {
+		if err != nil {
+			return nil, err
+		}
+		return callJointChart(ctx, c, a)
+	}
 	sc, err := screenSheet(ctx, env, a, chartLayout)
 	if err != nil {
 		return nil, err

@@ -294,6 +294,41 @@ func (a Args) Numbers(i int, p Policy) ([]float64, error) {
 	return out, nil
 }
 
+// Matrix returns argument i, a range of one or more columns, as numbers
+// row by row (cols numbers per row) under policy p, which must keep rows
+// aligned (PolicyError or PolicyMissing). An absent argument gives no rows.
+func (a Args) Matrix(i int, p Policy) (vals []float64, rows, cols int, err error) {
+	if p == PolicySkip {
+		panic("cell.Args.Matrix: PolicySkip would misalign the rows")
+	}
+	v := a.Value(i)
+	if v.IsAbsent() {
+		return nil, 0, 0, nil
+	}
+	rows, cols = v.Dims()
+	vals = make([]float64, 0, rows*cols)
+	for k, c := range v.Flat() {
+		switch c.Kind {
+		case KindNumber:
+			vals = append(vals, c.Num)
+			continue
+		case KindBlank:
+			if p == PolicyMissing {
+				vals = append(vals, math.NaN())
+				continue
+			}
+		case KindError:
+			if p == PolicyMissing {
+				vals = append(vals, math.NaN())
+				continue
+			}
+			return nil, rows, cols, Errorf(Code(c.Str), "%s, %s: the error %s", a.name(i), a.pos(rows, cols, k), c.Str)
+		}
+		return nil, rows, cols, WrongArgument.Errorf("%s, %s: expected a number; got %s%s", a.name(i), a.pos(rows, cols, k), c, policyHint(p))
+	}
+	return vals, rows, cols, nil
+}
+
 // Texts returns argument i, a column or row, as texts under policy p
 // (numbers formatted as text, as ids often are numbers).
 func (a Args) Texts(i int, p Policy) ([]string, error) {

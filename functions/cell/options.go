@@ -1,6 +1,7 @@
 package cell
 
 import (
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -34,6 +35,7 @@ const (
 	OptionMinWorkers  = "minworkers"
 	OptionOnset       = "onset"
 	OptionHorizon     = "horizon"
+	OptionMarkers     = "markers"
 )
 
 // Option declares one named option: its value type, allowed choices and help.
@@ -41,7 +43,10 @@ type Option struct {
 	Name    string
 	Type    Type // TypeNumber, TypeText, TypeBool or TypeChoice
 	Choices []string
-	Help    string
+	// List, for TypeChoice: the value may also be a comma-separated list
+	// of choices (one per marker of several), e.g. "up,up,down".
+	List bool
+	Help string
 }
 
 // OptionInfo is the JSON form of an Option in the function listing.
@@ -49,18 +54,19 @@ type OptionInfo struct {
 	Name    string   `json:"name"`
 	Type    Type     `json:"type"`
 	Choices []string `json:"choices,omitempty"`
+	List    bool     `json:"list,omitempty"`
 	Help    string   `json:"help"`
 }
 
 func (o Option) info() OptionInfo {
-	return OptionInfo{Name: o.Name, Type: o.Type, Choices: append([]string(nil), o.Choices...), Help: o.Help}
+	return OptionInfo{Name: o.Name, Type: o.Type, Choices: append([]string(nil), o.Choices...), List: o.List, Help: o.Help}
 }
 
 // sharedOptions is the one table of option spellings. It is never modified.
 var sharedOptions = []Option{
 	{Name: OptionAllowance, Type: TypeNumber, Help: "CUSUM allowance (reference value) k, in standard deviations; common practice is half the shift to be detected"},
-	{Name: OptionSide, Type: TypeChoice, Choices: []string{"up", "down", "both"}, Help: "which drift to watch: up, down or both"},
-	{Name: OptionChart, Type: TypeChoice, Choices: []string{"cusum", "ewma"}, Help: "chart statistic: cusum or ewma"},
+	{Name: OptionSide, Type: TypeChoice, Choices: []string{"up", "down", "both"}, List: true, Help: "which drift to watch: up, down or both; with several markers one per marker, in the order of the value columns, e.g. up,up,down"},
+	{Name: OptionChart, Type: TypeChoice, Choices: []string{"cusum", "ewma", "mewma", "mcusum", "any"}, Help: "chart statistic: cusum or ewma; with several markers also mewma or mcusum (every direction) or any (each marker's own CUSUM, one common limit)"},
 	{Name: OptionLambda, Type: TypeNumber, Help: "EWMA weight per unit of time, in (0, 1]"},
 	{Name: OptionSerial, Type: TypeChoice, Choices: []string{"whiten", "direct", "off", "on"}, Help: "how the correlation of a worker's readings is handled: whiten (the default: chart each reading against the worker's own predicted level, the Kalman-filter innovation; on means whiten), direct (chart z, the limit carries the correlation) or off (ignore it)"},
 	{Name: OptionTarget, Type: TypeNumber, Help: "target average time to a false signal for a healthy worker, in years"},
@@ -71,7 +77,7 @@ var sharedOptions = []Option{
 	{Name: OptionShift, Type: TypeNumber, Help: "size of a sustained shift, in standard deviations of the readings"},
 	{Name: OptionSeed, Type: TypeNumber, Help: "random seed (a whole number); the same seed gives the same result"},
 	{Name: OptionReps, Type: TypeNumber, Help: "number of simulated or resampled sequences"},
-	{Name: OptionTransform, Type: TypeChoice, Choices: []string{"none", "log", "boxcox"}, Help: "transform of the readings before fitting: none, log or boxcox"},
+	{Name: OptionTransform, Type: TypeChoice, Choices: []string{"none", "log", "boxcox"}, List: true, Help: "transform of the readings before fitting: none, log or boxcox; with several markers one for all or one per marker, e.g. none,log,none"},
 	{Name: OptionGroup, Type: TypeText, Help: "group (for example sex or job group) whose reference curve is used"},
 	{Name: OptionUnit, Type: TypeNumber, Help: "time unit, in years, of the gap-aware EWMA weight 1-(1-lambda)^(gap/unit)"},
 	{Name: OptionRestart, Type: TypeBool, Help: "on: the chart statistic starts again after a signal; off: it carries on"},
@@ -79,6 +85,7 @@ var sharedOptions = []Option{
 	{Name: OptionBandwidth, Type: TypeNumber, Help: "smoothing bandwidth of the reference curves, in years; 0 or absent: chosen by cross-validation"},
 	{Name: OptionMinWorkers, Type: TypeNumber, Help: "fewest reference workers a group needs to get its own curves"},
 	{Name: OptionOnset, Type: TypeNumber, Help: "years after the first exam at which a sustained shift starts"},
+	{Name: OptionMarkers, Type: TypeText, Help: "the markers of a values range of several columns, by name in column order (e.g. sbp,chol,fev1); without a model, how many markers are charted together (e.g. 3)"},
 	{Name: OptionHorizon, Type: TypeChoice, Choices: []string{"followup", "long"}, Help: "what the target counts: followup (the default with a model: worker-years of exams per false signal, workers followed as long as the reference workers) or long (one worker with an unending exam history)"},
 }
 
@@ -328,12 +335,21 @@ func coerceOption(decl Option, v Cell) (Cell, *Error) {
 		return Cell{}, WrongArgument.Errorf("option %q must be on or off; got %s", decl.Name, v)
 	case TypeChoice:
 		if v.Kind == KindText {
-			s := strings.ToLower(strings.TrimSpace(v.Str))
-			for _, c := range decl.Choices {
-				if c == s {
-					return TextCell(s), nil
-				}
+			parts := []string{v.Str}
+			if decl.List {
+				parts = strings.Split(v.Str, ",")
 			}
+			ok := true
+			for i, p := range parts {
+				parts[i] = strings.ToLower(strings.TrimSpace(p))
+				ok = ok && slices.Contains(decl.Choices, parts[i])
+			}
+			if ok {
+				return TextCell(strings.Join(parts, ",")), nil
+			}
+		}
+		if decl.List {
+			return Cell{}, WrongArgument.Errorf("option %q must be one of %s, or a comma-separated list of them (one per marker); got %s", decl.Name, strings.Join(decl.Choices, ", "), v)
 		}
 		return Cell{}, WrongArgument.Errorf("option %q must be one of %s; got %s", decl.Name, strings.Join(decl.Choices, ", "), v)
 	case TypeText:

@@ -401,6 +401,9 @@ func DecodeJoint(data []byte) (*Joint, error) {
 		if err != nil {
 			return nil, err
 		}
+		if m.Curves == nil {
+			return nil, errors.New("the model file is damaged: a marker has no reference curves")
+		}
 		j.Markers = append(j.Markers, m)
 	}
 	if err := j.Model.Check(); err != nil {
