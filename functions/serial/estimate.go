@@ -31,9 +31,10 @@ const (
 	maxSearchEvaluations = 2000
 	// maxPolishSteps caps the Newton steps on the exact likelihood.
 	maxPolishSteps = 4
-	// checkEvery is how many workers a pass over the data handles between
-	// checks for cancellation.
-	checkEvery = 1024
+	// checkEvery is how many exams a pass over the data handles between
+	// checks for cancellation (counted at the start of each worker, so a
+	// check comes at least every checkEvery exams plus one worker's).
+	checkEvery = 8192
 )
 
 // CorrelationTest is the test that a worker's consecutive exams are
@@ -92,8 +93,10 @@ func scanSeries(ctx context.Context, s []Series) (scan, error) {
 	var sumU, sumU2, sxy, sxx, syy float64
 	var lag1 int
 	var gapSum float64
+	exams := checkEvery
 	for i, w := range s {
-		if i%checkEvery == 0 {
+		if exams += len(w.Z); exams >= checkEvery {
+			exams = 0
 			if err := ctx.Err(); err != nil {
 				return sc, err
 			}
@@ -154,11 +157,12 @@ func scanSeries(ctx context.Context, s []Series) (scan, error) {
 
 // eachPair calls fn for every pair of exams at lags 1 and 2 within a
 // worker, with k the index of the worker among those with two or more
-// exams, checking for cancellation every checkEvery workers.
+// exams, checking for cancellation about every checkEvery exams.
 func eachPair(ctx context.Context, s []Series, fn func(k int, x, y, d float64)) error {
-	k := -1
-	for i, w := range s {
-		if i%checkEvery == 0 {
+	k, exams := -1, checkEvery
+	for _, w := range s {
+		if exams += len(w.Z); exams >= checkEvery {
+			exams = 0
 			if err := ctx.Err(); err != nil {
 				return err
 			}
@@ -215,8 +219,8 @@ func eachPair(ctx context.Context, s []Series, fn func(k int, x, y, d float64)) 
 // PhiMax) the standard errors are only indicative, and NaN where H is not
 // negative definite.
 //
-// Every pass over the data checks ctx between workers; the searches have
-// fixed caps on their iterations.
+// Every pass over the data checks ctx between workers, about every
+// checkEvery exams; the searches have fixed caps on their iterations.
 func Estimate(ctx context.Context, s []Series) (Params, error) {
 	sc, err := scanSeries(ctx, s)
 	if err != nil {

@@ -147,6 +147,7 @@ func TestEstimateKnownTruth(t *testing.T) {
 		{"typical", Params{Phi: 0.7, C: 0.6}, 3000, 6, 0.5, 3},
 		{"phi near 0", Params{Phi: 0.02, C: 0.7}, 4000, 6, 0.05, 2},
 		{"phi near 1", Params{Phi: 0.98, C: 0.5}, 3000, 6, 0.5, 3},
+		{"fixed personal level", Params{Phi: PhiMax, C: 0.4}, 3000, 6, 0.5, 3},
 		{"no noise", Params{Phi: 0.5, C: 1}, 2000, 6, 0.5, 3},
 		{"weak", Params{Phi: 0.6, C: 0.08}, 5000, 6, 0.5, 3},
 		{"independent", Params{}, 3000, 6, 0.5, 3},
@@ -193,6 +194,9 @@ func TestEstimateKnownTruth(t *testing.T) {
 				{"phi", p.Phi, tc.truth.Phi, p.SEPhi},
 				{"c", p.C, tc.truth.C, p.SEC},
 			} {
+				if c.name == "phi" && c.want == PhiMax && c.got == PhiMax {
+					continue // at the edge, where the SE is not defined
+				}
 				if !(math.Abs(c.got-c.want) <= 4*c.se) {
 					t.Errorf("%s = %.4f (SE %.4f), truth %.4f", c.name, c.got, c.se, c.want)
 				}
@@ -316,6 +320,45 @@ func TestEstimateCancelled(t *testing.T) {
 	time.Sleep(2 * time.Millisecond)
 	if _, err := Estimate(ctx, s); !errors.Is(err, context.DeadlineExceeded) {
 		t.Errorf("past its deadline: error %v", err)
+	}
+}
+
+// stopAfter is a context that reports cancellation from its (after+1)th
+// check on, to cancel Estimate at every point where it looks.
+type stopAfter struct {
+	context.Context
+	checks, after int
+}
+
+func (c *stopAfter) Err() error {
+	c.checks++
+	if c.checks > c.after {
+		return context.Canceled
+	}
+	return nil
+}
+
+// Cancellation is honoured wherever Estimate checks: in each pass over
+// the data and in the search; a context never cancelled gives the same
+// answer as no check at all.
+func TestEstimateCancelledMidway(t *testing.T) {
+	s := cohort(Params{Phi: 0.7, C: 0.6}, 500, 6, 0.5, 3, rand.New(rand.NewPCG(53, 54)))
+	want, err := Estimate(context.Background(), s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	all := &stopAfter{Context: context.Background(), after: math.MaxInt}
+	if got, err := Estimate(all, s); err != nil || got != want {
+		t.Fatalf("uncancelled: %+v, %v; want %+v", got, err, want)
+	}
+	t.Logf("%d checks", all.checks)
+	if all.checks < 10 {
+		t.Fatalf("only %d checks for cancellation", all.checks)
+	}
+	for after := range all.checks {
+		if _, err := Estimate(&stopAfter{Context: context.Background(), after: after}, s); !errors.Is(err, context.Canceled) {
+			t.Fatalf("cancelled at check %d of %d: error %v", after+1, all.checks, err)
+		}
 	}
 }
 
