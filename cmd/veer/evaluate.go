@@ -7,7 +7,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"slices"
 	"strconv"
 	"strings"
 
@@ -50,9 +49,9 @@ type evaluateJob struct {
 // evaluates the chart at each target, the baseline and the rules.
 func runEvaluation(e *env, f *outcomeFlags, m *screening.Model, set screening.Settings, lo screening.LimitOptions,
 	target float64, exams []screening.Exam, idCol, examsPath, timeCol string, rs []rules.NamedRule) (*evaluateJob, error) {
-	sweep, err := parseTargets(f.targets)
+	sweep, err := evaluation.ParseTargets(f.targets)
 	if err != nil {
-		return nil, err
+		return nil, usagef("--targets: %v", err)
 	}
 	var missingHealthy bool
 	switch f.missing {
@@ -130,75 +129,6 @@ func readOutcomes(t *table.Table, path, idCol, dxCol, ageCol string) ([]evaluati
 		out[i] = evaluation.Outcome{Row: i + 1, Worker: r[cols[0]], Diagnosed: r[cols[1]], Age: age}
 	}
 	return out, nil
-}
-
-// maxRangeTargets bounds the N of a range of targets.
-const maxRangeTargets = 50
-
-// parseTargets reads --targets: a list "5,10,20" or a range "5-100" of 10
-// targets evenly spaced on a log scale (the false-signal rate is about
-// 1/target), "5-100/N" for N of them; targets in a range are rounded to
-// two significant digits.
-func parseTargets(s string) ([]float64, error) {
-	s = strings.TrimSpace(s)
-	if s == "" {
-		return nil, nil
-	}
-	bad := func() error {
-		return usagef("--targets %q: give a list of years such as 5,10,20,50,100, or a range such as 5-100 or 5-100/8", s)
-	}
-	positive := func(p string) (float64, error) {
-		v, err := strconv.ParseFloat(strings.TrimSpace(p), 64)
-		if err != nil || !(v > 0) || math.IsInf(v, 0) {
-			return 0, bad()
-		}
-		return v, nil
-	}
-	if from, rest, ok := strings.Cut(s, "-"); ok {
-		to, count, hasN := strings.Cut(rest, "/")
-		a, err := positive(from)
-		if err != nil {
-			return nil, err
-		}
-		b, err := positive(to)
-		if err != nil {
-			return nil, err
-		}
-		n := 10
-		if hasN {
-			if n, err = strconv.Atoi(strings.TrimSpace(count)); err != nil || n < 2 || n > maxRangeTargets {
-				return nil, usagef("--targets %q: the number of targets in a range must be 2 to %d", s, maxRangeTargets)
-			}
-		}
-		if !(b > a) {
-			return nil, usagef("--targets %q: a range goes from the shorter target to the longer", s)
-		}
-		var out []float64
-		for k := range n {
-			v := a * math.Pow(b/a, float64(k)/float64(n-1))
-			if k > 0 && k < n-1 {
-				v = roundSignificant(v, 2)
-			}
-			if !slices.Contains(out, v) {
-				out = append(out, v)
-			}
-		}
-		return out, nil
-	}
-	var out []float64
-	for _, p := range strings.Split(s, ",") {
-		v, err := positive(p)
-		if err != nil {
-			return nil, err
-		}
-		out = append(out, v)
-	}
-	return out, nil
-}
-
-func roundSignificant(v float64, digits int) float64 {
-	p := math.Pow(10, float64(digits)-math.Ceil(math.Log10(v)))
-	return math.Round(v*p) / p
 }
 
 // writeEvaluation writes the evaluation table as CSV (see

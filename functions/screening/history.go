@@ -2,6 +2,7 @@ package screening
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"runtime"
@@ -11,6 +12,7 @@ import (
 
 	"veer/functions/chart"
 	"veer/functions/evaluation"
+	"veer/functions/refcurve"
 	"veer/functions/rules"
 )
 
@@ -199,7 +201,7 @@ func (m *Model) EvaluateHistory(ctx context.Context, exams []Exam, c *evaluation
 	hT := lims[slices.Index(targets, o.Target)]
 	res, err := m.Screen(sub, o.Settings, hT)
 	if err != nil {
-		return nil, err
+		return nil, inExamRows(err, keep)
 	}
 	if err := ctx.Err(); err != nil {
 		return nil, err
@@ -210,14 +212,14 @@ func (m *Model) EvaluateHistory(ctx context.Context, exams []Exam, c *evaluation
 	// The chart at each target.
 	flagsAt, err := m.chartFlags(sub, res, o.Settings)
 	if err != nil {
-		return nil, err
+		return nil, inExamRows(err, keep)
 	}
 	name := ChartName(o.Settings)
 	rates := make([]float64, len(targets))
 	for k, t := range targets {
 		f, err := flagsAt(lims[k])
 		if err != nil {
-			return nil, err
+			return nil, inExamRows(err, keep)
 		}
 		r, err := score(f)
 		if err != nil {
@@ -244,7 +246,7 @@ func (m *Model) EvaluateHistory(ctx context.Context, exams []Exam, c *evaluation
 			if lr, err := m.Limit(o.Settings, o.Limits, mt); err == nil {
 				f, err := flagsAt(lr.H)
 				if err != nil {
-					return nil, err
+					return nil, inExamRows(err, keep)
 				}
 				r, err := score(f)
 				if err != nil {
@@ -293,6 +295,27 @@ func (m *Model) EvaluateHistory(ctx context.Context, exams []Exam, c *evaluation
 		}
 	}
 	return h, nil
+}
+
+// inExamRows rewrites the rows an error of screening the kept exams names
+// (positions among them) as positions among all the exams given.
+func inExamRows(err error, keep []int) error {
+	var dup *refcurve.DuplicateError
+	var se *refcurve.ScoreErrors
+	switch {
+	case errors.As(err, &dup):
+		d := *dup
+		d.Rows = [2]int{keep[d.Rows[0]-1] + 1, keep[d.Rows[1]-1] + 1}
+		return &d
+	case errors.As(err, &se):
+		s := *se
+		s.First = slices.Clone(se.First)
+		for i := range s.First {
+			s.First[i].Index = keep[s.First[i].Index]
+		}
+		return &s
+	}
+	return err
 }
 
 // limits computes the limit of each target, up to GOMAXPROCS at a time.

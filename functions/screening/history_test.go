@@ -10,6 +10,7 @@ import (
 
 	"veer/functions/chart"
 	"veer/functions/evaluation"
+	"veer/functions/refcurve"
 	"veer/functions/rules"
 	"veer/functions/serial"
 )
@@ -299,4 +300,40 @@ func BenchmarkEvaluateHistory1M(b *testing.B) {
 		}
 		b.ReportMetric(float64(len(ex)), "exams")
 	})
+}
+
+// TestEvaluateHistoryRows checks that a failure of screening names the rows
+// as given, though exams after a diagnosis are left out before screening:
+// worker b's duplicate exams are rows 5 and 6, after a's exam past its
+// diagnosis (row 3); an age outside the reference range is row 7.
+func TestEvaluateHistoryRows(t *testing.T) {
+	m := fit(t, cohort(300, serial.Params{Phi: 0.6, C: 0.6}, 3, "R"))
+	ex := []Exam{
+		{Worker: "a", Time: 40, Value: 120}, {Worker: "a", Time: 41, Value: 125}, {Worker: "a", Time: 45, Value: 150},
+		{Worker: "b", Time: 40, Value: 120}, {Worker: "b", Time: 42, Value: 121}, {Worker: "b", Time: 42, Value: 122},
+	}
+	outs := []evaluation.Outcome{{Worker: "a", Diagnosed: "yes", Age: 44}, {Worker: "b", Diagnosed: "no", Age: math.NaN()}}
+	cohortOf := func(ex []Exam) *evaluation.Cohort {
+		evx := make([]evaluation.Exam, len(ex))
+		for i, e := range ex {
+			evx[i] = evaluation.Exam{Worker: e.Worker, Age: e.Time}
+		}
+		c, err := evaluation.NewCohort(context.Background(), evx, outs, evaluation.Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return c
+	}
+	set := DefaultSettings()
+	_, err := m.EvaluateHistory(context.Background(), ex, cohortOf(ex), HistoryOptions{Settings: set, Target: 20})
+	var dup *refcurve.DuplicateError
+	if !errors.As(err, &dup) || dup.Rows != [2]int{5, 6} {
+		t.Errorf("duplicate: %v", err)
+	}
+	ex[5].Time = 99
+	_, err = m.EvaluateHistory(context.Background(), ex, cohortOf(ex), HistoryOptions{Settings: set, Target: 20})
+	var se *refcurve.ScoreErrors
+	if !errors.As(err, &se) || se.First[0].Index != 5 {
+		t.Errorf("outside the range: %v", err)
+	}
 }
