@@ -21,7 +21,9 @@ var chartOptions = []string{
 
 // New returns the catalogue of veer's cell functions.
 func New() *cell.Catalogue {
-	all := append(funcs(), ruleFuncs(rules.NewCache(rules.DefaultCacheSize, rules.DefaultLimits()))...)
+	cache := rules.NewCache(rules.DefaultCacheSize, rules.DefaultLimits())
+	all := append(funcs(), ruleFuncs(cache)...)
+	all = append(all, evaluateFunc(cache))
 	return cell.NewCatalogue(all...)
 }
 

@@ -8,6 +8,7 @@ import (
 
 	"veer/functions/cell"
 	"veer/functions/chart"
+	"veer/functions/evaluation"
 	"veer/functions/joint"
 	"veer/functions/limit"
 	"veer/functions/published"
@@ -56,6 +57,22 @@ var failureKinds = []struct {
 	{joint.ErrDuplicateMarker, cell.WrongArgument},
 	{joint.ErrNotPositiveDefinite, cell.BadData},
 	{joint.ErrTooFewReadings, cell.BadData},
+	// Evaluation on a labelled history: a blank worker id is a blank input,
+	// a diagnosis flag or age that is not one is a wrong argument, every
+	// other problem of the outcomes is data no evaluation can be made from.
+	{evaluation.ErrBlankWorker, cell.BlankInput},
+	{evaluation.ErrDiagnosisFlag, cell.WrongArgument},
+	{evaluation.ErrBadAge, cell.WrongArgument},
+	{evaluation.ErrTooLarge, cell.WrongArgument},
+	{evaluation.ErrUnknownWorker, cell.BadData},
+	{evaluation.ErrDiagnosedBeforeFirstExam, cell.BadData},
+	{evaluation.ErrDuplicateOutcome, cell.BadData},
+	{evaluation.ErrMissingDiagnosisAge, cell.BadData},
+	{evaluation.ErrAgeWithoutDiagnosis, cell.BadData},
+	{evaluation.ErrMissingOutcomes, cell.BadData},
+	{evaluation.ErrNoDiagnosed, cell.BadData},
+	{evaluation.ErrNoHealthy, cell.BadData},
+	{evaluation.ErrNoExams, cell.BadData},
 }
 
 // failureOf returns the contract failure of err's kind, or fallback.

@@ -29,6 +29,7 @@ func ExampleNew() {
 	// VEER.RULE      column
 	// VEER.RULECOLS  column
 	// VEER.SAVERULES value
+	// VEER.EVALUATE  table
 }
 
 // Calling a function outside the server: the limit of an upward CUSUM with

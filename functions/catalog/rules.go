@@ -112,16 +112,9 @@ func resolveRule(env cell.Env, text string) (string, error) {
 	if !ok || set == "" || name == "" {
 		return "", cell.WrongArgument.Errorf(`a stored rule is named "@set/name", e.g. "@bp-rules/high"`)
 	}
-	ref, err := env.Model(set)
+	rs, ref, err := storedRuleSet(env, set)
 	if err != nil {
 		return "", err
-	}
-	if !isRuleSet(ref.Doc) {
-		return "", cell.UnknownModel.Errorf("%s is a model, not a rule set saved with VEER.SAVERULES", ref.Handle)
-	}
-	rs, err := rules.ParseRuleSet(ref.Doc[len(ruleSetPrefix):])
-	if err != nil {
-		return "", cell.UnknownModel.Errorf("rule set %s cannot be read: %v", ref.Handle, err)
 	}
 	r, ok := rs.Lookup(name)
 	if !ok {
@@ -132,6 +125,22 @@ func resolveRule(env cell.Env, text string) (string, error) {
 		return "", cell.UnknownRule.Errorf("rule set %s has no rule %q; it has: %s", ref.Handle, name, strings.Join(names, ", "))
 	}
 	return r.Expr, nil
+}
+
+// storedRuleSet reads the rule set saved as set with VEER.SAVERULES.
+func storedRuleSet(env cell.Env, set string) (rules.RuleSet, cell.ModelRef, error) {
+	ref, err := env.Model(set)
+	if err != nil {
+		return rules.RuleSet{}, ref, err
+	}
+	if !isRuleSet(ref.Doc) {
+		return rules.RuleSet{}, ref, cell.UnknownModel.Errorf("%s is a model, not a rule set saved with VEER.SAVERULES", ref.Handle)
+	}
+	rs, err := rules.ParseRuleSet(ref.Doc[len(ruleSetPrefix):])
+	if err != nil {
+		return rules.RuleSet{}, ref, cell.UnknownModel.Errorf("rule set %s cannot be read: %v", ref.Handle, err)
+	}
+	return rs, ref, nil
 }
 
 func compileError(err error) error {

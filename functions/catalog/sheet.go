@@ -151,15 +151,25 @@ func (sh *sheet) screenable(m *screening.Model, ext bool) error {
 // place among the screenable rows, which are mapped back to sheet rows.
 func (sh *sheet) screen(m *screening.Model, s screening.Settings, h float64) ([]screening.Result, error) {
 	res, err := m.Screen(sh.exams, s, h)
-	var dup *refcurve.DuplicateError
-	switch {
-	case err == nil:
+	if err == nil {
 		return res, nil
-	case errors.As(err, &dup):
-		return nil, cell.BadData.Errorf("worker %q has two exams at the same age %s (rows %d and %d); remove or merge one",
-			dup.Worker, cell.FormatNumber(dup.Time), sh.rowOf[dup.Rows[0]-1]+1, sh.rowOf[dup.Rows[1]-1]+1)
+	}
+	if e := sh.duplicateError(err); e != nil {
+		return nil, e
 	}
 	return nil, cellError(err, cell.BadData)
+}
+
+// duplicateError words two exams of one worker at the same age with their
+// sheet rows, or returns nil for another error. The engine names them by
+// their place among the screenable rows.
+func (sh *sheet) duplicateError(err error) *cell.Error {
+	var dup *refcurve.DuplicateError
+	if !errors.As(err, &dup) {
+		return nil
+	}
+	return cell.BadData.Errorf("worker %q has two exams at the same age %s (rows %d and %d); remove or merge one",
+		dup.Worker, cell.FormatNumber(dup.Time), sh.rowOf[dup.Rows[0]-1]+1, sh.rowOf[dup.Rows[1]-1]+1)
 }
 
 // screened is a sheet charted by VEER.CHART or VEER.RULE: its rows, the

@@ -36,6 +36,9 @@ const (
 	OptionOnset       = "onset"
 	OptionHorizon     = "horizon"
 	OptionMarkers     = "markers"
+	OptionTargets     = "targets"
+	OptionCentile     = "centile"
+	OptionMissing     = "missing"
 )
 
 // Option declares one named option: its value type, allowed choices and help.
@@ -86,6 +89,9 @@ var sharedOptions = []Option{
 	{Name: OptionMinWorkers, Type: TypeNumber, Help: "fewest reference workers a group needs to get its own curves"},
 	{Name: OptionOnset, Type: TypeNumber, Help: "years after the first exam at which a sustained shift starts"},
 	{Name: OptionMarkers, Type: TypeText, Help: "the markers of a values range of several columns, by name in column order (e.g. sbp,chol,fev1); without a model, how many markers are charted together (e.g. 3)"},
+	{Name: OptionTargets, Type: TypeText, Help: "more targets in years to evaluate the chart at: a list 5,10,20,50,100 or a range 5-100 (10 targets evenly spaced on a log scale; 5-100/N for N)"},
+	{Name: OptionCentile, Type: TypeNumber, Help: "the baseline rule flags a reading beyond this reference centile in the chart's direction (97.5 and 2.5 both mean the outer 2.5%)"},
+	{Name: OptionMissing, Type: TypeChoice, Choices: []string{"error", "healthy"}, Help: "a worker of the exams with no outcome row: error (name a few and stop) or healthy (take them as never diagnosed)"},
 	{Name: OptionHorizon, Type: TypeChoice, Choices: []string{"followup", "long"}, Help: "what the target counts: followup (the default with a model: worker-years of exams per false signal, workers followed as long as the reference workers) or long (one worker with an unending exam history)"},
 }
 
