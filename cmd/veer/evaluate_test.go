@@ -232,3 +232,33 @@ func TestCLIEvaluateBadInput(t *testing.T) {
 		t.Errorf("--missing healthy: exit %d: %s", code, stderr)
 	}
 }
+
+// TestCLIReportOutcomes: veer report --outcomes adds the evaluation section
+// and says it in words; the evaluation needs a target, not a limit.
+func TestCLIReportOutcomes(t *testing.T) {
+	f := fixture(t)
+	dir := t.TempDir()
+	outCSV := writeFile(t, filepath.Join(dir, "outcomes.csv"), csvText(outcomesOf(f.work)))
+	rep := filepath.Join(dir, "report.html")
+	args := []string{"report", "--model", f.model, "--in", f.workCSV, "--id", "worker", "--time", "age", "--value", "sbp", "--group", "group",
+		"--outcomes", outCSV, "--targets", "5,50", "--out", rep}
+	code, _, stderr := cli(append(args, "--target", "20")...)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	b, err := os.ReadFile(rep)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range []string{"Evaluation on later diagnoses", `class="chart tradeoff"`, "At a 20-year target, of "} {
+		if !strings.Contains(string(b), want) {
+			t.Errorf("the report lacks %q", want)
+		}
+	}
+	if !strings.Contains(stderr, "baseline centile > 97.5:") || !strings.Contains(stderr, "report written to") {
+		t.Errorf("stderr: %s", stderr)
+	}
+	if code, _, stderr := cli(append(args, "--limit", "3")...); code != 2 || !strings.Contains(stderr, "give --target") {
+		t.Errorf("--outcomes with --limit: exit %d: %s", code, stderr)
+	}
+}

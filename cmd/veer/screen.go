@@ -277,9 +277,11 @@ func runScreen(e *env, args []string) error {
 }
 
 func runReport(e *env, args []string) error {
-	fs := newFlags(e, "report", "--model M.json --in F.csv|F.xlsx --id C --time C --value C [--group C] (--target YEARS | --limit H) --out R.html [--marker NAME] [--value-unit U]")
+	fs := newFlags(e, "report", "--model M.json --in F.csv|F.xlsx --id C --time C --value C [--group C] (--target YEARS | --limit H) --out R.html [--marker NAME] [--value-unit U] [--outcomes O.csv|O.xlsx ...]")
 	var sf screenFlags
 	sf.register(fs)
+	var of outcomeFlags
+	of.register(fs)
 	out := fs.String("out", "", "HTML file to write (required)")
 	marker := fs.String("marker", "", "name of the marker shown in the report (default: the model's name)")
 	unit := fs.String("value-unit", "", "unit of the readings shown in the report, e.g. mmHg")
@@ -289,6 +291,9 @@ func runReport(e *env, args []string) error {
 	if err := required("out", *out); err != nil {
 		return err
 	}
+	if of.outcomes != "" && !(sf.target > 0) {
+		return usagef("--outcomes evaluates the chart at targets: give --target (and --targets), not --limit")
+	}
 	j, err := runScreenJob(e, &sf)
 	if err != nil {
 		return err
@@ -297,11 +302,23 @@ func runReport(e *env, args []string) error {
 	if name == "" {
 		name = j.model.Name
 	}
-	if err := writeReport(*out, sf.in, []report.Section{j.reportSection(name, *unit)}); err != nil {
+	sec := j.reportSection(name, *unit)
+	var ev *evaluateJob
+	if of.outcomes != "" {
+		ev, err = runEvaluation(e, &of, j.model, j.settings, sf.chart.limitOptions(nil), sf.target, j.exams, sf.cols.id, sf.in, sf.cols.time, j.ruleSet.Rules)
+		if err != nil {
+			return err
+		}
+		sec.Evaluation = &report.Evaluation{Source: filepath.Base(of.outcomes), Condition: of.diagnosed, History: ev.history, Target: sf.target}
+	}
+	if err := writeReport(*out, sf.in, []report.Section{sec}); err != nil {
 		return err
 	}
 	fmt.Fprintf(e.stderr, "report written to %s\n", *out)
 	j.summary(e)
+	if ev != nil {
+		ev.describe(e.stderr)
+	}
 	return nil
 }
 

@@ -216,6 +216,16 @@ func catalogueCalls(ref []examRow, work []examRow) []fnCall {
 		wagesBlank[i] = a
 	}
 	wagesBlank[2] = nil
+	var outcomes [][]any
+	for i, r := range outcomesOf(work) {
+		row := []any{r[0], r[1], nil}
+		if i == 0 {
+			row[2] = r[2]
+		} else if r[2] != "" {
+			row[2], _ = strconv.ParseFloat(r[2], 64)
+		}
+		outcomes = append(outcomes, row)
+	}
 	return []fnCall{
 		{"VEER.FIT", []any{"syn", ids, ages, vals, groups}},
 		{"VEER.FIT", []any{"syn", ids, ages, vals, groups, "bandwith=3"}},
@@ -245,6 +255,8 @@ func catalogueCalls(ref []examRow, work []examRow) []fnCall {
 		{"VEER.RULE", []any{"@syn-rules/rising", "syn", wids, wagesBlank, wvals, wgroups, "limit=4"}},
 		{"VEER.RULE", []any{"chrt > limit", "syn", wids, wages, wvals, wgroups, "limit=4"}},
 		{"VEER.RULECOLS", []any{"systolic_bp > 140.0", [][]any{{"Systolic BP", "Age"}, {150, 50}, {120, 30}, {nil, 40}}}},
+		{"VEER.EVALUATE", []any{"syn", outcomes, wids, wages, wvals, wgroups, [][]any{{"high", "centile > 99.0"}}, "target=20; targets=10,50"}},
+		{"VEER.EVALUATE", []any{"syn", outcomes[:len(outcomes)-2], wids, wages, wvals, wgroups}},
 		{"VEER.MODELS", nil},
 		{"VEER.NOSUCH", []any{1}},
 	}

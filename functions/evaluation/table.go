@@ -130,6 +130,8 @@ func Describe(r Row) string {
 		fmt.Fprintf(&b, "At a %s-year target, of ", targetWords(r.Target))
 	case r.Method == MethodRule:
 		fmt.Fprintf(&b, "With the rule %s, of ", r.Name)
+	case r.Method == MethodBaseline:
+		fmt.Fprintf(&b, "With the baseline rule (%s), of ", r.Name)
 	default:
 		fmt.Fprintf(&b, "With %s, of ", r.Name)
 	}

@@ -66,8 +66,8 @@ func TestTable(t *testing.T) {
 		t.Errorf("Describe:\n%s\nwant\n%s", s, wantText)
 	}
 	r2, _ := c.Evaluate(context.Background(), flags["m2"])
-	base := evaluation.Row{Method: evaluation.MethodBaseline, Name: "a reading beyond the 97.5th centile", Target: nan, Limit: nan, Result: r2}
-	wantText = "With a reading beyond the 97.5th centile, of 4 workers later diagnosed, 4 (100%) were flagged before the diagnosis, a median of 2.5 years before it; " +
+	base := evaluation.Row{Method: evaluation.MethodBaseline, Name: "centile > 97.5", Target: nan, Limit: nan, Result: r2}
+	wantText = "With the baseline rule (centile > 97.5), of 4 workers later diagnosed, 4 (100%) were flagged before the diagnosis, a median of 2.5 years before it; " +
 		"none of the 4 workers never diagnosed was flagged (0.00 false signals per 100 worker-years)."
 	if s := evaluation.Describe(base); s != wantText {
 		t.Errorf("Describe:\n%s\nwant\n%s", s, wantText)

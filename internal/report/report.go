@@ -68,6 +68,9 @@ type Section struct {
 	Results []screening.Result
 	// Rules are alert rules evaluated on the same rows.
 	Rules []Rule
+	// Evaluation, when not nil, adds how the methods would have done on a
+	// history of later diagnoses.
+	Evaluation *Evaluation
 }
 
 // Rule is one alert rule's outcome over the rows of a Section.
@@ -116,6 +119,9 @@ func (d Data) validate() error {
 			if len(r.Fired) != len(s.Exams) {
 				return fmt.Errorf("%s: rule %q has %d results for %d exams", name, r.Name, len(r.Fired), len(s.Exams))
 			}
+		}
+		if s.Evaluation != nil && (s.Evaluation.History == nil || len(s.Evaluation.History.Rows) == 0) {
+			return fmt.Errorf("%s: the evaluation has no methods to show", name)
 		}
 	}
 	return nil
@@ -179,6 +185,7 @@ type sectionView struct {
 	WorkerCount   int
 	ExamCount     int
 	GroupsPresent []string
+	Evaluation    *evaluationView
 }
 
 // workerView gathers one worker's rows.
@@ -398,6 +405,13 @@ func buildSection(s *Section, k, maxPanels int, all bool) (*sectionView, error) 
 	}
 	if !all && len(ws)-flagged > 0 {
 		sv.SummaryNote = fmt.Sprintf("%s other workers had no chart signal and no rule fired; they are not listed.", thousands(len(ws)-flagged))
+	}
+	if s.Evaluation != nil {
+		ev, err := buildEvaluation(s, sv.ID+"-eval")
+		if err != nil {
+			return nil, err
+		}
+		sv.Evaluation = ev
 	}
 	return sv, nil
 }

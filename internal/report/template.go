@@ -42,6 +42,10 @@ tr.flagged td { background: #fff3ea; }
 .panel p { font-size: 8.8pt; color: #333; margin: 1mm 0 0 0; }
 code { font-family: "DejaVu Sans Mono", Menlo, Consolas, monospace; font-size: 8.8pt; background: #f3f3f3; padding: 0 1mm; }
 footer { margin-top: 8mm; }
+.pair { display: flex; gap: 2mm; }
+.pair > svg.tradeoff { flex: 1 1 50%; width: 50%; height: auto; display: block; }
+table.evaluation tr.other td { background: #f7f7f7; }
+p.note { font-size: 8.8pt; color: #333; }
 @media print {
   body { padding: 0; max-width: none; }
   a { color: inherit; text-decoration: none; }
@@ -128,7 +132,20 @@ reading crosses a fixed cut-off, and it can also flag healthy workers by chance 
 <td class="num">{{if .Anchor}}<a href="#{{.Anchor}}">{{.Panel}}</a>{{else}}{{.Panel}}{{end}}</td></tr>
 {{end}}</tbody></table>{{else}}<p>No worker to list.</p>{{end}}
 {{if .SummaryNote}}<p>{{.SummaryNote}}</p>{{end}}
-</section>
+{{with .Evaluation}}<h3 id="{{.ID}}">Evaluation on later diagnoses</h3>
+{{range .Intro}}<p>{{.}}</p>
+{{end}}<figure>{{.Figure.SVG}}<figcaption>{{.Figure.Caption}}</figcaption></figure>
+<table class="evaluation"><thead><tr><th>method</th><th class="num">target (years)</th><th class="num">limit</th>
+<th class="num">diagnosed workers flagged before the diagnosis</th><th class="num">95% interval</th><th class="num">median lead, all diagnosed</th>
+<th class="num">median lead, flagged</th><th class="num">false signals per 100 worker-years</th><th class="num">95% interval</th>
+<th class="num">never-diagnosed workers flagged</th></tr></thead><tbody>
+{{range .Rows}}<tr{{if not .Chart}} class="other"{{end}}><td>{{.Method}}</td><td class="num">{{.Target}}</td><td class="num">{{.Limit}}</td>
+<td class="num">{{.Flagged}}</td><td class="num">{{.Interval}}</td><td class="num">{{.MedianLead}}</td><td class="num">{{.MedianFlagged}}</td>
+<td class="num">{{.False}}</td><td class="num">{{.FalseInterval}}</td><td class="num">{{.Healthy}}</td></tr>
+{{end}}</tbody></table>
+{{range .Notes}}<p class="note">{{.}}</p>
+{{end}}<div class="caution" role="note"><strong>Screening aid — not a diagnosis.</strong> {{.Caution}} These figures describe how a screening aid would have prompted reviews on past records; they are not a measure of diagnostic accuracy.</div>
+{{end}}</section>
 {{end}}
 <footer>
 <div class="caution" role="note"><strong>Screening aid — not a diagnosis.</strong> {{.Caution}}</div>
