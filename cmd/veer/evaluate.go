@@ -230,6 +230,12 @@ func runEvaluate(e *env, args []string) error {
 	if !(sf.target > 0) {
 		return usagef("--target must be a positive number of years")
 	}
+	if _, joint, err := jointModelFile(sf.model); err != nil || joint {
+		if err != nil {
+			return err
+		}
+		return usagef("evaluate scores one marker at a time: give the model of one marker (fit each marker's model with veer fit --value COLUMN)")
+	}
 	set, err := sf.chart.settings()
 	if err != nil {
 		return err
