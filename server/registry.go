@@ -30,6 +30,7 @@ import (
 //	<key>@v<N>.model   one version: a JSON header line, then the document
 //	<key>.deleted      tombstone: all versions up to N are deleted
 //	.<file>.tmp-*      temporary files of a save in progress (atomicfile)
+//	.lock              held by the process using the directory
 //
 // <key> is the model name in lower case (names are case-insensitive; the
 // spelling of the first save is kept for display). Each file is written
@@ -56,6 +57,10 @@ type Registry struct {
 	// oldDocs keeps recently read documents of versions other than the
 	// latest (which stays in memory), verified, by file path.
 	oldDocs *lru.Cache[string, []byte]
+
+	// unlock releases the lock on the directory (nil when another process
+	// held it at open, or after Close).
+	unlock func()
 }
 
 type model struct {
@@ -63,6 +68,10 @@ type model struct {
 	builtin  bool
 	versions []*version // ascending by n
 	deleted  int        // tombstone: versions <= deleted are gone
+	// damaged holds the numbers of versions whose files failed their check
+	// when the registry was opened, with what was wrong. They keep their
+	// numbers (never reused) and are reported, never skipped silently.
+	damaged map[int]string
 }
 
 type version struct {
@@ -90,11 +99,31 @@ func (m *model) find(n int) *version {
 }
 
 func (m *model) next() int {
-	n := m.deleted
+	n := max(m.deleted, m.newestDamaged())
 	if v := m.latest(); v != nil && v.n > n {
 		n = v.n
 	}
 	return n + 1
+}
+
+// newestDamaged returns the highest damaged version number, or 0.
+func (m *model) newestDamaged() int {
+	n := 0
+	for v := range m.damaged {
+		n = max(n, v)
+	}
+	return n
+}
+
+// latestIsDamaged reports whether the newest version of m is damaged: a
+// bare name must then not quietly mean an older one.
+func (m *model) latestIsDamaged() bool {
+	d := m.newestDamaged()
+	if d == 0 {
+		return false
+	}
+	v := m.latest()
+	return v == nil || v.n < d
 }
 
 // handle returns "name@vN".
@@ -120,7 +149,9 @@ const (
 	modelFormat     = "veer-model/1"
 	tombstoneFormat = "veer-tombstone/1"
 	modelExt        = ".model"
-	tombstoneExt    = ".deleted"
+	// lockFile is held (flock) by the process using the directory.
+	lockFile     = ".lock"
+	tombstoneExt = ".deleted"
 	// MaxModelBytes bounds one stored model document.
 	MaxModelBytes = 64 << 20
 )
@@ -131,14 +162,18 @@ var modelNameRE = regexp.MustCompile(`^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$`)
 // digits, '.', '_' or '-', starting with a letter or digit.
 func CheckModelName(name string) error {
 	if !modelNameRE.MatchString(name) {
-		return cell.WrongArgument.Errorf("%q cannot name a model: use 1 to 64 letters, digits, '.', '_' or '-', starting with a letter or digit", name)
+		return cell.WrongArgument.Errorf("%s cannot name a model: use 1 to 64 letters, digits, '.', '_' or '-', starting with a letter or digit", quoteName(name))
 	}
 	return nil
 }
 
 // OpenRegistry opens (creating it if needed, mode 0700) the registry in dir
-// and loads every valid model file. Damaged files are skipped with a warning;
-// temporary files older than an hour (left by a crash) are removed.
+// and loads every valid model file. A damaged version file is kept out of
+// use but remembered (see Get and List), with a warning that names no
+// model. Temporary files of saves a crash interrupted are removed at once
+// when this process is the only one using dir (it holds the directory's
+// lock until Close); otherwise only those older than an hour are, since
+// another live process may be writing the younger ones.
 func OpenRegistry(dir string, log *slog.Logger) (*Registry, error) {
 	if log == nil {
 		log = slog.New(slog.DiscardHandler)
@@ -147,20 +182,31 @@ func OpenRegistry(dir string, log *slog.Logger) (*Registry, error) {
 		return nil, fmt.Errorf("creating model directory: %w", err)
 	}
 	r := &Registry{dir: dir, log: log, models: map[string]*model{}, watchers: map[int]func(string){}, oldDocs: lru.New[string, []byte](64, 128<<20)}
+	r.unlock = lockDir(filepath.Join(dir, lockFile))
 	entries, err := os.ReadDir(dir)
 	if err != nil {
+		r.Close()
 		return nil, fmt.Errorf("reading model directory: %w", err)
 	}
+	removed := 0
 	for _, e := range entries {
 		name := e.Name()
 		switch {
 		case atomicfile.IsTemp(name):
-			if info, err := e.Info(); err == nil && time.Since(info.ModTime()) > time.Hour {
-				os.Remove(filepath.Join(dir, name))
+			// A temporary file is never a saved version: a save that
+			// completed linked it to its version's name first.
+			info, err := e.Info()
+			if err == nil && (r.unlock != nil || time.Since(info.ModTime()) > time.Hour) {
+				if os.Remove(filepath.Join(dir, name)) == nil {
+					removed++
+				}
 			}
 		case strings.HasSuffix(name, tombstoneExt):
 			r.loadTombstone(name)
 		}
+	}
+	if removed > 0 {
+		r.log.Info("removed temporary files left by an interrupted save", "files", removed)
 	}
 	for _, e := range entries {
 		if strings.HasSuffix(e.Name(), modelExt) && !e.IsDir() {
@@ -177,12 +223,31 @@ func OpenRegistry(dir string, log *slog.Logger) (*Registry, error) {
 			kept = append(kept, v)
 		}
 		m.versions = kept
+		for n := range m.damaged {
+			if n <= m.deleted {
+				os.Remove(filepath.Join(dir, key+"@v"+strconv.Itoa(n)+modelExt))
+				delete(m.damaged, n)
+			}
+		}
 		sort.Slice(m.versions, func(i, j int) bool { return m.versions[i].n < m.versions[j].n })
 		if len(m.versions) > 0 {
 			r.log.Debug("model loaded", "versions", len(m.versions), "key_len", len(key))
 		}
 	}
 	return r, nil
+}
+
+// Close releases the directory's lock. The registry must not be used
+// afterwards.
+func (r *Registry) Close() error {
+	r.mu.Lock()
+	unlock := r.unlock
+	r.unlock = nil
+	r.mu.Unlock()
+	if unlock != nil {
+		unlock()
+	}
+	return nil
 }
 
 func (r *Registry) loadTombstone(file string) {
@@ -193,7 +258,7 @@ func (r *Registry) loadTombstone(file string) {
 	}
 	key := strings.TrimSuffix(file, tombstoneExt)
 	if err != nil || t.Format != tombstoneFormat || strings.ToLower(t.Name) != key || t.UpTo < 1 {
-		r.log.Warn("skipping damaged tombstone file", "file", file)
+		r.log.Warn("skipping damaged tombstone file")
 		return
 	}
 	m := r.models[key]
@@ -206,18 +271,27 @@ func (r *Registry) loadTombstone(file string) {
 
 func (r *Registry) loadVersion(file string) {
 	path := filepath.Join(r.dir, file)
+	key, n, named := parseFileName(file)
 	h, doc, err := readModelFile(path)
-	if err == nil {
-		key, n, ok := parseFileName(file)
-		if !ok || strings.ToLower(h.Name) != key || h.Version != n {
-			err = errors.New("file name does not match its header")
-		}
+	if err == nil && (!named || strings.ToLower(h.Name) != key || h.Version != n) {
+		err = errors.New("the file name does not match its header")
 	}
 	if err != nil {
-		r.log.Warn("skipping damaged model file", "file", file, "err", err.Error())
+		// The log names no model (names can identify people or sites).
+		r.log.Warn("skipping damaged model file", "version", n, "err", err.Error())
+		if named {
+			m := r.models[key]
+			if m == nil {
+				m = &model{name: key}
+				r.models[key] = m
+			}
+			if m.damaged == nil {
+				m.damaged = map[int]string{}
+			}
+			m.damaged[n] = err.Error()
+		}
 		return
 	}
-	key := strings.ToLower(h.Name)
 	m := r.models[key]
 	if m == nil {
 		m = &model{name: h.Name}
@@ -332,7 +406,7 @@ func (r *Registry) Save(name string, doc []byte) (string, bool, error) {
 			return "", false, cell.UnknownModel.Errorf("model %q is built in and read-only; save under another name", m.name)
 		}
 		if v := m.latest(); v != nil {
-			if v.sha == sha {
+			if v.sha == sha && !m.latestIsDamaged() {
 				h := handle(m.name, v.n)
 				r.mu.RUnlock()
 				return h, false, nil
@@ -390,17 +464,29 @@ func (r *Registry) Save(name string, doc []byte) (string, bool, error) {
 }
 
 // Get returns a model by bare name (latest version) or handle ("name@v3").
-// Unknown names and versions are #REF! errors.
+// Unknown names and versions are #REF! errors. A damaged version is a #REF!
+// error that says so, by handle and, when it is the newest version, by
+// bare name too: a bare name never quietly means an older version.
 func (r *Registry) Get(ref string) (cell.ModelRef, error) {
 	name, n, ok := cell.SplitHandle(strings.TrimSpace(ref))
 	if !ok || CheckModelName(name) != nil {
-		return cell.ModelRef{}, cell.UnknownModel.Errorf("%q is not a model name or handle (like bp or bp@v3)", ref)
+		return cell.ModelRef{}, cell.UnknownModel.Errorf("%s is not a model name or handle (like bp or bp@v3)", quoteName(ref))
 	}
 	key := strings.ToLower(name)
 	r.mu.RLock()
 	m := r.models[key]
 	var v *version
 	if m != nil {
+		if why, bad := m.damaged[n]; bad && n > 0 {
+			r.mu.RUnlock()
+			return cell.ModelRef{}, cell.UnknownModel.Errorf("version %d of model %s is damaged on disk (%s)%s", n, quoteName(m.name), why, m.intactHint())
+		}
+		if n == 0 && m.latestIsDamaged() {
+			d := m.newestDamaged()
+			why := m.damaged[d]
+			r.mu.RUnlock()
+			return cell.ModelRef{}, cell.UnknownModel.Errorf("the newest version of model %s, %s, is damaged on disk (%s)%s", quoteName(m.name), handle(m.name, d), why, m.intactHint())
+		}
 		if n == 0 {
 			v = m.latest()
 		} else {
@@ -408,11 +494,11 @@ func (r *Registry) Get(ref string) (cell.ModelRef, error) {
 		}
 	}
 	if v == nil {
-		r.mu.RUnlock()
+		defer r.mu.RUnlock()
 		if m != nil && len(m.versions) > 0 {
-			return cell.ModelRef{}, cell.UnknownModel.Errorf("model %q has no version %d (latest is %d)", m.name, n, m.latest().n)
+			return cell.ModelRef{}, cell.UnknownModel.Errorf("model %s has no version %d (latest is %d)", quoteName(m.name), n, m.latest().n)
 		}
-		return cell.ModelRef{}, cell.UnknownModel.Errorf("there is no model named %q; fit one or check the name", name)
+		return cell.ModelRef{}, cell.UnknownModel.Errorf("there is no model named %s; fit one or check the name", quoteName(name))
 	}
 	ref2 := cell.ModelRef{Name: m.name, Version: v.n, Handle: handle(m.name, v.n), Doc: v.doc, SHA256: v.sha, Saved: v.saved, Builtin: m.builtin}
 	path := v.path
@@ -436,6 +522,15 @@ func (r *Registry) Get(ref string) (cell.ModelRef, error) {
 	return ref2, nil
 }
 
+// intactHint says what to do about a damaged version: name the newest
+// intact one, or fit again. Call with r.mu held.
+func (m *model) intactHint() string {
+	if v := m.latest(); v != nil {
+		return fmt.Sprintf("; %s is the newest intact version: name it to use it, or fit the model again", handle(m.name, v.n))
+	}
+	return "; fit the model again"
+}
+
 // Resolve returns the handle a name or handle currently stands for, without
 // reading the document; ok is false when it does not exist.
 func (r *Registry) Resolve(ref string) (string, bool) {
@@ -446,7 +541,10 @@ func (r *Registry) Resolve(ref string) (string, bool) {
 	r.mu.RLock()
 	defer r.mu.RUnlock()
 	m := r.models[strings.ToLower(name)]
-	if m == nil {
+	if m == nil || (n == 0 && m.latestIsDamaged()) {
+		return "", false
+	}
+	if _, bad := m.damaged[n]; bad && n > 0 {
 		return "", false
 	}
 	var v *version
@@ -466,7 +564,7 @@ func (r *Registry) Resolve(ref string) (string, bool) {
 // the files. Version numbers of a deleted name are not reused.
 func (r *Registry) Delete(name string) error {
 	if _, n, ok := cell.SplitHandle(name); !ok || n != 0 {
-		return cell.WrongArgument.Errorf("delete takes a model name, not a handle like %q: all versions are deleted", name)
+		return cell.WrongArgument.Errorf("delete takes a model name, not a handle like %s: all versions are deleted", quoteName(name))
 	}
 	if err := CheckModelName(name); err != nil {
 		return err
@@ -476,7 +574,7 @@ func (r *Registry) Delete(name string) error {
 	defer r.saveMu.Unlock()
 	r.mu.RLock()
 	m := r.models[key]
-	if m == nil || len(m.versions) == 0 {
+	if m == nil || (len(m.versions) == 0 && len(m.damaged) == 0) {
 		r.mu.RUnlock()
 		return cell.UnknownModel.Errorf("there is no model named %q", name)
 	}
@@ -484,11 +582,17 @@ func (r *Registry) Delete(name string) error {
 		r.mu.RUnlock()
 		return cell.UnknownModel.Errorf("model %q is built in and cannot be deleted", m.name)
 	}
-	upTo := m.latest().n
+	upTo := m.newestDamaged()
+	if v := m.latest(); v != nil {
+		upTo = max(upTo, v.n)
+	}
 	disp := m.name
-	paths := make([]string, 0, len(m.versions))
+	paths := make([]string, 0, len(m.versions)+len(m.damaged))
 	for _, v := range m.versions {
 		paths = append(paths, v.path)
+	}
+	for n := range m.damaged {
+		paths = append(paths, filepath.Join(r.dir, key+"@v"+strconv.Itoa(n)+modelExt))
 	}
 	r.mu.RUnlock()
 
@@ -506,6 +610,7 @@ func (r *Registry) Delete(name string) error {
 
 	r.mu.Lock()
 	m.versions = nil
+	m.damaged = nil
 	m.deleted = upTo
 	r.mu.Unlock()
 	r.log.Info("model deleted", "versions", len(paths))
@@ -544,32 +649,42 @@ func (r *Registry) AddBuiltin(name string, doc []byte) (string, error) {
 type VersionInfo struct {
 	Version int       `json:"version"`
 	Handle  string    `json:"handle"`
-	SHA256  string    `json:"sha256"`
+	SHA256  string    `json:"sha256,omitempty"`
 	Size    int       `json:"size"`
 	Saved   time.Time `json:"saved,omitzero"`
+	// Damaged says what is wrong with a version whose file failed its
+	// check; such a version cannot be read.
+	Damaged string `json:"damaged,omitempty"`
 }
 
 // ModelInfo describes one model and its versions (oldest first).
 type ModelInfo struct {
-	Name     string        `json:"name"`
-	Builtin  bool          `json:"builtin"`
+	Name    string `json:"name"`
+	Builtin bool   `json:"builtin"`
+	// Latest is the handle of the newest version, which a bare name
+	// means; it can be a damaged version (see Versions).
 	Latest   string        `json:"latest"`
 	Versions []VersionInfo `json:"versions"`
 }
 
-// List returns all models sorted by name.
+// List returns all models sorted by name, damaged versions included.
 func (r *Registry) List() []ModelInfo {
 	r.mu.RLock()
 	defer r.mu.RUnlock()
 	out := []ModelInfo{}
 	for _, m := range r.models {
-		if len(m.versions) == 0 {
+		if len(m.versions) == 0 && len(m.damaged) == 0 {
 			continue
 		}
-		mi := ModelInfo{Name: m.name, Builtin: m.builtin, Latest: handle(m.name, m.latest().n)}
+		mi := ModelInfo{Name: m.name, Builtin: m.builtin}
 		for _, v := range m.versions {
 			mi.Versions = append(mi.Versions, VersionInfo{Version: v.n, Handle: handle(m.name, v.n), SHA256: v.sha, Size: v.size, Saved: v.saved})
 		}
+		for n, why := range m.damaged {
+			mi.Versions = append(mi.Versions, VersionInfo{Version: n, Handle: handle(m.name, n), Damaged: why})
+		}
+		sort.Slice(mi.Versions, func(i, j int) bool { return mi.Versions[i].Version < mi.Versions[j].Version })
+		mi.Latest = mi.Versions[len(mi.Versions)-1].Handle
 		out = append(out, mi)
 	}
 	sort.Slice(out, func(i, j int) bool { return strings.ToLower(out[i].Name) < strings.ToLower(out[j].Name) })

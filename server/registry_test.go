@@ -17,6 +17,7 @@ import (
 	"time"
 
 	"veer/functions/cell"
+	"veer/internal/atomicfile"
 	"veer/server/servertest"
 )
 
@@ -115,8 +116,9 @@ func equalJSON(a, b any) bool {
 	return bytes.Equal(x, y)
 }
 
-// TestRegistryDamagedFiles: damaged and partial files are skipped with a
-// warning; the rest loads.
+// TestRegistryDamagedFiles: damaged and partial files are kept out of use
+// with a warning that names no model, listed as damaged, and the rest
+// loads.
 func TestRegistryDamagedFiles(t *testing.T) {
 	dir := t.TempDir()
 	r, _ := openReg(t, dir)
@@ -126,6 +128,7 @@ func TestRegistryDamagedFiles(t *testing.T) {
 	r.Save("keep", []byte(`{"k":2}`))
 	r.Save("flip", []byte(`{"v":1}`))
 	r.Save("cut", []byte(`{"v":1}`))
+	r.Close()
 	// A flipped byte in the document.
 	p := filepath.Join(dir, "flip@v1.model")
 	b, _ := os.ReadFile(p)
@@ -152,17 +155,41 @@ func TestRegistryDamagedFiles(t *testing.T) {
 
 	r2, logs := openReg(t, dir)
 	list := r2.List()
-	if len(list) != 2 || list[0].Name != "good" || len(list[0].Versions) != 2 || list[1].Name != "keep" {
-		t.Fatalf("List after damage = %+v", list)
+	var intact, damaged []string
+	for _, m := range list {
+		for _, v := range m.Versions {
+			if v.Damaged != "" {
+				damaged = append(damaged, v.Handle)
+			} else {
+				intact = append(intact, v.Handle)
+			}
+		}
+	}
+	if got := strings.Join(intact, " "); got != "good@v1 good@v2 keep@v1 keep@v2" {
+		t.Errorf("intact versions after damage: %s", got)
+	}
+	if got := strings.Join(damaged, " "); got != "cut@v1 flip@v1 hdr@v1 junk@v1 other@v7" {
+		t.Errorf("damaged versions listed: %s", got)
 	}
 	for range 2 { // read from disk, then from the cache of old versions
 		if m, err := r2.Get("keep@v1"); err != nil || string(m.Doc) != `{"k":1}` {
 			t.Errorf("old version of a good model: %q, %v", m.Doc, err)
 		}
 	}
+	for _, ref := range []string{"flip", "flip@v1", "cut", "other@v7"} {
+		_, err := r2.Get(ref)
+		if e := cell.AsError(err); e == nil || e.Code != cell.CodeRef || !strings.Contains(e.Message, "damaged") {
+			t.Errorf("Get(%s) = %v; want #REF! saying the version is damaged", ref, err)
+		}
+	}
 	warn := strings.Count(logs.String(), "skipping damaged model file")
 	if warn != 5 {
 		t.Errorf("%d warnings; want 5 (flip, cut, junk, hdr, other): %s", warn, logs)
+	}
+	for _, name := range []string{"flip", "cut", "junk", "hdr", "other"} {
+		if strings.Contains(logs.String(), name+"@") || strings.Contains(logs.String(), `"`+name+`"`) || strings.Contains(logs.String(), "="+name) {
+			t.Errorf("the log names the model %s: %s", name, logs)
+		}
 	}
 	for _, p := range []string{tmp, tmpOld} {
 		if _, err := os.Stat(p); !os.IsNotExist(err) {
@@ -176,6 +203,91 @@ func TestRegistryDamagedFiles(t *testing.T) {
 	os.WriteFile(p, b, 0o600)
 	if _, err := r2.Get("good@v1"); cell.AsError(err).Code != cell.CodeRef {
 		t.Errorf("damaged old version served: %v", err)
+	}
+	// Deleting a model with a damaged version removes its file too.
+	if err := r2.Delete("flip"); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "flip@v1.model")); !os.IsNotExist(err) {
+		t.Errorf("the damaged version's file is still there after a delete")
+	}
+	if h, _, _ := r2.Save("flip", []byte("new")); h != "flip@v2" {
+		t.Errorf("save after deleting a damaged model gave %s; want flip@v2", h)
+	}
+}
+
+// TestRegistryDamagedNewest: when the newest version of a model is damaged,
+// its bare name fails with a message that says so and names the newest
+// intact version, instead of quietly meaning an older version; its handle
+// says "damaged" (not "no version"); the next save takes the next number.
+func TestRegistryDamagedNewest(t *testing.T) {
+	dir := t.TempDir()
+	r, _ := openReg(t, dir)
+	for _, doc := range []string{`{"v":1}`, `{"v":2}`, `{"v":3}`} {
+		r.Save("bp", []byte(doc))
+	}
+	r.Close()
+	p := filepath.Join(dir, "bp@v3.model")
+	b, _ := os.ReadFile(p)
+	b[len(b)-2] ^= 0x20
+	os.WriteFile(p, b, 0o600)
+
+	r2, _ := openReg(t, dir)
+	defer r2.Close()
+	_, err := r2.Get("bp")
+	if e := cell.AsError(err); e == nil || e.Code != cell.CodeRef || !strings.Contains(e.Message, "newest version") ||
+		!strings.Contains(e.Message, "bp@v3") || !strings.Contains(e.Message, "damaged") || !strings.Contains(e.Message, "bp@v2 is the newest intact version") {
+		t.Errorf("Get(bp) with a damaged newest version = %v", err)
+	}
+	_, err = r2.Get("bp@v3")
+	if e := cell.AsError(err); e == nil || e.Code != cell.CodeRef || !strings.Contains(e.Message, "damaged") || strings.Contains(e.Message, "no version") {
+		t.Errorf("Get(bp@v3) = %v; want it called damaged", err)
+	}
+	if m, err := r2.Get("bp@v2"); err != nil || string(m.Doc) != `{"v":2}` {
+		t.Errorf("the intact version by handle: %q, %v", m.Doc, err)
+	}
+	if h, ok := r2.Resolve("bp"); ok {
+		t.Errorf("Resolve(bp) = %s; a bare name whose newest version is damaged resolves to nothing", h)
+	}
+	if l := r2.List(); len(l) != 1 || l[0].Latest != "bp@v3" || l[0].Versions[2].Damaged == "" {
+		t.Errorf("List = %+v", l)
+	}
+	// Saving the content of v2 again is a new version: v2 is not the newest.
+	if h, created, err := r2.Save("bp", []byte(`{"v":2}`)); err != nil || h != "bp@v4" || !created {
+		t.Errorf("save after a damaged newest version = %s, %v, %v; want bp@v4, a new version", h, created, err)
+	}
+	if m, err := r2.Get("bp"); err != nil || m.Handle != "bp@v4" {
+		t.Errorf("after a new save, Get(bp) = %s, %v", m.Handle, err)
+	}
+	// The damaged version stays listed and keeps its number.
+	if _, err := r2.Get("bp@v3"); !strings.Contains(fmt.Sprint(err), "damaged") {
+		t.Errorf("Get(bp@v3) after the new save = %v", err)
+	}
+}
+
+// TestRegistryRemovesTemporaryFilesAtOnce: temporary files a crash left
+// behind are removed when the registry opens, however young, when no other
+// process uses the directory; with another process holding it, young ones
+// are kept (that process may be writing them).
+func TestRegistryRemovesTemporaryFilesAtOnce(t *testing.T) {
+	dir := t.TempDir()
+	tmp := filepath.Join(dir, ".bp@v1.model.tmp-42")
+	os.WriteFile(tmp, []byte("half a save"), 0o600)
+	first, _ := openReg(t, dir)
+	if _, err := os.Stat(tmp); !os.IsNotExist(err) {
+		t.Errorf("a young temporary file was kept by the only process using the directory")
+	}
+	os.WriteFile(tmp, []byte("another process is writing this"), 0o600)
+	second, _ := openReg(t, dir) // the first still holds the directory
+	if _, err := os.Stat(tmp); err != nil {
+		t.Errorf("a young temporary file was removed while another registry used the directory: %v", err)
+	}
+	second.Close()
+	first.Close()
+	third, _ := openReg(t, dir)
+	defer third.Close()
+	if _, err := os.Stat(tmp); !os.IsNotExist(err) {
+		t.Errorf("the temporary file survived a reopen after the others closed")
 	}
 }
 
@@ -305,6 +417,14 @@ func TestRegistrySurvivesKill(t *testing.T) {
 		if strings.Contains(logs.String(), "damaged") {
 			t.Errorf("round %d: damaged files after kill: %s", round, logs)
 		}
+		// The killed save's temporary file is gone at once (no other
+		// process uses the directory).
+		entries, _ := os.ReadDir(dir)
+		for _, e := range entries {
+			if atomicfile.IsTemp(e.Name()) {
+				t.Errorf("round %d: temporary file %s left after the reopen", round, e.Name())
+			}
+		}
 		versions := 0
 		for _, m := range r.List() {
 			for _, v := range m.Versions {
@@ -330,6 +450,7 @@ func TestRegistrySurvivesKill(t *testing.T) {
 		if versions < len(acked) {
 			t.Errorf("round %d: %d versions on disk but %d saves completed", round, versions, len(acked))
 		}
+		r.Close()
 		t.Logf("round %d: killed after %d acknowledged saves; %d versions on disk", round, got, versions)
 	}
 }

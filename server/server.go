@@ -219,11 +219,12 @@ func (s *Server) shutdown(hs *http.Server) {
 }
 
 // Close releases the server's resources after Serve has returned:
-// remaining computations are cancelled and the registry watch stops.
+// remaining computations are cancelled, the registry watch stops and the
+// lock on the model directory is released.
 func (s *Server) Close() error {
 	s.baseCancel()
 	s.stopWatch()
-	return nil
+	return s.reg.Close()
 }
 
 // modelChanged fans a registry change out to websocket subscriptions.
