@@ -43,6 +43,12 @@ type Config struct {
 	TLS *tls.Config
 	// Static, if set, is served read-only at /addin/ (the web add-in files).
 	Static fs.FS
+	// AllowRemote lets the server listen on an address other computers
+	// can reach. Without it Listen and Serve refuse any address that is
+	// not loopback. With it the server needs TLS, and every call (every
+	// /v1/ request and every websocket message) needs the install token,
+	// reads included.
+	AllowRemote bool
 }
 
 // Limits bound every input path. Zero values mean the default shown.

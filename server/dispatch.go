@@ -56,6 +56,7 @@ type outcome struct {
 
 // callOpts carry per-caller facts.
 type callOpts struct {
+	needToken  bool         // every call needs the token (remote access allowed)
 	authorized bool         // a valid install token came with the call
 	tokenSent  bool         // some token came with the call (in a header)
 	progress   progressSink // receives progress reports, or nil
@@ -78,6 +79,9 @@ func errOutcome(e *cell.Error) *outcome { return &outcome{err: e} }
 func (e *engine) call(ctx context.Context, req *request, opts callOpts) *outcome {
 	if req.fn == "" && req.shape == nil {
 		return errOutcome(cell.WrongArgument.Errorf("the call has no \"fn\" (function name)"))
+	}
+	if opts.needToken && !opts.authorized {
+		return errOutcome(cell.ValueError("this server accepts calls from other computers, so every call needs the install token: run `veer token` and paste it into the add-in settings (HTTP: header " + TokenHeader + "; websocket: a {\"token\": ...} message)"))
 	}
 	f, ok := e.cat.Lookup(req.fn)
 	if req.shape != nil {

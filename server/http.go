@@ -106,7 +106,7 @@ func (s *Server) handleCall(w http.ResponseWriter, r *http.Request) {
 			outs[i] = errOutcome(cell.WrongArgument.Errorf("\"cancel\" works only over the websocket"))
 			return
 		}
-		opts := callOpts{authorized: headerOK || tokenOK(s.token, req.token), tokenSent: r.Header.Get(TokenHeader) != ""}
+		opts := callOpts{needToken: s.cfg.AllowRemote, authorized: headerOK || tokenOK(s.token, req.token), tokenSent: r.Header.Get(TokenHeader) != ""}
 		outs[i] = s.eng.call(r.Context(), req, opts)
 	})
 	var b []byte

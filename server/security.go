@@ -26,6 +26,10 @@ import (
 //     websocket hijacking).
 //  3. Writes (functions marked Writes, PUT and DELETE of models) also need
 //     the install token (see ReadOrCreateToken).
+//  4. A server allowed to listen where other computers can reach it
+//     (Config.AllowRemote, which needs TLS) wants the token on every
+//     request and every call, reads included; without AllowRemote it
+//     refuses to listen anywhere but on loopback.
 
 // isLoopbackHost reports whether host (no port) names the loopback interface.
 func isLoopbackHost(host string) bool {
@@ -130,6 +134,13 @@ func (s *Server) guard(next http.Handler) http.Handler {
 		}
 		if r.Method == http.MethodOptions {
 			w.WriteHeader(http.StatusNoContent)
+			return
+		}
+		if s.cfg.AllowRemote && strings.HasPrefix(r.URL.Path, "/v1/") && r.URL.Path != "/v1/call" && r.URL.Path != "/v1/ws" &&
+			!tokenOK(s.token, r.Header.Get(TokenHeader)) {
+			// Calls and websocket messages are checked one by one (the
+			// token may travel inside them).
+			writeTransportError(w, http.StatusUnauthorized, "this server accepts requests from other computers, so every request needs the install token in the "+TokenHeader+" header: run `veer token` to see it")
 			return
 		}
 		next.ServeHTTP(w, r)

@@ -116,17 +116,65 @@ func (s *Server) URLs() []string {
 	return append([]string(nil), s.urls...)
 }
 
-// Listen opens a listener on Config.Addr. A non-loopback address is allowed
-// (a warning is logged) but requests still need an allowed Host header.
+// Listen opens a listener on Config.Addr. An address other computers can
+// reach is refused unless Config.AllowRemote is set (and then TLS is
+// required): health data must not leave this computer by accident.
 func (s *Server) Listen() (net.Listener, error) {
+	if err := s.checkAddr(s.cfg.Addr); err != nil {
+		return nil, err
+	}
 	ln, err := net.Listen("tcp", s.cfg.Addr)
 	if err != nil {
 		return nil, err
 	}
-	if ta, ok := ln.Addr().(*net.TCPAddr); ok && !ta.IP.IsLoopback() {
-		s.log.Warn("listening on a non-loopback address; health data may leave this computer", "addr", ln.Addr().String())
+	if err := s.checkListener(ln); err != nil {
+		ln.Close()
+		return nil, err
 	}
 	return ln, nil
+}
+
+// ErrNotLoopback is returned (wrapped) by Listen and Serve for an address
+// other computers can reach when Config.AllowRemote is not set.
+var ErrNotLoopback = errors.New("not a loopback address")
+
+// LoopbackAddr reports whether addr ("host:port") names the loopback
+// interface only: localhost, 127.0.0.0/8 or ::1 (not an empty or
+// unspecified host, which listens on every interface).
+func LoopbackAddr(addr string) bool {
+	host, _, err := net.SplitHostPort(addr)
+	return err == nil && isLoopbackHost(strings.ToLower(host))
+}
+
+// checkAddr refuses, before listening, an address that is not loopback
+// (a host name other than localhost, an unspecified or outside address).
+func (s *Server) checkAddr(addr string) error {
+	if _, _, err := net.SplitHostPort(addr); err != nil {
+		return fmt.Errorf("%s is not an address like 127.0.0.1:7311: %v", addr, err)
+	}
+	if LoopbackAddr(addr) {
+		return nil
+	}
+	return s.remoteAllowed(addr)
+}
+
+// checkListener applies the same rule to the address a listener got.
+func (s *Server) checkListener(ln net.Listener) error {
+	ta, ok := ln.Addr().(*net.TCPAddr)
+	if !ok || ta.IP.IsLoopback() {
+		return nil
+	}
+	return s.remoteAllowed(ln.Addr().String())
+}
+
+func (s *Server) remoteAllowed(addr string) error {
+	if !s.cfg.AllowRemote {
+		return fmt.Errorf("refusing to listen on %s, an address other computers can reach (health data must not leave this computer): use 127.0.0.1:PORT, or allow remote access explicitly, which then needs TLS and the install token on every call: %w", addr, ErrNotLoopback)
+	}
+	if s.cfg.TLS == nil {
+		return fmt.Errorf("listening on %s, an address other computers can reach, needs TLS so that health data and the token are encrypted on the network", addr)
+	}
+	return nil
 }
 
 // ListenAndServe listens on Config.Addr and serves until ctx is cancelled.
@@ -145,6 +193,9 @@ func (s *Server) ListenAndServe(ctx context.Context) error {
 // synchronous, so nothing is left half-written. Serve may be called for
 // several listeners; the first to end ends the server.
 func (s *Server) Serve(ctx context.Context, ln net.Listener) error {
+	if err := s.checkListener(ln); err != nil {
+		return err
+	}
 	scheme := "http"
 	if s.cfg.TLS != nil {
 		scheme = "https"
@@ -173,6 +224,9 @@ func (s *Server) Serve(ctx context.Context, ln net.Listener) error {
 	errc := make(chan error, 1)
 	go func() { errc <- hs.Serve(ln) }()
 	s.log.Info("serving", "addr", ln.Addr().String())
+	if ta, ok := ln.Addr().(*net.TCPAddr); ok && !ta.IP.IsLoopback() {
+		s.log.Warn("listening on an address other computers can reach; every call needs the install token")
+	}
 	select {
 	case err := <-errc:
 		if errors.Is(err, http.ErrServerClosed) {

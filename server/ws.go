@@ -440,7 +440,7 @@ func (conn *wsConn) handle(req *request, inBatch bool) (res wsResult, again *wsC
 		conn.authorized.Store(true)
 	}
 	call := conn.register(req)
-	opts := callOpts{authorized: conn.authorized.Load()}
+	opts := callOpts{needToken: conn.s.cfg.AllowRemote, authorized: conn.authorized.Load()}
 	if call.id != nil {
 		opts.progress = call
 	}
@@ -577,7 +577,7 @@ func (call *wsCall) updateLoop() {
 		if call.cctx.Err() != nil {
 			return
 		}
-		opts := callOpts{authorized: conn.authorized.Load()}
+		opts := callOpts{needToken: conn.s.cfg.AllowRemote, authorized: conn.authorized.Load()}
 		out := conn.s.eng.call(&call.cctx, &call.req, opts)
 		if call.cctx.Err() != nil {
 			return

@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"crypto/tls"
+	"errors"
 	"flag"
 	"fmt"
 	"io/fs"
@@ -58,10 +59,12 @@ func builtinModels() (map[string][]byte, error) {
 
 // serverFlags are the flags that locate and configure the server.
 type serverFlags struct {
-	addr, data string
-	origins    stringList
-	verbose    bool
-	tls        bool
+	addr, data  string
+	origins     stringList
+	hosts       stringList
+	verbose     bool
+	tls         bool
+	allowRemote bool
 
 	// Not flags. tlsConfig is set by runServe for --tls; testFiles, when
 	// set, is served at /addin/test/ (the browser tests' stand-in host).
@@ -75,6 +78,8 @@ func (f *serverFlags) register(fs *flag.FlagSet) {
 	fs.Var(&f.origins, "origin", "extra browser origin allowed to call the server, e.g. https://localhost:7312 (repeatable)")
 	fs.BoolVar(&f.verbose, "verbose", false, "log every call (function names, timings and sizes; never values or ids)")
 	fs.BoolVar(&f.tls, "tls", false, "serve HTTPS with the local certificate (created by 'veer cert' or on first use), as spreadsheet add-ins need")
+	fs.BoolVar(&f.allowRemote, "allow-remote", false, "allow an --addr other computers can reach; needs --tls, and every call then needs the token from 'veer token'")
+	fs.Var(&f.hosts, "host", "extra host name clients use to reach the server, e.g. screening.example.internal (repeatable; with --allow-remote)")
 }
 
 // dataDir returns the data folder the flags name, or the default.
@@ -133,8 +138,8 @@ func newServer(e *env, f *serverFlags) (*server.Server, error) {
 	}
 	s, err = server.New(server.Config{
 		Addr: f.addr, DataDir: dir, Catalogue: cat,
-		AllowedOrigins: f.origins, Logger: logger,
-		TLS: f.tlsConfig, Static: site,
+		AllowedOrigins: f.origins, AllowedHosts: f.hosts, Logger: logger,
+		TLS: f.tlsConfig, Static: site, AllowRemote: f.allowRemote,
 	})
 	if err != nil {
 		return nil, err
@@ -152,11 +157,17 @@ func newServer(e *env, f *serverFlags) (*server.Server, error) {
 }
 
 func runServe(e *env, args []string) error {
-	fs := newFlags(e, "serve", "[--addr 127.0.0.1:PORT] [--data DIR] [--tls]")
+	fs := newFlags(e, "serve", "[--addr 127.0.0.1:PORT] [--data DIR] [--tls] [--allow-remote --host NAME]")
 	var sf serverFlags
 	sf.register(fs)
 	if err := parseFlags(fs, args); err != nil {
 		return err
+	}
+	if sf.allowRemote && !sf.tls {
+		return usagef("--allow-remote needs --tls: health data and the token must be encrypted on the network")
+	}
+	if !sf.allowRemote && !server.LoopbackAddr(sf.addr) {
+		return notLoopback(sf.addr)
 	}
 	if sf.tls {
 		dir, err := sf.dataDir()
@@ -182,6 +193,9 @@ func runServe(e *env, args []string) error {
 	}
 	defer s.Close()
 	ln, err := s.Listen()
+	if errors.Is(err, server.ErrNotLoopback) {
+		return notLoopback(sf.addr)
+	}
 	if err != nil {
 		return fmt.Errorf("cannot listen on %s: %v", sf.addr, err)
 	}
@@ -205,6 +219,11 @@ func runServe(e *env, args []string) error {
 	err = <-done
 	fmt.Fprintln(e.stderr, "veer stopped.")
 	return err
+}
+
+// notLoopback refuses an address other computers can reach.
+func notLoopback(addr string) error {
+	return usagef("refusing to listen on %s: other computers could reach it, and health data must not leave this computer; use --addr 127.0.0.1:PORT, or add --allow-remote --tls (every call then needs the token from 'veer token')", addr)
 }
 
 func runToken(e *env, args []string) error {
