@@ -81,7 +81,7 @@ func (e *engine) call(ctx context.Context, req *request, opts callOpts) *outcome
 		return errOutcome(cell.WrongArgument.Errorf("the call has no \"fn\" (function name)"))
 	}
 	if opts.needToken && !opts.authorized {
-		return errOutcome(cell.ValueError("this server accepts calls from other computers, so every call needs the install token: run `veer token` and paste it into the add-in settings (HTTP: header " + TokenHeader + "; websocket: a {\"token\": ...} message)"))
+		return errOutcome(cell.WrongArgument.Errorf("%s", "this server accepts calls from other computers, so every call needs the install token: run `veer token` and paste it into the add-in settings (HTTP: header " + TokenHeader + "; websocket: a {\"token\": ...} message)"))
 	}
 	f, ok := e.cat.Lookup(req.fn)
 	if req.shape != nil {
@@ -488,6 +488,10 @@ type onceFlight struct {
 	done chan struct{}
 	val  any
 	err  error
+	// stopped: the computation failed after its caller's context ended,
+	// so its error says nothing about the inputs; a waiter whose own call
+	// goes on computes afresh.
+	stopped bool
 }
 
 // Once implements cell.Env.
@@ -508,7 +512,7 @@ func (c *callEnv) Once(key string, fn func() (any, error)) (any, error) {
 			if of.err == nil {
 				return of.val, nil
 			}
-			if isCtxErr(of.err) && c.ctx.Err() == nil {
+			if (of.stopped || isCtxErr(of.err)) && c.ctx.Err() == nil {
 				continue // the first caller gave up; try ourselves
 			}
 			return nil, of.err
@@ -528,6 +532,7 @@ func (c *callEnv) Once(key string, fn func() (any, error)) (any, error) {
 				}
 			}()
 			of.val, of.err = fn()
+			of.stopped = of.err != nil && c.ctx.Err() != nil
 		}()
 		if of.err == nil {
 			e.onceVal.Put(key, of.val, 1)

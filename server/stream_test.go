@@ -123,6 +123,67 @@ func TestCancellation(t *testing.T) {
 	servertest.Eventually(t, 5*time.Second, "the computation of a closed connection to stop", func() bool { return h.st.slowAborted.Load() == 2 })
 }
 
+// TestCancelledNeverCached: a call cancelled by its client (a websocket
+// cancel, an HTTP client that gives up) is never kept as an answer, even
+// when the cell function words the stop as an error of its own: an
+// identical call afterwards computes afresh. A call waiting in Env.Once
+// for a computation whose caller went away computes itself.
+func TestCancelledNeverCached(t *testing.T) {
+	h := startServer(t, "")
+	ws := h.dial()
+	waitProgress := func(id string) {
+		t.Helper()
+		for {
+			b := ws.read(10 * time.Second)
+			var a answer
+			json.Unmarshal(b, &a)
+			if a.Progress != nil && string(a.ID) == `"`+id+`"` {
+				return
+			}
+		}
+	}
+	// 1. A websocket cancel.
+	ws.sendJSON(map[string]any{"id": "a", "fn": "VEER.T.SLOWNUM", "args": []any{1.5, "ws"}})
+	waitProgress("a")
+	ws.sendJSON(map[string]any{"cancel": "a"})
+	eventually(t, 10*time.Second, "the cancelled computation to stop", func() bool { return h.st.slowAborted.Load() == 1 })
+	if a := h.callHTTP("VEER.T.SLOWNUM", 1.5, "ws"); string(a.Value) != "1.5" {
+		t.Errorf("the identical call after a cancel: %+v; want it computed afresh", a)
+	}
+	if n := h.st.slowStarts.Load(); n != 2 {
+		t.Errorf("%d computations; want 2 (the cancelled one and a fresh one)", n)
+	}
+	// 2. An HTTP client that stops waiting.
+	impatient := &http.Client{Timeout: 200 * time.Millisecond}
+	if resp, err := impatient.Post(h.base+"/v1/call", "application/json", strings.NewReader(`{"fn":"VEER.T.SLOWNUM","args":[1.5,"http"]}`)); err == nil {
+		resp.Body.Close()
+		t.Fatal("the impatient client got an answer")
+	}
+	eventually(t, 10*time.Second, "the abandoned computation to stop", func() bool { return h.st.slowAborted.Load() == 2 })
+	if a := h.callHTTP("VEER.T.SLOWNUM", 1.5, "http"); string(a.Value) != "1.5" {
+		t.Errorf("the identical call after a client timeout: %+v; want it computed afresh", a)
+	}
+	// 3. Env.Once: B waits for A's computation; A is cancelled; B computes.
+	ws.sendJSON(map[string]any{"id": "A", "fn": "VEER.T.SLOWONCE", "args": []any{1.5, "once", 1}})
+	waitProgress("A")
+	ws.sendJSON(map[string]any{"id": "B", "fn": "VEER.T.SLOWONCE", "args": []any{1.5, "once", 2}})
+	time.Sleep(50 * time.Millisecond)
+	ws.sendJSON(map[string]any{"cancel": "A"})
+	for {
+		a := ws.next(20 * time.Second)
+		if string(a.ID) != `"B"` || a.Progress != nil || a.Cancelled != nil {
+			continue
+		}
+		if string(a.Value) != "1.5" {
+			t.Errorf("the call that waited for a cancelled computation: %+v; want it computed afresh", a)
+		}
+		break
+	}
+	if a := h.callHTTP("VEER.T.SLOWONCE", 1.5, "once", 2); string(a.Value) != "1.5" {
+		t.Errorf("the same call again: %+v", a)
+	}
+}
+
 // TestSharedComputationAndCache: identical concurrent calls share one
 // computation; later identical calls are answered from the cache; a waiter
 // that leaves does not cancel the computation others wait for.

@@ -134,6 +134,31 @@ func toyCatalogue(st *toyState) *cell.Catalogue {
 			},
 		},
 		cell.Func{
+			Name: "VEER.T.SLOWNUM", Summary: "VEER.T.SLOW that words a stop as #NUM!, as a cell function may", Result: cell.ShapeValue, Slow: true,
+			Params: []cell.Param{{Name: "seconds", Type: cell.TypeNumber}, {Name: "tag", Type: cell.TypeAny, Optional: true}},
+			Call: func(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
+				secs, _ := a.Number(0)
+				if err := toySpin(ctx, env, st, secs); err != nil {
+					return nil, cell.OutOfRange.Errorf("the computation was cancelled")
+				}
+				return secs, nil
+			},
+		},
+		cell.Func{
+			Name: "VEER.T.SLOWONCE", Summary: "VEER.T.SLOWNUM shared through Env.Once by calls that differ only in caller", Result: cell.ShapeValue, Slow: true,
+			Params: []cell.Param{{Name: "seconds", Type: cell.TypeNumber}, {Name: "tag", Type: cell.TypeText}, {Name: "caller", Type: cell.TypeNumber}},
+			Call: func(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
+				secs, _ := a.Number(0)
+				tag, _ := a.Text(1)
+				return env.Once("toy.once:"+tag, func() (any, error) {
+					if err := toySpin(ctx, env, st, secs); err != nil {
+						return nil, cell.OutOfRange.Errorf("the computation was cancelled")
+					}
+					return secs, nil
+				})
+			},
+		},
+		cell.Func{
 			Name: "VEER.T.FIT", Summary: "fits a toy model (mean and sd of values) and saves it", Result: cell.ShapeValue, Writes: true,
 			Params: []cell.Param{{Name: "name", Type: cell.TypeText}, {Name: "values", Type: cell.TypeRange}},
 			Call: func(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
@@ -256,4 +281,29 @@ func toyCusum(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		out[i] = s
 	}
 	return out, nil
+}
+
+// toySpin waits secs seconds, reporting progress, and returns ctx.Err()
+// early when ctx ends.
+func toySpin(ctx context.Context, env cell.Env, st *toyState, secs float64) error {
+	st.slowStarts.Add(1)
+	d := time.Duration(secs * float64(time.Second))
+	start := time.Now()
+	tick := time.NewTicker(5 * time.Millisecond)
+	defer tick.Stop()
+	for {
+		el := time.Since(start)
+		if el >= d {
+			break
+		}
+		env.Progress(float64(el) / float64(d))
+		select {
+		case <-ctx.Done():
+			st.slowAborted.Add(1)
+			return ctx.Err()
+		case <-tick.C:
+		}
+	}
+	st.slowDone.Add(1)
+	return nil
 }
