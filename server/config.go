@@ -64,9 +64,18 @@ type Limits struct {
 	MaxCells int
 	// MaxBatch bounds the calls in one batch (default 100,000).
 	MaxBatch int
-	// MaxConcurrent bounds computations running at once; further ones wait
-	// for a slot within their time limit (default 2 x GOMAXPROCS, at least 4).
-	MaxConcurrent int
+	// Computations run in two lanes, so quick lookups never queue behind
+	// slow work: the slow lane takes calls of functions marked Slow and
+	// calls with more than QuickCells cells; the quick lane all others.
+	// MaxConcurrent bounds the quick lane's computations running at once
+	// (default 2 x GOMAXPROCS, at least 4), MaxConcurrentSlow the slow
+	// lane's (default GOMAXPROCS, at least 2); further calls wait for a
+	// slot of their lane within their time limit.
+	MaxConcurrent     int
+	MaxConcurrentSlow int
+	// QuickCells is the most cells a call of a function not marked Slow
+	// may have to run in the quick lane (default 20,000).
+	QuickCells int
 	// CallTimeout bounds one computation, including the wait for a slot
 	// (default 60 s).
 	CallTimeout time.Duration
@@ -111,6 +120,8 @@ func (l Limits) withDefaults() Limits {
 	def(&l.MaxCells, 8_000_000)
 	def(&l.MaxBatch, 100_000)
 	def(&l.MaxConcurrent, max(4, 2*runtime.GOMAXPROCS(0)))
+	def(&l.MaxConcurrentSlow, max(2, runtime.GOMAXPROCS(0)))
+	def(&l.QuickCells, 20_000)
 	defD(&l.CallTimeout, 60*time.Second)
 	defD(&l.SlowCallTimeout, 10*time.Minute)
 	def(&l.CacheEntries, 100_000)

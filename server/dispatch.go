@@ -27,7 +27,9 @@ type engine struct {
 	log *slog.Logger
 
 	base context.Context // cancelled when in-flight work must be abandoned
-	sem  chan struct{}
+	// quick and slow are the computation slots of the two lanes (see
+	// Limits.MaxConcurrent).
+	quick, slow chan struct{}
 
 	results *lru.Cache[string, *outcome]
 	onceVal *lru.Cache[string, any]
@@ -65,7 +67,8 @@ type callOpts struct {
 func newEngine(cat *cell.Catalogue, reg *Registry, lim Limits, log *slog.Logger, base context.Context) *engine {
 	return &engine{
 		cat: cat, reg: reg, lim: lim, log: log, base: base,
-		sem:         make(chan struct{}, lim.MaxConcurrent),
+		quick:       make(chan struct{}, lim.MaxConcurrent),
+		slow:        make(chan struct{}, lim.MaxConcurrentSlow),
 		results:     lru.New[string, *outcome](lim.CacheEntries, lim.CacheBytes),
 		onceVal:     lru.New[string, any](lim.OnceEntries, math.MaxInt64),
 		flights:     map[string]*flight{},
@@ -81,7 +84,7 @@ func (e *engine) call(ctx context.Context, req *request, opts callOpts) *outcome
 		return errOutcome(cell.WrongArgument.Errorf("the call has no \"fn\" (function name)"))
 	}
 	if opts.needToken && !opts.authorized {
-		return errOutcome(cell.WrongArgument.Errorf("%s", "this server accepts calls from other computers, so every call needs the install token: run `veer token` and paste it into the add-in settings (HTTP: header " + TokenHeader + "; websocket: a {\"token\": ...} message)"))
+		return errOutcome(cell.WrongArgument.Errorf("%s", "this server accepts calls from other computers, so every call needs the install token: run `veer token` and paste it into the add-in settings (HTTP: header "+TokenHeader+"; websocket: a {\"token\": ...} message)"))
 	}
 	f, ok := e.cat.Lookup(req.fn)
 	if req.shape != nil {
@@ -102,8 +105,10 @@ func (e *engine) call(ctx context.Context, req *request, opts callOpts) *outcome
 	if !ok {
 		return errOutcome(cell.UnknownFunction.Errorf("unknown function %s; GET /v1/functions lists the functions", quoteName(req.fn)))
 	}
+	cells := 0
 	for i, v := range req.args {
 		rows, cols := v.Dims()
+		cells += rows * cols
 		if rows == 1 {
 			rows = cols
 		}
@@ -126,7 +131,7 @@ func (e *engine) call(ctx context.Context, req *request, opts callOpts) *outcome
 	if o, ok := e.results.Get(key); ok && e.valid(o.deps) {
 		return o
 	}
-	return e.shared(ctx, key, f, args, opts)
+	return e.shared(ctx, key, f, args, opts, f.Slow || cells > e.lim.QuickCells)
 }
 
 // valid reports whether every model a result depends on still resolves to
@@ -209,7 +214,7 @@ func (fl *flight) progress(p float64) {
 // shared joins or starts the computation for key and waits for it or for
 // ctx. The first caller computes on its own goroutine; a computation is
 // cancelled only when every caller waiting for it has gone.
-func (e *engine) shared(ctx context.Context, key string, f *cell.Func, args cell.Args, opts callOpts) *outcome {
+func (e *engine) shared(ctx context.Context, key string, f *cell.Func, args cell.Args, opts callOpts, slow bool) *outcome {
 	e.mu.Lock()
 	if fl := e.flights[key]; fl != nil {
 		fl.waiters++
@@ -242,14 +247,14 @@ func (e *engine) shared(ctx context.Context, key string, f *cell.Func, args cell
 	left := false
 	if lh, ok := ctx.(leaveHook); ok {
 		lh.setLeave(leave)
-		e.run(&fl.ctx, fl, key, f, args, timeout)
+		e.run(&fl.ctx, fl, key, f, args, timeout, slow)
 		left = !lh.clearLeave()
 	} else if ctx.Done() != nil {
 		stop := context.AfterFunc(ctx, leave)
-		e.run(&fl.ctx, fl, key, f, args, timeout)
+		e.run(&fl.ctx, fl, key, f, args, timeout, slow)
 		left = !stop()
 	} else {
-		e.run(&fl.ctx, fl, key, f, args, timeout)
+		e.run(&fl.ctx, fl, key, f, args, timeout, slow)
 	}
 	if left {
 		return errOutcome(cell.Busy.Errorf("the call was cancelled").In(f.Name))
@@ -275,27 +280,32 @@ func (e *engine) leave(key string, fl *flight) {
 // the error of the call and the errors inside its result name the function
 // once (cell.Error.In, cell.EncodeResult); cell functions never name
 // themselves.
-func (e *engine) run(ctx *flightCtx, fl *flight, key string, f *cell.Func, args cell.Args, timeout time.Duration) {
+func (e *engine) run(ctx *flightCtx, fl *flight, key string, f *cell.Func, args cell.Args, timeout time.Duration, slow bool) {
 	defer ctx.release()
 	start := time.Now()
 	env := &fl.env
 	env.e, env.f, env.ctx, env.fl = e, f, ctx, fl
 	out := &outcome{fn: f}
-	// Take a computation slot without arming the context when one is free.
+	// Take a computation slot of the call's lane without arming the
+	// context when one is free.
+	sem, lane := e.quick, "quick"
+	if slow {
+		sem, lane = e.slow, "slow"
+	}
 	acquired := false
 	select {
-	case e.sem <- struct{}{}:
+	case sem <- struct{}{}:
 		acquired = true
 	default:
 		select {
-		case e.sem <- struct{}{}:
+		case sem <- struct{}{}:
 			acquired = true
 		case <-ctx.Done():
 		}
 	}
 	if acquired {
 		v, err, panicked := e.invoke(ctx, f, env, args)
-		<-e.sem
+		<-sem
 		switch {
 		case panicked:
 			out.err = cell.WrongArgument.Errorf("internal error; please report it (the server log names the place)").In(f.Name)
@@ -321,7 +331,7 @@ func (e *engine) run(ctx *flightCtx, fl *flight, key string, f *cell.Func, args 
 			e.results.Put(key, out, int64(len(key)+len(out.val)+200+64*len(out.deps)))
 		}
 	} else if errors.Is(ctx.Err(), context.DeadlineExceeded) {
-		out.err = cell.Busy.Errorf("all %d computation slots stayed busy for the whole %s time limit; recalculate later", e.lim.MaxConcurrent, timeout).In(f.Name)
+		out.err = cell.Busy.Errorf("all %d computation slots for %s calls stayed busy for the whole %s time limit; recalculate later", cap(sem), lane, timeout).In(f.Name)
 	} else {
 		out.err = cell.Busy.Errorf("the call was cancelled").In(f.Name)
 	}
@@ -345,7 +355,7 @@ func (e *engine) run(ctx *flightCtx, fl *flight, key string, f *cell.Func, args 
 		if out.err != nil {
 			code = out.err.Code
 		}
-		e.log.Log(context.Background(), lvl, "call", "fn", f.Name, "ms", float64(el.Microseconds())/1000, "result_bytes", len(out.val), "code", code)
+		e.log.Log(context.Background(), lvl, "call", "fn", f.Name, "lane", lane, "ms", float64(el.Microseconds())/1000, "result_bytes", len(out.val), "code", code)
 	}
 }
 

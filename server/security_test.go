@@ -255,7 +255,7 @@ func TestLimits(t *testing.T) {
 	h := startServer(t, "", func(c *Config) {
 		c.Limits = Limits{
 			MaxRequestBytes: 4096, MaxRows: 50, MaxCells: 120, MaxBatch: 5,
-			MaxConcurrent: 1, CallTimeout: 300 * time.Millisecond, SlowCallTimeout: time.Second,
+			MaxConcurrent: 1, MaxConcurrentSlow: 1, QuickCells: 10, CallTimeout: 300 * time.Millisecond, SlowCallTimeout: time.Second,
 		}
 	})
 	big := `{"fn":"VEER.T.ECHO","args":["` + strings.Repeat("x", 5000) + `"]}`
@@ -293,21 +293,48 @@ func TestLimits(t *testing.T) {
 	if a := h.Call("VEER.T.SLOW", 5); a.Code() != "#BUSY!" || !strings.Contains(a.Error.Message, "time limit of 1s") {
 		t.Errorf("slow call over its time limit: %+v", a)
 	}
-	// Concurrency: one slot, held by a slow call; another call waits for
-	// its whole time limit and gets #BUSY!.
+	// Concurrency: one slot per lane. The slow lane's slot is held by a
+	// slow call; a quick call is answered at once in its own lane, while a
+	// call with more than QuickCells cells waits in the slow lane for its
+	// whole time limit and gets #BUSY!.
 	done := make(chan servertest.Answer)
 	go func() { done <- h.Call("VEER.T.SLOW", 0.6, "hold") }()
 	servertest.Eventually(t, 5*time.Second, "the slot to be taken", func() bool { return h.st.slowStarts.Load() == 2 })
-	if a := h.Call("VEER.T.ADD", 40, 2); a.Code() != "#BUSY!" || !strings.Contains(a.Error.Message, "computation slots stayed busy") {
-		t.Errorf("call while all slots busy: %+v", a)
+	start := time.Now()
+	if a := h.Call("VEER.T.ADD", 40, 2); string(a.Value) != "42" {
+		t.Errorf("a quick call while the slow lane is full: %+v", a)
+	}
+	if el := time.Since(start); el > 250*time.Millisecond {
+		t.Errorf("a quick call waited %v behind a slow one", el)
+	}
+	if a := h.Call("VEER.T.MEAN", []float64{1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11}); a.Code() != "#BUSY!" || !strings.Contains(a.Error.Message, "computation slots for slow calls stayed busy") {
+		t.Errorf("a large call while the slow lane is full: %+v", a)
 	}
 	if a := <-done; string(a.Value) != "0.6" {
 		t.Errorf("slot holder: %+v", a)
 	}
 	// #BUSY! is not cached: the same call succeeds now.
-	if a := h.Call("VEER.T.ADD", 40, 2); string(a.Value) != "42" {
+	if a := h.Call("VEER.T.MEAN", []float64{1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11}); string(a.Value) != "6" {
 		t.Errorf("after the slot is free: %+v", a)
 	}
+}
+
+// TestQuickCellsLane: a call of a function not marked Slow with more than
+// QuickCells cells waits in the slow lane, so it cannot hold up lookups.
+func TestQuickCellsLane(t *testing.T) {
+	h := startServer(t, "", func(c *Config) {
+		c.Limits = Limits{MaxConcurrent: 1, MaxConcurrentSlow: 1, QuickCells: 10, CallTimeout: 300 * time.Millisecond, SlowCallTimeout: 3 * time.Second}
+	})
+	done := make(chan servertest.Answer)
+	go func() { done <- h.Call("VEER.T.SLOW", 1, "hold") }()
+	servertest.Eventually(t, 5*time.Second, "the slot to be taken", func() bool { return h.st.slowStarts.Load() == 1 })
+	if a := h.Call("VEER.T.MEAN", make([]float64, 11)); a.Code() != "#BUSY!" || !strings.Contains(a.Error.Message, "slow calls") {
+		t.Errorf("a large call of a quick function while the slow lane is full: %+v", a)
+	}
+	if a := h.Call("VEER.T.MEAN", make([]float64, 10)); string(a.Value) != "0" {
+		t.Errorf("a small call: %+v", a)
+	}
+	<-done
 }
 
 func errorsAs(err error, target **websocket.CloseError) bool {

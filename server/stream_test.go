@@ -130,12 +130,12 @@ func TestCancellation(t *testing.T) {
 // for a computation whose caller went away computes itself.
 func TestCancelledNeverCached(t *testing.T) {
 	h := startServer(t, "")
-	ws := h.dial()
+	ws := h.Dial()
 	waitProgress := func(id string) {
 		t.Helper()
 		for {
-			b := ws.read(10 * time.Second)
-			var a answer
+			b := ws.Read(10 * time.Second)
+			var a servertest.Answer
 			json.Unmarshal(b, &a)
 			if a.Progress != nil && string(a.ID) == `"`+id+`"` {
 				return
@@ -143,11 +143,11 @@ func TestCancelledNeverCached(t *testing.T) {
 		}
 	}
 	// 1. A websocket cancel.
-	ws.sendJSON(map[string]any{"id": "a", "fn": "VEER.T.SLOWNUM", "args": []any{1.5, "ws"}})
+	ws.Send(map[string]any{"id": "a", "fn": "VEER.T.SLOWNUM", "args": []any{1.5, "ws"}})
 	waitProgress("a")
-	ws.sendJSON(map[string]any{"cancel": "a"})
-	eventually(t, 10*time.Second, "the cancelled computation to stop", func() bool { return h.st.slowAborted.Load() == 1 })
-	if a := h.callHTTP("VEER.T.SLOWNUM", 1.5, "ws"); string(a.Value) != "1.5" {
+	ws.Send(map[string]any{"cancel": "a"})
+	servertest.Eventually(t, 10*time.Second, "the cancelled computation to stop", func() bool { return h.st.slowAborted.Load() == 1 })
+	if a := h.Call("VEER.T.SLOWNUM", 1.5, "ws"); string(a.Value) != "1.5" {
 		t.Errorf("the identical call after a cancel: %+v; want it computed afresh", a)
 	}
 	if n := h.st.slowStarts.Load(); n != 2 {
@@ -155,22 +155,22 @@ func TestCancelledNeverCached(t *testing.T) {
 	}
 	// 2. An HTTP client that stops waiting.
 	impatient := &http.Client{Timeout: 200 * time.Millisecond}
-	if resp, err := impatient.Post(h.base+"/v1/call", "application/json", strings.NewReader(`{"fn":"VEER.T.SLOWNUM","args":[1.5,"http"]}`)); err == nil {
+	if resp, err := impatient.Post(h.URL+"/v1/call", "application/json", strings.NewReader(`{"fn":"VEER.T.SLOWNUM","args":[1.5,"http"]}`)); err == nil {
 		resp.Body.Close()
 		t.Fatal("the impatient client got an answer")
 	}
-	eventually(t, 10*time.Second, "the abandoned computation to stop", func() bool { return h.st.slowAborted.Load() == 2 })
-	if a := h.callHTTP("VEER.T.SLOWNUM", 1.5, "http"); string(a.Value) != "1.5" {
+	servertest.Eventually(t, 10*time.Second, "the abandoned computation to stop", func() bool { return h.st.slowAborted.Load() == 2 })
+	if a := h.Call("VEER.T.SLOWNUM", 1.5, "http"); string(a.Value) != "1.5" {
 		t.Errorf("the identical call after a client timeout: %+v; want it computed afresh", a)
 	}
 	// 3. Env.Once: B waits for A's computation; A is cancelled; B computes.
-	ws.sendJSON(map[string]any{"id": "A", "fn": "VEER.T.SLOWONCE", "args": []any{1.5, "once", 1}})
+	ws.Send(map[string]any{"id": "A", "fn": "VEER.T.SLOWONCE", "args": []any{1.5, "once", 1}})
 	waitProgress("A")
-	ws.sendJSON(map[string]any{"id": "B", "fn": "VEER.T.SLOWONCE", "args": []any{1.5, "once", 2}})
+	ws.Send(map[string]any{"id": "B", "fn": "VEER.T.SLOWONCE", "args": []any{1.5, "once", 2}})
 	time.Sleep(50 * time.Millisecond)
-	ws.sendJSON(map[string]any{"cancel": "A"})
+	ws.Send(map[string]any{"cancel": "A"})
 	for {
-		a := ws.next(20 * time.Second)
+		a := ws.Next(20 * time.Second)
 		if string(a.ID) != `"B"` || a.Progress != nil || a.Cancelled != nil {
 			continue
 		}
@@ -179,7 +179,7 @@ func TestCancelledNeverCached(t *testing.T) {
 		}
 		break
 	}
-	if a := h.callHTTP("VEER.T.SLOWONCE", 1.5, "once", 2); string(a.Value) != "1.5" {
+	if a := h.Call("VEER.T.SLOWONCE", 1.5, "once", 2); string(a.Value) != "1.5" {
 		t.Errorf("the same call again: %+v", a)
 	}
 }
