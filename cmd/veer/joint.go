@@ -211,7 +211,7 @@ func (c *chartFlags) jointSettings(p int) (screening.JointSettings, error) {
 // jointCalibrationWithoutModel is the textbook case of p markers: i.i.d.
 // N(0, I) vectors at a fixed gap, method normal, the long horizon.
 func (c *chartFlags) jointCalibrationWithoutModel(s screening.JointSettings, p int) (joint.Calibration, error) {
-	if c.gap <= 0 {
+	if !c.gap.set {
 		return joint.Calibration{}, usagef("without --model, give the planned years between exams with --gap")
 	}
 	if c.method != string(monitor.Normal) {
@@ -219,7 +219,7 @@ func (c *chartFlags) jointCalibrationWithoutModel(s screening.JointSettings, p i
 	}
 	return joint.Calibration{
 		Settings: joint.Settings{Chart: s.Chart, Mode: monitor.Whiten, Model: joint.Independent(p)},
-		Method:   monitor.Normal, Gap: c.gap, Seed: c.seed, Paths: c.paths,
+		Method:   monitor.Normal, Gap: c.gap.v, Seed: c.seed, Paths: c.paths,
 	}, nil
 }
 

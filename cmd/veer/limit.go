@@ -3,8 +3,9 @@ package main
 import (
 	"flag"
 	"fmt"
-	"math"
 	"os"
+	"strconv"
+	"strings"
 
 	"veer/functions/chart"
 	"veer/functions/joint"
@@ -18,7 +19,8 @@ type chartFlags struct {
 	kind, side, serial, method string
 	horizon                    string
 	allowance, lambda, unit    float64
-	headStart, gap             float64
+	headStart                  float64
+	gap                        optionalFloat
 	restart                    bool
 	seed                       uint64
 	paths                      int
@@ -45,7 +47,7 @@ func (c *chartFlags) register(fs *flag.FlagSet) {
 	fs.StringVar(&c.serial, "serial", string(screening.SerialWhiten), "serial correlation: whiten (chart each reading against the worker's own predicted level, the Kalman innovation), direct (chart z; the limit carries the correlation) or off (ignore it)")
 	fs.StringVar(&c.method, "method", string(monitor.Normal), "how the limit is computed: normal or bootstrap")
 	fs.StringVar(&c.horizon, "horizon", string(monitor.HorizonFollowUp), "what the target counts: followup (worker-years of exams per false signal, workers followed as long as the reference workers; needs --model) or long (one worker with an unending exam history, the textbook average time to signal)")
-	fs.Float64Var(&c.gap, "gap", 0, "planned years between exams (0: the reference workers' own gaps; needed without --model)")
+	fs.Var(&c.gap, "gap", fmt.Sprintf("planned years between exams, from a day (%.4f) to %d years (default: the reference workers' own gaps; needed without --model)", monitor.MinGap, monitor.MaxGap))
 	fs.Uint64Var(&c.seed, "seed", screening.DefaultSeed, "seed of the Monte Carlo methods (the same seed gives the same limit)")
 	fs.IntVar(&c.paths, "paths", 0, "Monte Carlo paths (0: default, about 1.6% standard error)")
 }
@@ -77,15 +79,37 @@ func (c *chartFlags) settingsCommon() error {
 	default:
 		return usagef("--horizon must be followup or long, not %q", c.horizon)
 	}
-	if c.gap < 0 || math.IsNaN(c.gap) {
-		return usagef("--gap must be positive")
+	if c.gap.set && !(c.gap.v >= monitor.MinGap && c.gap.v <= monitor.MaxGap) {
+		return usagef("--gap must be from a day (%.4f years) to %d years, not %s; leave it out to use the reference workers' own gaps", monitor.MinGap, monitor.MaxGap, c.gap.String())
 	}
+	return nil
+}
+
+// optionalFloat is a number flag that knows whether it was given.
+type optionalFloat struct {
+	v   float64
+	set bool
+}
+
+func (f *optionalFloat) String() string {
+	if f == nil || !f.set {
+		return ""
+	}
+	return strconv.FormatFloat(f.v, 'g', -1, 64)
+}
+
+func (f *optionalFloat) Set(s string) error {
+	v, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
+	if err != nil {
+		return fmt.Errorf("%q is not a number", s)
+	}
+	f.v, f.set = v, true
 	return nil
 }
 
 func (c *chartFlags) limitOptions(progress func(done, total int)) screening.LimitOptions {
 	return screening.LimitOptions{
-		Method: monitor.Method(c.method), Gap: c.gap, Seed: c.seed, Paths: c.paths, Progress: progress,
+		Method: monitor.Method(c.method), Gap: c.gap.v, Seed: c.seed, Paths: c.paths, Progress: progress,
 		Horizon: monitor.Horizon(c.horizon),
 	}
 }
@@ -93,7 +117,7 @@ func (c *chartFlags) limitOptions(progress func(done, total int)) screening.Limi
 // calibrationWithoutModel is used when no model is given: i.i.d. N(0,1)
 // values at a fixed gap, method normal only, the textbook (long) horizon.
 func (c *chartFlags) calibrationWithoutModel(s screening.Settings) (monitor.Calibration, error) {
-	if c.gap <= 0 {
+	if !c.gap.set {
 		return monitor.Calibration{}, usagef("without --model, give the planned years between exams with --gap")
 	}
 	if c.method != string(monitor.Normal) {
@@ -103,7 +127,7 @@ func (c *chartFlags) calibrationWithoutModel(s screening.Settings) (monitor.Cali
 	// both chart independent N(0,1) scores.
 	return monitor.Calibration{
 		Settings: monitor.Settings{Chart: s.Chart, Mode: monitor.Direct, Serial: serial.Params{}},
-		Method:   monitor.Normal, Gap: c.gap, Seed: c.seed, Paths: c.paths,
+		Method:   monitor.Normal, Gap: c.gap.v, Seed: c.seed, Paths: c.paths,
 	}, nil
 }
 

@@ -44,6 +44,7 @@ var failureKinds = []struct {
 	{chart.ErrSetting, cell.OutOfRange},
 	{limit.ErrTargetTooShort, cell.OutOfRange},
 	{limit.ErrTargetTooLong, cell.OutOfRange},
+	{limit.ErrTooMuchWork, cell.OutOfRange},
 	{screening.ErrNoExams, cell.BadData},
 	// Published references (an age or group outside them is refcurve's
 	// kind, above).

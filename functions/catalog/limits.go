@@ -57,8 +57,8 @@ func chartSettings(o cell.Options, joint bool) (screening.Settings, screening.Li
 		Seed:    uint64(seed),
 		Paths:   int(reps),
 	}
-	if lo.Gap < 0 {
-		return s, lo, cell.OutOfRange.Errorf("the gap option must be a positive number of years")
+	if o.Has(cell.OptionGap) && !(lo.Gap >= monitor.MinGap && lo.Gap <= monitor.MaxGap) {
+		return s, lo, cell.OutOfRange.Errorf("the gap option must be from a day (%.4f years) to %d years, not %s; leave it out to use the reference workers' own gaps", monitor.MinGap, monitor.MaxGap, cell.FormatNumber(lo.Gap))
 	}
 	return s, lo, nil
 }

@@ -17,7 +17,24 @@ var (
 	// ErrTargetTooLong: no limit within reach gives an in-control run as
 	// long as requested.
 	ErrTargetTooLong = errors.New("the target is longer than any limit within reach gives")
+	// ErrTooMuchWork: a simulation would step through more exams than
+	// MonteCarlo.MaxExams allows (a *WorkError).
+	ErrTooMuchWork = errors.New("the simulation needs more exams than one computation may")
 )
+
+// WorkError is a simulation stopped at its budget of simulated exams; it
+// matches ErrTooMuchWork.
+type WorkError struct {
+	// Max is the budget (MonteCarlo.MaxExams).
+	Max int64
+}
+
+func (e *WorkError) Error() string {
+	return fmt.Sprintf("the simulation reached its budget of %d simulated exams", e.Max)
+}
+
+// Unwrap makes errors.Is(err, ErrTooMuchWork) true.
+func (e *WorkError) Unwrap() error { return ErrTooMuchWork }
 
 // reachError is a target no limit reaches, worded for the user; it
 // unwraps to its kind, ErrTargetTooShort or ErrTargetTooLong.

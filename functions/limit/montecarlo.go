@@ -89,15 +89,42 @@ type MonteCarlo struct {
 	// CapExams bounds the exams per path (default 200000); a path that
 	// reaches it is censored.
 	CapExams int
+	// MaxExams, if positive, bounds the exams simulated by all paths of all
+	// passes together; a simulation that reaches it ends with a *WorkError
+	// (ErrTooMuchWork). Callers estimate the work first and refuse what
+	// would not fit; this is the hard stop.
+	MaxExams int64
 	// Progress, if not nil, is called with the number of finished paths and
 	// the total of the current pass (a calibration makes a pilot pass and one
 	// or more main passes). Calls may come from any goroutine but never
 	// concurrently, and within a pass done increases.
 	Progress func(done, total int)
-	// Stop, if not nil, is asked before each path; when it answers true the
-	// simulation ends early with ErrStopped (a cancelled computation).
+	// Stop, if not nil, is asked before each path and every stopEvery exams
+	// within one; when it answers true the simulation ends early with
+	// ErrStopped (a cancelled computation).
 	Stop func() bool
 }
+
+// stopEvery is how many exams a path simulates between two asks of
+// MonteCarlo.Stop, so that a long path stops promptly too.
+const stopEvery = 1024
+
+// budget counts the exams a simulation has stepped through against
+// MaxExams.
+type budget struct {
+	max  int64
+	used atomic.Int64
+}
+
+// spend adds n exams and reports whether the budget still holds.
+func (b *budget) spend(n int) bool {
+	if b == nil || b.max <= 0 {
+		return true
+	}
+	return b.used.Add(int64(n)) <= b.max
+}
+
+func (mc MonteCarlo) newBudget() *budget { return &budget{max: mc.MaxExams} }
 
 func (mc MonteCarlo) withDefaults() MonteCarlo {
 	if mc.Paths <= 0 {
@@ -153,27 +180,34 @@ func (p *path) first(h float64) (float64, bool) {
 // maxima of g (the running-maximum construction: the first-passage time
 // T(h) of a path is non-decreasing in h, so ATS(h) = mean T(h) is monotone
 // and can be searched exactly).
-func (mc MonteCarlo) simulate(ns StatStreamFunc, n int, hMax, capTime float64, out []path) error {
+func (mc MonteCarlo) simulate(ns StatStreamFunc, n int, hMax, capTime float64, out []path, work *budget) error {
 	var (
 		next     atomic.Int64
 		done     atomic.Int64
 		mu       sync.Mutex
 		wg       sync.WaitGroup
 		firstErr error
+		failed   atomic.Bool
 		reported int64
 	)
+	fail := func(err error) {
+		mu.Lock()
+		if firstErr == nil {
+			firstErr = err
+		}
+		mu.Unlock()
+		failed.Store(true)
+	}
 	step := max(1, n/100)
 	for range min(mc.Workers, n) {
 		wg.Go(func() {
 			for {
 				i := int(next.Add(1) - 1)
-				if i >= n {
+				if i >= n || failed.Load() {
 					return
 				}
 				if mc.Stop != nil && mc.Stop() {
-					mu.Lock()
-					firstErr = ErrStopped
-					mu.Unlock()
+					fail(ErrStopped)
 					return
 				}
 				rng := rand.New(rand.NewPCG(mc.Seed, uint64(i)))
@@ -181,7 +215,12 @@ func (mc MonteCarlo) simulate(ns StatStreamFunc, n int, hMax, capTime float64, o
 				p := &out[i]
 				p.rec = p.rec[:0]
 				best, t := math.Inf(-1), 0.0
-				for range mc.CapExams {
+				k := 0
+				for ; k < mc.CapExams; k++ {
+					if k%stopEvery == stopEvery-1 && mc.Stop != nil && mc.Stop() {
+						fail(ErrStopped)
+						return
+					}
 					gap, g := s.Next()
 					gap = max(gap, 0)
 					t += gap
@@ -198,6 +237,10 @@ func (mc MonteCarlo) simulate(ns StatStreamFunc, n int, hMax, capTime float64, o
 					}
 				}
 				p.end = t
+				if !work.spend(min(k+1, mc.CapExams)) {
+					fail(&WorkError{Max: work.max})
+					return
+				}
 				if d := done.Add(1); mc.Progress != nil && (d%int64(step) == 0 || d == int64(n)) {
 					mu.Lock()
 					if d > reported {
@@ -291,7 +334,8 @@ func (mc MonteCarlo) CalibrateStat(target float64, ns StatStreamFunc, hint float
 	}
 	pilotN := min(mc.Paths, 400)
 	ps := make([]path, mc.Paths)
-	if err := mc.simulate(ns, pilotN, math.Inf(1), 4*target, ps[:pilotN]); err != nil {
+	work := mc.newBudget()
+	if err := mc.simulate(ns, pilotN, math.Inf(1), 4*target, ps[:pilotN], work); err != nil {
 		return Calibration{}, err
 	}
 	hMax, ok := invert(ps[:pilotN], 1.4*target, math.Inf(1))
@@ -305,7 +349,7 @@ func (mc MonteCarlo) CalibrateStat(target float64, ns StatStreamFunc, hint float
 	hMax = math.Max(hMax, hint)
 	capTime := mc.CapFactor * target
 	for range 12 {
-		if err := mc.simulate(ns, mc.Paths, hMax, capTime, ps); err != nil {
+		if err := mc.simulate(ns, mc.Paths, hMax, capTime, ps, work); err != nil {
 			return Calibration{}, err
 		}
 		h, ok := invert(ps, target, hMax)
@@ -370,16 +414,18 @@ func (mc MonteCarlo) DelayStat(h float64, ns StatStreamFunc, onset float64) (Run
 	var (
 		next, done atomic.Int64
 		stopped    atomic.Bool
+		overspent  atomic.Bool
 		mu         sync.Mutex
 		wg         sync.WaitGroup
 		reported   int64
 	)
+	work := mc.newBudget()
 	step := max(1, mc.Paths/100)
 	for range min(mc.Workers, mc.Paths) {
 		wg.Go(func() {
 			for {
 				i := int(next.Add(1) - 1)
-				if i >= mc.Paths {
+				if i >= mc.Paths || stopped.Load() || overspent.Load() {
 					return
 				}
 				if mc.Stop != nil && mc.Stop() {
@@ -390,7 +436,12 @@ func (mc MonteCarlo) DelayStat(h float64, ns StatStreamFunc, onset float64) (Run
 				s := ns(rng)
 				t := 0.0
 				flags[i] = 2
-				for range mc.CapExams {
+				k := 0
+				for ; k < mc.CapExams; k++ {
+					if k%stopEvery == stopEvery-1 && mc.Stop != nil && mc.Stop() {
+						stopped.Store(true)
+						return
+					}
 					gap, g := s.Next()
 					t += max(gap, 0)
 					if g > h {
@@ -402,6 +453,10 @@ func (mc MonteCarlo) DelayStat(h float64, ns StatStreamFunc, onset float64) (Run
 					}
 				}
 				times[i] = t - onset
+				if !work.spend(min(k+1, mc.CapExams)) {
+					overspent.Store(true)
+					return
+				}
 				if d := done.Add(1); mc.Progress != nil && (d%int64(step) == 0 || d == int64(mc.Paths)) {
 					mu.Lock()
 					if d > reported {
@@ -416,6 +471,9 @@ func (mc MonteCarlo) DelayStat(h float64, ns StatStreamFunc, onset float64) (Run
 	wg.Wait()
 	if stopped.Load() {
 		return RunLength{}, ErrStopped
+	}
+	if overspent.Load() {
+		return RunLength{}, &WorkError{Max: work.max}
 	}
 	var r RunLength
 	var s, s2 float64

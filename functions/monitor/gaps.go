@@ -9,12 +9,13 @@ import (
 )
 
 // GapPool returns the gaps between exams that Monte Carlo limits resample,
-// and their mean: nil and gap when gap > 0 (every gap is gap years);
+// and their mean: nil and gap when gap > 0 (every gap is gap years, from
+// MinGap to MaxGap);
 // otherwise gaps, each checked, or, when gaps is empty, the within-worker
 // gaps that within returns (e.g. those of the reference workers).
 func GapPool(gap float64, gaps []float64, within func() []float64) ([]float64, float64, error) {
-	if gap < 0 || math.IsNaN(gap) || math.IsInf(gap, 0) {
-		return nil, 0, &chart.SettingError{Setting: "gap", Value: gap, Want: "a positive number of years"}
+	if gap != 0 && !(gap >= MinGap && gap <= MaxGap) {
+		return nil, 0, &chart.SettingError{Setting: "gap", Value: gap, Want: fmt.Sprintf("from a day (%.4f years) to %d years", MinGap, MaxGap)}
 	}
 	if gap > 0 {
 		return nil, gap, nil

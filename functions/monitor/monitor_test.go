@@ -2,11 +2,13 @@ package monitor
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
 	"strings"
 	"testing"
+	"time"
 
 	"veer/functions/chart"
 	"veer/functions/serial"
@@ -282,7 +284,10 @@ func TestLimitBadInput(t *testing.T) {
 		{"target below one gap", nil, 1, "at least one mean gap"},
 		{"absurd target", nil, 1e7, "at most 10000 years"},
 		{"unknown method", func(c Calibration) Calibration { c.Method = "exact"; return c }, 20, "method must be"},
-		{"negative gap", func(c Calibration) Calibration { c.Gap = -1; return c }, 20, "gap"},
+		{"negative gap", func(c Calibration) Calibration { c.Gap = -1; return c }, 20, "gap must be from a day (0.0027 years) to 20 years"},
+		{"tiny gap", func(c Calibration) Calibration { c.Gap = 1e-9; return c }, 20, "gap must be from a day (0.0027 years) to 20 years"},
+		{"gap of a lifetime", func(c Calibration) Calibration { c.Gap = 25; return c }, 200, "gap must be from a day (0.0027 years) to 20 years"},
+		{"NaN gap", func(c Calibration) Calibration { c.Gap = math.NaN(); return c }, 20, "gap must be from a day"},
 		{"no gaps known", func(c Calibration) Calibration { c.Gap = 0; return c }, 20, "no gap"},
 		{"bad gap in list", func(c Calibration) Calibration { c.Gap, c.Gaps = 0, []float64{1, 0}; return c }, 20, "gap 2"},
 		{"bootstrap without reference", func(c Calibration) Calibration { c.Method = Bootstrap; return c }, 20, "at least 10 reference workers"},
@@ -316,8 +321,60 @@ func TestLimitBadInput(t *testing.T) {
 	if _, err := Delay(ok, 2, 1, -3); err == nil {
 		t.Error("negative onset accepted")
 	}
+	if _, err := Delay(ok, 2, 1, 150); err == nil || !strings.Contains(err.Error(), "onset must be from 0 to 100 years") {
+		t.Errorf("onset of 150 years: %v", err)
+	}
 	if _, err := Delay(ok, -2, 1, 0); err == nil {
 		t.Error("negative limit accepted")
+	}
+}
+
+// TestWorkIsBounded: a limit or delay that would simulate more exams than
+// the budget is refused before it starts, quickly, with a message that says
+// how to ask for less; asking for less then works. A limit that needs no
+// simulation (exact) is never refused.
+func TestWorkIsBounded(t *testing.T) {
+	ref := reference(200, 6, 5)
+	daily := Calibration{Settings: Settings{Chart: chart.DefaultSpec(), Mode: Direct, Serial: truth}, Method: Normal, Gap: MinGap, Reference: ref, Seed: 1, Horizon: HorizonFollowUp}
+	start := time.Now()
+	_, err := Limit(daily, 50)
+	var we *WorkError
+	if !errors.As(err, &we) || !errors.Is(err, ErrTooMuchWork) {
+		t.Fatalf("a 50-year target at daily exams: %v; want a *WorkError", err)
+	}
+	if el := time.Since(start); el > time.Second {
+		t.Errorf("the refusal took %v; it must come before any simulation", el)
+	}
+	for _, want := range []string{"million exams", "4000 paths", "reps=", "longer gap", "0.00274 years", "shorter target (now 50 years)"} {
+		if !strings.Contains(err.Error(), want) {
+			t.Errorf("message %q does not say %q", err, want)
+		}
+	}
+	// Fewer paths, as the message suggests, fit the budget.
+	daily.Paths = 200
+	daily.MaxExams = 3_000_000
+	if _, err := Limit(daily, 5); err != nil {
+		t.Errorf("200 paths at daily exams: %v", err)
+	}
+	// A budget the estimate fell short of stops the simulation itself.
+	daily.MaxExams = 1000
+	if _, err := Limit(daily, 5); !errors.Is(err, ErrTooMuchWork) {
+		t.Errorf("over a tiny budget: %v", err)
+	}
+	// Delays: the onset counts too.
+	d := Calibration{Settings: Settings{Chart: chart.DefaultSpec(), Mode: Direct, Serial: truth}, Method: Normal, Gap: MinGap, Seed: 1}
+	if _, err := Delay(d, 4, 1, 90); !errors.As(err, &we) || !strings.Contains(err.Error(), "earlier onset (now 90 years)") {
+		t.Errorf("a 90-year onset at daily exams: %v", err)
+	}
+	// A limit so high that paths do not signal: refused, not understated.
+	d.Gap, d.Paths, d.MaxExams = 1, 200, 200_000
+	if _, err := Delay(d, 60, 0, 0); !errors.Is(err, ErrTooMuchWork) || !strings.Contains(err.Error(), "had not signalled") {
+		t.Errorf("a limit no path reaches: %v", err)
+	}
+	// The exact limit needs no simulation: any target within range.
+	exact := Calibration{Settings: Settings{Chart: chart.DefaultSpec(), Mode: Whiten}, Method: Normal, Gap: MinGap}
+	if r, err := Limit(exact, MaxTarget); err != nil || !r.Exact {
+		t.Errorf("an exact limit for %d years at daily exams: %+v, %v", MaxTarget, r, err)
 	}
 }
 

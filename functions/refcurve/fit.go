@@ -35,8 +35,8 @@ func (o Options) settings() (Settings, transform.Transform, error) {
 		v    float64
 		name string
 	}{{s.Bandwidth, "mean"}, {s.SDBandwidth, "sd"}} {
-		if !(b.v >= 0) || math.IsInf(b.v, 0) {
-			return s, tr, fmt.Errorf("the %s bandwidth must be a positive number of years, or 0 to choose it by cross-validation; got %g", b.name, b.v)
+		if !(b.v >= 0 && b.v <= MaxBandwidth) {
+			return s, tr, fmt.Errorf("the %s bandwidth must be from 0 (0: chosen by cross-validation) to %d years, not %g", b.name, MaxBandwidth, b.v)
 		}
 	}
 	if s.GridPoints == 0 {

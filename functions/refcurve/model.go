@@ -48,6 +48,10 @@ const (
 	DefaultMinWorkers = 10
 	// LeastMinWorkers is the smallest MinWorkers accepted.
 	LeastMinWorkers = 3
+	// MaxBandwidth is the widest bandwidth accepted (years): wider than
+	// any working life, so the local line is already a straight line over
+	// all ages; far wider ones lose it in rounding.
+	MaxBandwidth = 100
 	// SDFloorShare: the variance curve is floored at this share of the
 	// group's mean squared residual, i.e. the sd at 10% of the pooled sd.
 	SDFloorShare = 0.01

@@ -115,7 +115,8 @@ func TestFitErrors(t *testing.T) {
 			return r
 		}(), Options{}, []string{"span only", "wider range"}},
 		{"bad transform", base, Options{Transform: "sqrt"}, []string{`unknown transform "sqrt"`}},
-		{"negative bandwidth", base, Options{Bandwidth: -1}, []string{"mean bandwidth must be a positive number"}},
+		{"negative bandwidth", base, Options{Bandwidth: -1}, []string{"mean bandwidth must be from 0", "to 100 years"}},
+		{"enormous bandwidth", base, Options{Bandwidth: 1e9}, []string{"mean bandwidth must be from 0", "to 100 years, not 1e+09"}},
 		{"nan sd bandwidth", base, Options{SDBandwidth: math.NaN()}, []string{"sd bandwidth"}},
 		{"grid points", base, Options{GridPoints: 5}, []string{"between 11 and 10001"}},
 		{"min workers too small", base, Options{MinWorkers: 2}, []string{"at least 3"}},

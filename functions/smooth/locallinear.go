@@ -104,6 +104,12 @@ func (b *Binned) LocalLinear(h float64) ([]float64, error) {
 		s := &sums[j]
 		v, ok := localLinearFromSums(s.s0, s.s1, s.s2, s.t0, s.t1, minSpread)
 		if !ok {
+			if span := b.Grid.Hi - b.Grid.Lo; h > span {
+				// Every point lies within the window, yet the kernel is so
+				// flat next to the data's spread that the local line is
+				// lost in rounding.
+				return nil, fmt.Errorf("bandwidth %.4g is too large for data spanning %.4g: the local line cannot be told apart from rounding; use a bandwidth below %.4g", h, span, span)
+			}
 			return nil, fmt.Errorf("bandwidth %.4g is too small: too few data within %.4g of %.6g to fit a local line; use a larger bandwidth", h, Truncation*h, b.Grid.Point(j))
 		}
 		est[j] = v

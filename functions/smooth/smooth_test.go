@@ -244,6 +244,7 @@ func TestLocalLinearErrors(t *testing.T) {
 		{"nan bandwidth", x, y, nil, math.NaN(), g, "bandwidth"},
 		{"tiny bandwidth", x, y, nil, 0.05, g, "too small"},
 		{"gap", x, y, nil, 0.3, Grid{Lo: 0, Hi: 100, N: 1001}, "too small"},
+		{"enormous bandwidth", x, y, nil, 1e9, g, "too large for data spanning 10"},
 		{"one point grid", x, y, nil, 1, Grid{Lo: 0, Hi: 10, N: 1}, "at least 2"},
 		{"reversed grid", x, y, nil, 1, Grid{Lo: 10, Hi: 0, N: 5}, "below"},
 	} {
