@@ -181,6 +181,9 @@ type Calibration struct {
 	Progress  func(done, total int)
 	Stop      func() bool
 	Horizon   monitor.Horizon
+	// MaxExams bounds the exams a limit or delay simulates in all (0:
+	// monitor.DefaultMaxExams); see monitor.Budget.
+	MaxExams int64
 }
 
 type span struct {
@@ -373,7 +376,16 @@ func (pr *prepared) bootstrapBlocks() error {
 
 func (pr *prepared) mc() limit.MonteCarlo {
 	c := pr.c
-	return limit.MonteCarlo{Paths: c.Paths, Seed: c.Seed, Progress: c.Progress, Stop: c.Stop}
+	return pr.budget().MonteCarlo(c.Seed, c.Progress, c.Stop)
+}
+
+// budget is the work budget of the calibration's simulations.
+func (pr *prepared) budget() monitor.Budget {
+	var exams []int
+	for _, sp := range pr.spans {
+		exams = append(exams, len(sp.gap))
+	}
+	return monitor.Budget{Paths: pr.c.Paths, MaxExams: pr.c.MaxExams, MeanGap: pr.meanGap, WorkerExams: exams}
 }
 
 // textbook reports whether the charted vectors are i.i.d. N(0, R) with
@@ -574,9 +586,13 @@ func Limit(c Calibration, target float64) (monitor.LimitResult, error) {
 			hint = h
 		}
 	}
+	b := pr.budget()
+	if err := b.CheckLimit(target); err != nil {
+		return monitor.LimitResult{}, err
+	}
 	cal, err := pr.mc().CalibrateStat(target, pr.streams(nil, 0), hint)
 	if err != nil {
-		return monitor.LimitResult{}, err
+		return monitor.LimitResult{}, b.Stopped(err, target, 0)
 	}
 	return monitor.LimitResult{H: cal.H, ATS: cal.ATS, SE: cal.SE, SEH: cal.SEH, MeanGap: pr.meanGap, Paths: cal.Paths, Censored: cal.Censored}, nil
 }
@@ -604,6 +620,9 @@ func Delay(c Calibration, h float64, shift []float64, onset float64) (monitor.De
 	if err := chart.ValidateLimit(h); err != nil {
 		return monitor.DelayResult{}, err
 	}
+	if !(onset >= 0 && onset <= monitor.MaxOnset) {
+		return monitor.DelayResult{}, &chart.SettingError{Setting: "onset", Value: onset, Want: fmt.Sprintf("from 0 to %d years after the first exam", monitor.MaxOnset)}
+	}
 	pr.spans = nil
 	if pr.textbook() && c.Settings.independent() && onset == 0 {
 		d := mahalanobis(c.Settings.corr(), shift)
@@ -613,8 +632,17 @@ func Delay(c Calibration, h float64, shift []float64, onset float64) (monitor.De
 		}
 		return monitor.DelayResult{Years: arl * pr.meanGap}, nil
 	}
-	r, err := pr.mc().DelayStat(h, pr.streams(shift, onset), onset)
+	b := pr.budget()
+	if err := b.CheckDelay(onset); err != nil {
+		return monitor.DelayResult{}, err
+	}
+	mc := pr.mc()
+	mc.CapExams = b.DelayCapExams()
+	r, err := mc.DelayStat(h, pr.streams(shift, onset), onset)
 	if err != nil {
+		return monitor.DelayResult{}, b.Stopped(err, 0, onset)
+	}
+	if err := b.CheckCensored(r); err != nil {
 		return monitor.DelayResult{}, err
 	}
 	return monitor.DelayResult{Years: r.Mean, SE: r.SE, Paths: r.Paths, Early: r.Early, Censored: r.Censored}, nil

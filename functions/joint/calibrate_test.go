@@ -142,7 +142,9 @@ func TestLimitBadInput(t *testing.T) {
 		{"serial must be", func(c Calibration) Calibration { c.Settings.Mode = "raw"; return c }, 20, "serial must be"},
 		{"horizon must be", func(c Calibration) Calibration { c.Horizon = "ever"; return c }, 20, "horizon must be"},
 		{"no model", func(c Calibration) Calibration { c.Settings.Model = nil; return c }, 20, "no model"},
-		{"negative gap", func(c Calibration) Calibration { c.Gap = -1; return c }, 20, "gap"},
+		{"negative gap", func(c Calibration) Calibration { c.Gap = -1; return c }, 20, "gap must be from a day"},
+		{"tiny gap", func(c Calibration) Calibration { c.Gap = 1e-9; return c }, 20, "gap must be from a day (0.0027 years) to 20 years"},
+		{"too much work", func(c Calibration) Calibration { c.Gap, c.Paths = monitor.MinGap, 100_000; return c }, 500, "ask for less"},
 		{"no gaps known", func(c Calibration) Calibration { c.Gap = 0; return c }, 20, "no gap"},
 		{"bootstrap, 8 workers", func(c Calibration) Calibration { c.Method, c.Reference = monitor.Bootstrap, ref; return c }, 20, "at least 10"},
 		{"follow-up without reference", func(c Calibration) Calibration { c.Horizon = monitor.HorizonFollowUp; return c }, 20, "at least two exams"},
@@ -165,6 +167,14 @@ func TestLimitBadInput(t *testing.T) {
 	}
 	if _, err := Delay(ok, -1, []float64{1, 1, 1}, 0); err == nil {
 		t.Error("negative limit accepted")
+	}
+	if _, err := Delay(ok, 5, []float64{1, 1, 1}, 101); err == nil || !strings.Contains(err.Error(), "onset must be from 0 to 100 years") {
+		t.Errorf("onset of 101 years: %v", err)
+	}
+	small := ok
+	small.Paths, small.MaxExams = 100, 50_000
+	if _, err := Delay(small, 60, []float64{0, 0, 0}, 0); !errors.Is(err, monitor.ErrTooMuchWork) {
+		t.Errorf("a limit no path reaches: %v", err)
 	}
 	var se *SidesError
 	c := ok

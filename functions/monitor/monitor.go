@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"strings"
 
 	"veer/functions/chart"
 	"veer/functions/limit"
@@ -188,64 +187,6 @@ const (
 	DefaultMaxExams = 50_000_000
 )
 
-// ErrTooMuchWork matches (errors.Is) a computation refused or stopped
-// because it would simulate more exams than Calibration.MaxExams allows.
-var ErrTooMuchWork = limit.ErrTooMuchWork
-
-// WorkError is a limit or delay that would simulate more exams than its
-// budget. Its message says how to ask for less.
-type WorkError struct {
-	// Exams is the estimated number of exams to simulate, Max the budget.
-	Exams, Max int64
-	// Paths is the number of simulated paths (the reps option), MeanGap
-	// the mean years between exams, Target the target (0 for a delay) and
-	// Onset the onset of a delay's shift (years).
-	Paths                  int
-	MeanGap, Target, Onset float64
-}
-
-func (e *WorkError) Error() string {
-	var b strings.Builder
-	fmt.Fprintf(&b, "this would simulate about %s exams (%d paths of %s each), more than the %s one computation may; ask for less: ",
-		roundCount(float64(e.Exams)), e.Paths, roundCount(float64(e.Exams)/float64(max(e.Paths, 1))), roundCount(float64(e.Max)))
-	perPath := float64(e.Exams) / float64(max(e.Paths, 1))
-	if fit := int(float64(e.Max) / perPath); fit >= 100 && fit < e.Paths {
-		scale := int(math.Pow(10, math.Floor(math.Log10(float64(fit)))-1))
-		fmt.Fprintf(&b, "fewer paths (reps=%d or less), ", fit/scale*scale)
-	}
-	fmt.Fprintf(&b, "a longer gap between exams (now %.3g years)", e.MeanGap)
-	if e.Target > 0 {
-		fmt.Fprintf(&b, " or a shorter target (now %g years)", e.Target)
-	}
-	if e.Onset > 0 {
-		fmt.Fprintf(&b, " or an earlier onset (now %g years)", e.Onset)
-	}
-	return b.String()
-}
-
-// Unwrap makes errors.Is(err, ErrTooMuchWork) true.
-func (e *WorkError) Unwrap() error { return ErrTooMuchWork }
-
-// roundCount writes a count with about two significant digits in words a
-// reader takes in at once: 48,000, 3.2 million, 310 billion.
-func roundCount(x float64) string {
-	unit := func(v float64, name string) string {
-		if v >= 10 {
-			return fmt.Sprintf("%.0f %s", v, name)
-		}
-		return fmt.Sprintf("%.1f %s", v, name)
-	}
-	switch {
-	case x >= 1e9:
-		return unit(x/1e9, "billion")
-	case x >= 1e6:
-		return unit(x/1e6, "million")
-	case x >= 1e4:
-		return fmt.Sprintf("%d,000", int(math.Round(x/1e3)))
-	}
-	return fmt.Sprintf("%d", int(math.Round(x)))
-}
-
 // LimitResult is a control limit for a target time.
 type LimitResult struct {
 	// H is the control limit.
@@ -400,59 +341,16 @@ func (p *prepared) constantGaps() bool {
 }
 
 func (p *prepared) mc() limit.MonteCarlo {
-	return limit.MonteCarlo{Paths: p.paths(), Seed: p.c.Seed, Progress: p.c.Progress, Stop: p.c.Stop, MaxExams: p.maxExams()}
+	return p.budget().MonteCarlo(p.c.Seed, p.c.Progress, p.c.Stop)
 }
 
-// paths is the number of Monte Carlo paths (limit.MonteCarlo's default
-// when not given).
-func (p *prepared) paths() int {
-	if p.c.Paths > 0 {
-		return p.c.Paths
+// budget is the work budget of the calibration's simulations.
+func (p *prepared) budget() Budget {
+	var spanExams []int
+	for _, s := range p.spans {
+		spanExams = append(spanExams, len(s))
 	}
-	return 4000
-}
-
-func (p *prepared) maxExams() int64 {
-	if p.c.MaxExams > 0 {
-		return p.c.MaxExams
-	}
-	return DefaultMaxExams
-}
-
-// examsPerYear is how many exams a simulated path steps through per year
-// it counts: one per mean gap, and for the follow-up horizon one more per
-// worker (a worker's first exam counts no time).
-func (p *prepared) examsPerYear() float64 {
-	r := 1 / p.meanGap
-	if p.spans != nil {
-		var exams float64
-		for _, s := range p.spans {
-			exams += float64(len(s))
-		}
-		per := exams / float64(len(p.spans)) // exams per worker, at least 2
-		r *= per / (per - 1)
-	}
-	return r
-}
-
-// checkWork refuses a computation whose estimated exams exceed the
-// budget. years is the simulated time of an average path.
-func (p *prepared) checkWork(years, target, onset float64) error {
-	perPath := math.Max(1, years*p.examsPerYear())
-	est := float64(p.paths()) * perPath
-	if est <= float64(p.maxExams()) {
-		return nil
-	}
-	return &WorkError{Exams: int64(math.Min(est, math.MaxInt64/2)), Max: p.maxExams(), Paths: p.paths(), MeanGap: p.meanGap, Target: target, Onset: onset}
-}
-
-// workError gives a hard stop at the budget (the estimate fell short) the
-// same words as a refusal.
-func (p *prepared) workError(err error, target, onset float64) error {
-	if errors.Is(err, limit.ErrTooMuchWork) {
-		return &WorkError{Exams: p.maxExams() + 1, Max: p.maxExams(), Paths: p.paths(), MeanGap: p.meanGap, Target: target, Onset: onset}
-	}
-	return err
+	return Budget{Paths: p.c.Paths, MaxExams: p.c.MaxExams, MeanGap: p.meanGap, WorkerExams: spanExams}
 }
 
 // iid reports whether the charted values are i.i.d. N(0,1) for a healthy
@@ -622,13 +520,13 @@ func Limit(c Calibration, target float64) (LimitResult, error) {
 	// A calibration simulates a pilot of up to 400 paths over 4 x target
 	// and the main pass over about 1.4 x target (see
 	// limit.MonteCarlo.Calibrate).
-	pilot := float64(min(p.paths(), 400)) / float64(p.paths())
-	if err := p.checkWork(1.5*target+pilot*4*target, target, 0); err != nil {
+	b := p.budget()
+	if err := b.CheckLimit(target); err != nil {
 		return LimitResult{}, err
 	}
 	cal, err := p.mc().Calibrate(spec, target, p.streams(0, 0), hint)
 	if err != nil {
-		return LimitResult{}, p.workError(err, target, 0)
+		return LimitResult{}, b.Stopped(err, target, 0)
 	}
 	return LimitResult{H: cal.H, ATS: cal.ATS, SE: cal.SE, SEH: cal.SEH, MeanGap: p.meanGap, Paths: cal.Paths, Censored: cal.Censored}, nil
 }
@@ -662,21 +560,18 @@ func Delay(c Calibration, h, shift, onset float64) (DelayResult, error) {
 		return DelayResult{}, &chart.SettingError{Setting: "onset", Value: onset, Want: fmt.Sprintf("from 0 to %d years after the first exam", MaxOnset)}
 	}
 	p.spans = nil // delays follow one worker (HorizonLong)
-	// Every path simulates the exams up to the onset, then to its signal;
-	// the exams per path are capped so that all paths together stay within
-	// the budget (a path that reaches the cap is censored).
-	if err := p.checkWork(onset+p.meanGap, 0, onset); err != nil {
+	b := p.budget()
+	if err := b.CheckDelay(onset); err != nil {
 		return DelayResult{}, err
 	}
 	mc := p.mc()
-	mc.CapExams = int(min(200_000, p.maxExams()/int64(p.paths())))
+	mc.CapExams = b.DelayCapExams()
 	r, err := mc.Delay(c.Settings.Chart, h, p.streams(shift, onset), onset)
 	if err != nil {
-		return DelayResult{}, p.workError(err, 0, onset)
+		return DelayResult{}, b.Stopped(err, 0, onset)
 	}
-	if r.Censored*100 > r.Paths {
-		return DelayResult{}, fmt.Errorf("in %d of %d simulated paths the chart had not signalled after %d exams (about %.0f years), so the delay would be understated; ask for less: fewer paths (reps), a larger shift or a lower limit: %w",
-			r.Censored, r.Paths, mc.CapExams, float64(mc.CapExams)*p.meanGap, ErrTooMuchWork)
+	if err := b.CheckCensored(r); err != nil {
+		return DelayResult{}, err
 	}
 	return DelayResult{Years: r.Mean, SE: r.SE, Paths: r.Paths, Early: r.Early, Censored: r.Censored}, nil
 }
