@@ -170,6 +170,15 @@ func (f *Filter) update(mp, pp, fv, z float64) {
 	f.started = true
 }
 
+// Predict returns the one-step prediction of the next exam's z, gap years
+// after the previous exam (gap is ignored for the first exam), and the SD
+// of its prediction error: m' and sqrt(F) above, from the exams seen so
+// far. It does not advance the filter; Whiten does.
+func (f *Filter) Predict(gap float64) (z, sd float64) {
+	mp, _, fv := f.predict(gap)
+	return mp, math.Sqrt(math.Max(fv, 0))
+}
+
 // Whiten takes the next exam's z, gap years after the previous exam (gap
 // is ignored for the first exam), and returns its innovation u.
 func (f *Filter) Whiten(gap, z float64) float64 {
