@@ -8,10 +8,13 @@
 // Refresh writes two sheets into an existing workbook, replacing them if
 // they are there: "veer results" (the input columns and, per marker, z,
 // centile, chart statistic, limit, signal, first signal and one column per
-// alert rule, with exam rows that signal highlighted) and "veer summary" (one
-// row per worker, flagged workers first, highlighted, with a native bar chart
-// of the years from first exam to first signal). Every other sheet, formula
-// and style of the workbook is left as it was.
+// alert rule, with the exam rows that flag highlighted) and "veer summary"
+// (one row per worker with ages and years as number cells, flagged workers
+// first in flagged.ByUrgency order and highlighted, the counts of flagged
+// workers, chart signals and rules fired per marker, and a native bar chart
+// of the years from first exam to first signal). "Flagged" is package
+// flagged's one definition: a chart signal, or a rule of severity high.
+// Every other sheet, formula and style of the workbook is left as it was.
 //
 // The file is replaced atomically: the new workbook is written to a
 // temporary file in the same folder, flushed to disk and renamed over the

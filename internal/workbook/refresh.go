@@ -6,15 +6,15 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"slices"
-	"sort"
 	"strconv"
 	"strings"
 
 	"github.com/xuri/excelize/v2"
 
 	"veer/functions/screening"
+	"veer/internal/flagged"
 	"veer/internal/numeric"
+	"veer/internal/symbols"
 	"veer/internal/table"
 )
 
@@ -66,11 +66,9 @@ type MarkerResults struct {
 	Rules []RuleColumn
 }
 
-// RuleColumn is one alert rule's outcome per input row.
-type RuleColumn struct {
-	Name  string
-	Fired []bool
-}
+// RuleColumn is one alert rule's outcome per input row; a rule of
+// severity "high" flags a worker as a chart signal does (package flagged).
+type RuleColumn = flagged.Rule
 
 func (o RefreshOptions) withDefaults() RefreshOptions {
 	if o.ResultsSheet == "" {
@@ -297,13 +295,18 @@ func (w *writer) results() error {
 			header = append(header, excelize.Cell{StyleID: w.header, Value: w.prefix(m, c)})
 		}
 		for _, r := range m.Rules {
+			if flagged.Flags(r.Severity) {
+				// A rule of severity high flags the exam as a signal does.
+				signalCols = append(signalCols, len(header)+1)
+			}
 			header = append(header, excelize.Cell{StyleID: w.header, Value: w.prefix(m, r.Name)})
 		}
 	}
 	ncol := len(header)
 	n := len(in.Rows)
 	last := colName(ncol) + strconv.Itoa(n+1)
-	// Highlight exam rows where any marker's chart signals.
+	// Highlight exam rows that flag: any marker's chart signals, or a rule
+	// of severity high fires (package flagged).
 	conds := make([]string, len(signalCols))
 	for i, c := range signalCols {
 		conds[i] = "$" + colName(c) + "2=TRUE"
@@ -312,8 +315,7 @@ func (w *writer) results() error {
 	if len(conds) > 1 {
 		crit = "OR(" + strings.Join(conds, ",") + ")"
 	}
-	hl, err := w.f.NewConditionalStyle(&excelize.Style{Font: &excelize.Font{Color: "9C2A00", Bold: true},
-		Fill: excelize.Fill{Type: "pattern", Pattern: 1, Color: []string{"FBE3D6"}}})
+	hl, err := w.f.NewConditionalStyle(flaggedStyle())
 	if err != nil {
 		return err
 	}
@@ -369,91 +371,89 @@ func (w *writer) results() error {
 	return sw.Flush()
 }
 
-// workerRow is one worker of the summary.
+// flaggedStyle is the highlight of flagged workers and of the exams that
+// flag: the Flagged mark of symbols.Legend, as in the report and the task
+// pane.
+func flaggedStyle() *excelize.Style {
+	m := symbols.Legend.Flagged
+	return &excelize.Style{Font: &excelize.Font{Color: strings.TrimPrefix(m.Stroke, "#"), Bold: true},
+		Fill: excelize.Fill{Type: "pattern", Pattern: 1, Color: []string{strings.TrimPrefix(m.Fill, "#")}}}
+}
+
+// workerRow is one worker of the summary, over every marker.
 type workerRow struct {
 	id, group   string
 	exams       int
 	first, last float64
 	signal      []float64 // per marker: age of first signal, NaN if none
 	rules       [][]string
-	flag        float64 // earliest flag age over markers and rules, NaN if none
+	flagged     bool
+	urgency     []*flagged.Worker // per marker, for the order
 	order       int
 }
 
-func (w *writer) workers() []*workerRow {
-	m0 := w.d.Markers[0]
-	pos := map[string]int{}
-	var ws []*workerRow
-	for i, e := range m0.Exams {
-		k, ok := pos[e.Worker]
-		if !ok {
-			k = len(ws)
-			pos[e.Worker] = k
-			wr := &workerRow{id: e.Worker, group: e.Group, first: e.Time, last: e.Time, flag: math.NaN(), order: k,
-				signal: make([]float64, len(w.d.Markers)), rules: make([][]string, len(w.d.Markers))}
-			for j := range wr.signal {
-				wr.signal[j] = math.NaN()
-			}
-			ws = append(ws, wr)
-		}
-		wr := ws[k]
-		wr.exams++
-		wr.first = math.Min(wr.first, e.Time)
-		wr.last = math.Max(wr.last, e.Time)
-		for j, m := range w.d.Markers {
-			r := m.Results[i]
-			t := m.Exams[i].Time
-			if r.Signal && (math.IsNaN(wr.signal[j]) || t < wr.signal[j]) {
-				wr.signal[j] = t
-			}
-			if r.Signal && (math.IsNaN(wr.flag) || t < wr.flag) {
-				wr.flag = t
-			}
-			for _, rc := range m.Rules {
-				if rc.Fired[i] {
-					if !slices.Contains(wr.rules[j], rc.Name) {
-						wr.rules[j] = append(wr.rules[j], rc.Name)
-					}
-					if math.IsNaN(wr.flag) || t < wr.flag {
-						wr.flag = t
-					}
-				}
-			}
-		}
+// markerRules turns a marker's rule columns into the rules of package
+// flagged.
+func markerRules(m MarkerResults) []flagged.Rule {
+	rs := make([]flagged.Rule, len(m.Rules))
+	for k, r := range m.Rules {
+		rs[k] = flagged.Rule(r)
 	}
-	// Rule names in the rules' order.
-	for _, wr := range ws {
-		for j, m := range w.d.Markers {
-			sort.SliceStable(wr.rules[j], func(a, b int) bool {
-				return ruleIndex(m.Rules, wr.rules[j][a]) < ruleIndex(m.Rules, wr.rules[j][b])
-			})
-		}
-	}
-	// Flagged workers first, by the age of their first flag; then the rest
-	// in sheet order.
-	sort.SliceStable(ws, func(a, b int) bool {
-		fa, fb := !math.IsNaN(ws[a].flag), !math.IsNaN(ws[b].flag)
-		switch {
-		case fa && fb:
-			if ws[a].flag != ws[b].flag {
-				return ws[a].flag < ws[b].flag
-			}
-			return ws[a].order < ws[b].order
-		case fa != fb:
-			return fa
-		}
-		return ws[a].order < ws[b].order
-	})
-	return ws
+	return rs
 }
 
-func ruleIndex(rs []RuleColumn, name string) int {
-	for i, r := range rs {
-		if r.Name == name {
-			return i
+// workers summarises each worker over the markers; flagged workers come
+// first, in flagged.ByUrgency order of their most urgent marker, then the
+// rest in sheet order.
+func (w *writer) workers() ([]*workerRow, []flagged.Counts) {
+	pos := map[string]int{}
+	var ws []*workerRow
+	counts := make([]flagged.Counts, len(w.d.Markers))
+	for j, m := range w.d.Markers {
+		rs := markerRules(m)
+		fw := flagged.Workers(m.Exams, m.Results, rs, m.Limit)
+		counts[j] = flagged.Count(fw, rs)
+		for _, x := range fw {
+			k, ok := pos[x.ID]
+			if !ok {
+				k = len(ws)
+				pos[x.ID] = k
+				wr := &workerRow{id: x.ID, group: x.Group, first: x.First, last: x.Last, order: k, exams: len(x.Rows),
+					signal: make([]float64, len(w.d.Markers)), rules: make([][]string, len(w.d.Markers)),
+					urgency: make([]*flagged.Worker, len(w.d.Markers))}
+				for i := range wr.signal {
+					wr.signal[i] = math.NaN()
+				}
+				ws = append(ws, wr)
+			}
+			wr := ws[k]
+			wr.first, wr.last = math.Min(wr.first, x.First), math.Max(wr.last, x.Last)
+			wr.signal[j] = x.FirstSignal
+			wr.rules[j] = x.RulesFired
+			wr.flagged = wr.flagged || x.Flagged()
+			wr.urgency[j] = x
 		}
 	}
-	return len(rs)
+	// The most urgent marker of each worker stands for the worker.
+	most := make([]*flagged.Worker, len(ws))
+	idx := map[*flagged.Worker]*workerRow{}
+	for i, wr := range ws {
+		var pick []*flagged.Worker
+		for _, x := range wr.urgency {
+			if x != nil {
+				pick = append(pick, x)
+			}
+		}
+		flagged.ByUrgency(pick)
+		most[i] = pick[0]
+		idx[pick[0]] = wr
+	}
+	flagged.ByUrgency(most)
+	out := make([]*workerRow, len(ws))
+	for i, x := range most {
+		out[i] = idx[x]
+	}
+	return out, counts
 }
 
 // summary writes the summary sheet: one row per worker, a caution, the
@@ -461,51 +461,57 @@ func ruleIndex(rs []RuleColumn, name string) int {
 func (w *writer) summary() error {
 	name := w.opt.SummarySheet
 	f := w.f
-	ws := w.workers()
+	ws, counts := w.workers()
 	header := []any{"worker", "group", "exams", "first exam (age)", "last exam (age)"}
+	// Columns holding ages or years, written as numbers with two decimals.
+	numCols := []int{4, 5}
 	var yearsCols []int
 	for _, m := range w.d.Markers {
 		header = append(header, w.prefix(m, "first signal (age)"))
+		numCols = append(numCols, len(header))
 		header = append(header, w.prefix(m, "years to signal"))
+		numCols = append(numCols, len(header))
 		yearsCols = append(yearsCols, len(header))
 		header = append(header, w.prefix(m, "rules fired"))
 	}
 	header = append(header, "flagged")
 	ncol := len(header)
 	flagCol := colName(ncol)
-	for i, h := range header {
-		cell, _ := excelize.CoordinatesToCellName(i+1, 1)
-		if err := f.SetCellValue(name, cell, h); err != nil {
-			return err
-		}
+	if err := f.SetSheetRow(name, "A1", &header); err != nil {
+		return err
 	}
 	if err := f.SetCellStyle(name, "A1", colName(ncol)+"1", w.header); err != nil {
 		return err
 	}
-	flagged := 0
+	nFlagged := 0
 	for i, wr := range ws {
-		row := []any{inputValue(wr.id), wr.group, wr.exams, excelize.Cell{StyleID: w.num2, Value: wr.first}, excelize.Cell{StyleID: w.num2, Value: wr.last}}
+		// Plain Go values: SetSheetRow writes float64 as a number cell (an
+		// excelize.Cell would be written as its printed form, as text).
+		row := []any{inputValue(wr.id), wr.group, wr.exams, wr.first, wr.last}
 		for j := range w.d.Markers {
 			if math.IsNaN(wr.signal[j]) {
 				row = append(row, nil, nil)
 			} else {
-				row = append(row, excelize.Cell{StyleID: w.num2, Value: wr.signal[j]}, excelize.Cell{StyleID: w.num2, Value: wr.signal[j] - wr.first})
+				row = append(row, wr.signal[j], wr.signal[j]-wr.first)
 			}
 			row = append(row, strings.Join(wr.rules[j], ", "))
 		}
-		isFlagged := !math.IsNaN(wr.flag)
-		if isFlagged {
-			flagged++
+		if wr.flagged {
+			nFlagged++
 		}
-		row = append(row, isFlagged)
+		row = append(row, wr.flagged)
 		cell, _ := excelize.CoordinatesToCellName(1, i+2)
 		if err := f.SetSheetRow(name, cell, &row); err != nil {
 			return err
 		}
 	}
+	for _, c := range numCols {
+		if err := f.SetCellStyle(name, colName(c)+"2", colName(c)+strconv.Itoa(len(ws)+1), w.num2); err != nil {
+			return err
+		}
+	}
 	last := colName(ncol) + strconv.Itoa(len(ws)+1)
-	hl, err := f.NewConditionalStyle(&excelize.Style{Font: &excelize.Font{Color: "9C2A00", Bold: true},
-		Fill: excelize.Fill{Type: "pattern", Pattern: 1, Color: []string{"FBE3D6"}}})
+	hl, err := f.NewConditionalStyle(flaggedStyle())
 	if err != nil {
 		return err
 	}
@@ -527,14 +533,26 @@ func (w *writer) summary() error {
 	notes := [][2]any{
 		{"veer screening summary", w.title},
 		{Caution, w.caution},
-		{fmt.Sprintf("%d of %d workers flagged (chart signal or rule); flagged workers are listed first, earliest first flag first, and highlighted.", flagged, len(ws)), 0},
+		{fmt.Sprintf("%d of %d workers flagged (flagged: %s, for any marker). Flagged workers are listed first and highlighted, "+
+			"the largest chart statistic relative to its limit at the latest exam first; on the results sheet the exams that flag are highlighted.",
+			nFlagged, len(ws), flagged.Definition), 0},
 	}
-	for _, m := range w.d.Markers {
+	for j, m := range w.d.Markers {
 		label := m.Name
 		if label == "" {
 			label = "chart"
 		}
-		notes = append(notes, [2]any{fmt.Sprintf("%s: control limit h = %s", label, strconv.FormatFloat(m.Limit, 'g', 6, 64)), 0})
+		c := counts[j]
+		note := fmt.Sprintf("%s: control limit h = %s; %d of %d workers flagged, %d with a chart signal",
+			label, strconv.FormatFloat(m.Limit, 'g', 6, 64), c.Flagged, c.Workers, c.Signalled)
+		for k, r := range m.Rules {
+			sev := ""
+			if r.Severity != "" {
+				sev = " [" + r.Severity + "]"
+			}
+			note += fmt.Sprintf("; rule %s%s fired for %d", r.Name, sev, c.Rules[k])
+		}
+		notes = append(notes, [2]any{note + ".", 0})
 	}
 	for i, nt := range notes {
 		cell := nc + strconv.Itoa(i+1)
@@ -554,14 +572,8 @@ func (w *writer) summary() error {
 		return err
 	}
 
-	// Chart of the first flagged workers with a chart signal.
-	nChart := 0
-	for _, wr := range ws {
-		if math.IsNaN(wr.flag) {
-			break
-		}
-		nChart++
-	}
+	// Chart of the first flagged workers.
+	nChart := nFlagged
 	if nChart > w.opt.ChartWorkers {
 		nChart = w.opt.ChartWorkers
 	}
@@ -570,7 +582,9 @@ func (w *writer) summary() error {
 	}
 	sheetRef := "'" + strings.ReplaceAll(name, "'", "''") + "'!"
 	var series []excelize.ChartSeries
-	colours := []string{"0072B2", "D55E00", "009E73", "CC79A7", "E69F00", "56B4E9"}
+	// One colour per marker; vermillion and orange are kept for signals
+	// and rules (see the report's and the task pane's keys).
+	colours := []string{"0072B2", "CC79A7", "009E73", "56B4E9", "F0E442", "000000"}
 	for j, m := range w.d.Markers {
 		yc := colName(yearsCols[j])
 		label := m.Name

@@ -16,6 +16,7 @@ import (
 	"github.com/xuri/excelize/v2"
 
 	"veer/functions/screening"
+	"veer/internal/flagged"
 )
 
 type cellSnap struct {
@@ -289,11 +290,12 @@ func checkResults(t *testing.T, path string, data ResultsData) {
 		t.Fatal(err)
 	}
 	workers := map[string]bool{}
-	flagged := map[string]bool{}
+	isFlagged := map[string]bool{}
 	for i, e := range m.Exams {
 		workers[e.Worker] = true
-		if m.Results[i].Signal || m.Rules[0].Fired[i] {
-			flagged[e.Worker] = true
+		// A rule of severity high flags as a signal does (package flagged).
+		if m.Results[i].Signal || (flagged.Flags(m.Rules[0].Severity) && m.Rules[0].Fired[i]) {
+			isFlagged[e.Worker] = true
 		}
 	}
 	flagCol := -1
@@ -312,8 +314,8 @@ func checkResults(t *testing.T, path string, data ResultsData) {
 		}
 		n++
 		isF := r[flagCol] == "1"
-		if isF != flagged[r[0]] {
-			t.Errorf("summary: worker %s flagged=%v, want %v", r[0], isF, flagged[r[0]])
+		if isF != isFlagged[r[0]] {
+			t.Errorf("summary: worker %s flagged=%v, want %v", r[0], isF, isFlagged[r[0]])
 		}
 		if isF && seenUnflagged {
 			t.Errorf("summary: flagged worker %s listed after unflagged ones", r[0])
