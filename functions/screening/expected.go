@@ -29,28 +29,44 @@ type Expected struct {
 	Value, Low, High float64
 }
 
-// ExpectedLevels returns, for one worker's exams in age order (times
+// ExpectedLevels returns, for one worker's exams in age order (ages
 // strictly increasing, z their standardised values as Screen gives them),
-// what the serial model expected at each exam. Without serial correlation
-// (set.Serial off, or a model with none) every exam expects the reference
-// itself: Z 0 and SD 1.
-func (m *Model) ExpectedLevels(set Settings, group string, times, z []float64) ([]Expected, error) {
-	if len(times) != len(z) {
-		panic("screening: ExpectedLevels needs one z per time")
+// what the serial model expected at each exam. The readings are read on
+// the model's reference at each exam's group, age and covariates. Without
+// serial correlation (set.Serial off, or a model with none) every exam
+// expects the reference itself: Z 0 and SD 1.
+func (m *Model) ExpectedLevels(set Settings, exams []Exam, z []float64) ([]Expected, error) {
+	if len(exams) != len(z) {
+		panic("screening: ExpectedLevels needs one z per exam")
 	}
 	ms, err := m.monitorSettings(set)
 	if err != nil {
 		return nil, err
 	}
+	times := make([]float64, len(exams))
+	for j, e := range exams {
+		times[j] = e.Time
+	}
 	if err := serial.CheckTimes(times); err != nil {
 		return nil, err
+	}
+	ref := m.Reference()
+	var cov []float64
+	if k := len(ref.Covariates()); k > 0 {
+		cov = make([]float64, k)
 	}
 	f := serial.NewFilter(ms.Serial)
 	out := make([]Expected, len(z))
 	std := distuv.UnitNormal
-	for j := range z {
+	for j, ex := range exams {
 		if !numeric.Finite(z[j]) {
 			return nil, fmt.Errorf("exam %d: the standardised value is not a number (%v)", j+1, z[j])
+		}
+		for c := range cov {
+			cov[c] = math.NaN()
+			if c < len(ex.Covariates) {
+				cov[c] = ex.Covariates[c]
+			}
 		}
 		gap := 0.0
 		if j > 0 {
@@ -60,7 +76,7 @@ func (m *Model) ExpectedLevels(set Settings, group string, times, z []float64) (
 		e.Z, e.SD = f.Predict(gap)
 		f.Whiten(gap, z[j])
 		at := func(q float64) float64 {
-			v, err := m.Curves.Centile(group, times[j], 100*std.CDF(q), true)
+			v, err := ref.Centile(ex.Group, ex.Time, cov, 100*std.CDF(q), true)
 			if err != nil {
 				return math.NaN()
 			}

@@ -36,10 +36,11 @@ func TestExpectedLevels(t *testing.T) {
 	for _, idx := range groupByWorker(ex) {
 		n := len(idx)
 		times, z := make([]float64, n), make([]float64, n)
+		mine := make([]Exam, n)
 		for j, i := range idx {
-			times[j], z[j] = ex[i].Time, res[i].Z
+			times[j], z[j], mine[j] = ex[i].Time, res[i].Z, ex[i]
 		}
-		got, err := m.ExpectedLevels(set, "", times, z)
+		got, err := m.ExpectedLevels(set, mine, z)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -99,7 +100,14 @@ func TestExpectedLevels(t *testing.T) {
 	// Serial off: the reference itself.
 	off := set
 	off.Serial = SerialOff
-	got, err := m.ExpectedLevels(off, "", []float64{30, 31, 33}, []float64{1, 2, -1})
+	at := func(ages ...float64) []Exam {
+		var out []Exam
+		for _, a := range ages {
+			out = append(out, Exam{Worker: "x", Time: a})
+		}
+		return out
+	}
+	got, err := m.ExpectedLevels(off, at(30, 31, 33), []float64{1, 2, -1})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -108,7 +116,7 @@ func TestExpectedLevels(t *testing.T) {
 			t.Errorf("serial off, exam %d: Z %v SD %v, want 0 and 1", j+1, e.Z, e.SD)
 		}
 	}
-	if _, err := m.ExpectedLevels(set, "", []float64{30, 30}, []float64{1, 2}); err == nil {
+	if _, err := m.ExpectedLevels(set, at(30, 30), []float64{1, 2}); err == nil {
 		t.Error("two exams at one age should be refused")
 	}
 }

@@ -11,6 +11,7 @@ import (
 	"veer/functions/evaluation"
 	"veer/functions/screening"
 	"veer/internal/numeric"
+	"veer/internal/symbols"
 )
 
 // Evaluation is a section's evaluation on a labelled history: how the
@@ -154,10 +155,12 @@ func num2(v float64) string {
 	return strconv.FormatFloat(v, 'f', 2, 64)
 }
 
-// Series styles of the trade-off figure: the chart a blue line with
-// circles, the baseline a vermilion diamond, the rules squares in other
-// Okabe–Ito colours; shapes and labels tell them apart without colour.
-var ruleColours = []string{colGreen, colPurple, colOrange, colSky, colBlack}
+// Series styles of the trade-off figure, in the marks of package symbols:
+// the chart a blue line with circles (the chart statistic's colour), each
+// rule the key's open orange square, labelled by name, the baseline a
+// black triangle, a shape the key gives no other meaning (the vermilion
+// diamond means a chart signal everywhere).
+var ruleColours = []string{symbols.Legend.Rule.Stroke}
 
 // tradeOffFigure draws, for one section's evaluation, the share of
 // diagnosed workers flagged before the diagnosis (left) and the median
@@ -203,9 +206,9 @@ func tradeOffFigure(s *Section, id string) (figure, error) {
 		for i, r := range chartRows {
 			xs[i], ys[i] = r.Result.FalsePer100.Estimate, y(r)
 		}
-		p.line(xs, ys, colBlue, 2, "")
+		p.line(xs, ys, symbols.Legend.Statistic.Stroke, 2, "")
 		for i := range chartRows {
-			p.marker(xs[i], ys[i], shapeCircle, colBlue, "#ffffff", 4)
+			p.marker(xs[i], ys[i], shapeCircle, symbols.Legend.Statistic.Stroke, "#ffffff", 4)
 		}
 		// Target labels, the report's own target first, then the others
 		// where they do not crowd a label already placed.
@@ -225,10 +228,10 @@ func tradeOffFigure(s *Section, id string) (figure, error) {
 				nRule++
 			}
 			if r.Method == evaluation.MethodBaseline {
-				shape, col, label = shapeDiamond, colVermilion, "baseline"
+				shape, col, label = shapeTriangle, symbols.Black, "baseline"
 			}
 			fill := col
-			if shape == shapeSquare {
+			if shape == shapeSquare || shape == shapeRing {
 				fill = "none"
 			}
 			p.marker(x, yy, shape, fill, col, 5)
@@ -253,7 +256,7 @@ func tradeOffFigure(s *Section, id string) (figure, error) {
 				continue
 			}
 			placed = append(placed, [2]float64{lx, ly})
-			p.text(lx, ly, num(chartRows[i].Target, 3)+" y", colBlue, "start", 9)
+			p.text(lx, ly, num(chartRows[i].Target, 3)+" y", symbols.Legend.Statistic.Stroke, "start", 9)
 		}
 		p.frame()
 		return p.end()
@@ -264,7 +267,7 @@ func tradeOffFigure(s *Section, id string) (figure, error) {
 		func(r evaluation.Row) float64 { return r.Result.Lead.MedianFlagged })
 	svg := `<div class="pair">` + left + right + `</div>`
 	caption := "Trade-off on the labelled history. Blue line and circles: the chart at each target (labelled in years); " +
-		"vermilion diamond: the baseline (" + h.Baseline().Name + "); open squares: alert rules, labelled by name. " +
+		"black triangle: the baseline (" + h.Baseline().Name + "); open squares: alert rules, labelled by name. " +
 		"Left: share of the workers later diagnosed who were flagged before the diagnosis. Right: median years from the first signal to the diagnosis, among the flagged. " +
 		"Further right means more false signals among workers never diagnosed; up and to the left is better."
 	return figure{SVG: template.HTML(svg), Caption: caption}, nil

@@ -12,6 +12,7 @@ import (
 	"veer/functions/evaluation"
 	"veer/functions/rules"
 	"veer/functions/screening"
+	"veer/internal/symbols"
 )
 
 // evaluated returns the demo's blood-pressure section with its evaluation
@@ -103,7 +104,11 @@ func TestRenderEvaluation(t *testing.T) {
 		t.Fatalf("%d trade-off charts; want 2", len(trade))
 	}
 	for _, s := range trade {
-		for _, want := range []string{colBlue, colVermilion, `<circle`, `Z" fill="` + colVermilion, `fill="none" stroke="` + ruleColours[0], ">baseline<", ">high_twice<", ">20 y<", "false signals per 100 worker-years"} {
+		// One mark, one meaning: no signal diamond stands for a method.
+		if strings.Contains(s, `fill="`+symbols.Legend.Signal.Fill+`"`) {
+			t.Error("the trade-off chart uses the signal's vermilion")
+		}
+		for _, want := range []string{symbols.Legend.Statistic.Stroke, `<circle`, `Z" fill="` + symbols.Black, `fill="none" stroke="` + symbols.Legend.Rule.Stroke, ">baseline<", ">high_twice<", ">20 y<", "false signals per 100 worker-years"} {
 			if !strings.Contains(s, want) {
 				t.Errorf("trade-off chart lacks %q", want)
 			}

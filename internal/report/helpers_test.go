@@ -21,12 +21,12 @@ type demoMarker struct {
 	column, marker, short, unit string
 	transform                   transform.Name
 	side                        chart.Side
-	rule                        string
+	rule, severity              string
 }
 
 var demoMarkers = []demoMarker{
-	{"sbp", "Systolic blood pressure", "SBP", "mmHg", "none", chart.Up, "chart > limit || centile > 99.0"},
-	{"fev1", "FEV1", "FEV1", "L", "log", chart.Down, "chart > limit || centile < 1.0"},
+	{"sbp", "Systolic blood pressure", "SBP", "mmHg", "none", chart.Up, "chart > limit || centile > 99.0", "high"},
+	{"fev1", "FEV1", "FEV1", "L", "log", chart.Down, "chart > limit || centile < 1.0", ""},
 }
 
 var (
@@ -124,7 +124,7 @@ func screenMarker(ref, wf *table.Table, mk demoMarker) (Section, error) {
 	}
 	return Section{
 		Marker: mk.marker, Short: mk.short, Unit: mk.unit, Model: m, Settings: set, Limit: lim, Target: target,
-		Exams: exams, Results: res, Rules: []Rule{{Name: "chart or centile", Expr: mk.rule, Fired: fired}},
+		Exams: exams, Results: res, Rules: []Rule{{Name: "chart or centile", Expr: mk.rule, Severity: mk.severity, Fired: fired}},
 	}, nil
 }
 

@@ -7,7 +7,6 @@ import (
 	"html/template"
 	"io"
 	"math"
-	"sort"
 	"strconv"
 	"strings"
 
@@ -15,6 +14,7 @@ import (
 	"veer/functions/monitor"
 	"veer/functions/screening"
 	"veer/functions/transform"
+	"veer/internal/flagged"
 )
 
 // Caution is the screening-aid statement every report carries, at the top
@@ -44,6 +44,10 @@ type Data struct {
 	// DefaultMaxPanels; negative: no panels). The summary table always
 	// lists every flagged worker.
 	MaxPanels int
+	// Workers, when not empty, chooses the panels: these workers, in this
+	// order, flagged or not (MaxPanels does not apply). Every id must be
+	// among the exams of every section.
+	Workers []string
 	// ListAllWorkers makes the summary table list every worker, not only
 	// the flagged ones.
 	ListAllWorkers bool
@@ -75,8 +79,10 @@ type Section struct {
 
 // Rule is one alert rule's outcome over the rows of a Section.
 type Rule struct {
-	// Name labels the rule; Expr is its text (shown in the report).
-	Name, Expr string
+	// Name labels the rule; Expr is its text (shown in the report);
+	// Severity its label, if any: a rule of severity high flags a worker as
+	// a chart signal does (package flagged).
+	Name, Expr, Severity string
 	// Fired[i] is true when the rule flagged row i of Section.Exams.
 	Fired []bool
 }
@@ -123,12 +129,45 @@ func (d Data) validate() error {
 		if s.Evaluation != nil && (s.Evaluation.History == nil || len(s.Evaluation.History.Rows) == 0) {
 			return fmt.Errorf("%s: the evaluation has no methods to show", name)
 		}
+		if len(d.Workers) > 0 {
+			have := map[string]bool{}
+			for _, e := range s.Exams {
+				have[e.Worker] = true
+			}
+			var missing []string
+			for _, id := range d.Workers {
+				if !have[id] {
+					missing = append(missing, strconv.Quote(id))
+				}
+			}
+			if len(missing) > 0 {
+				return &MissingWorkersError{Section: name, Workers: missing}
+			}
+		}
 	}
 	return nil
 }
 
+// MissingWorkersError says that workers chosen for panels have no exams in
+// a section.
+type MissingWorkersError struct {
+	Section string
+	Workers []string // quoted ids
+}
+
+func (e *MissingWorkersError) Error() string {
+	what := "worker " + e.Workers[0] + " has"
+	if len(e.Workers) > 1 {
+		what = "workers " + strings.Join(e.Workers, ", ") + " have"
+	}
+	return fmt.Sprintf("%s: %s no exams among the exams screened; check the ids chosen for the panels", e.Section, what)
+}
+
 // kv is one labelled value in a table.
 type kv struct{ Label, Value string }
+
+// ruleRow is one alert rule in the rules table.
+type ruleRow struct{ Name, Severity, Expr string }
 
 type page struct {
 	Title, Generated, Source, Caution string
@@ -158,10 +197,10 @@ type panelView struct {
 }
 
 type summaryRow struct {
-	Worker, Group, Exams, FirstExam, LastExam, FirstSignal, Rules string
-	Flagged                                                       bool
-	Panel                                                         string
-	Anchor                                                        string
+	Worker, Group, Exams, FirstExam, LastExam, FirstSignal, Rules, Ratio string
+	Flagged                                                              bool
+	Panel                                                                string
+	Anchor                                                               string
 }
 
 type sectionView struct {
@@ -170,13 +209,14 @@ type sectionView struct {
 	ChartText     string
 	LimitText     []string
 	LimitRows     []kv
-	RuleRows      []kv
+	RuleRows      []ruleRow
 	RefFigures    []figure
 	Assumptions   []string
 	Diag          []groupDiag
 	ModelDiag     []kv
 	Warnings      []string
 	Legend        template.HTML
+	Expected      bool // panels show the worker's own expected readings
 	Panels        []panelView
 	PanelNote     string
 	Summary       []summaryRow
@@ -188,58 +228,13 @@ type sectionView struct {
 	Evaluation    *evaluationView
 }
 
-// workerView gathers one worker's rows.
-type workerView struct {
-	id, group   string
-	idx         []int // row indices sorted by age
-	firstSignal float64
-	firstRule   float64
-	rules       []string
-	flag        float64 // earliest of firstSignal and firstRule
-}
-
-func (w *workerView) flagged() bool { return !math.IsNaN(w.flag) }
-
-func groupWorkers(s *Section) []*workerView {
-	pos := map[string]int{}
-	var ws []*workerView
-	for i, e := range s.Exams {
-		k, ok := pos[e.Worker]
-		if !ok {
-			k = len(ws)
-			pos[e.Worker] = k
-			ws = append(ws, &workerView{id: e.Worker, group: e.Group, firstSignal: math.NaN(), firstRule: math.NaN(), flag: math.NaN()})
-		}
-		ws[k].idx = append(ws[k].idx, i)
+// sectionRules are a section's rules for package flagged.
+func sectionRules(s *Section) []flagged.Rule {
+	rs := make([]flagged.Rule, len(s.Rules))
+	for k, r := range s.Rules {
+		rs[k] = flagged.Rule{Name: r.Name, Severity: r.Severity, Fired: r.Fired}
 	}
-	for _, w := range ws {
-		sort.SliceStable(w.idx, func(a, b int) bool { return s.Exams[w.idx[a]].Time < s.Exams[w.idx[b]].Time })
-		for _, i := range w.idx {
-			if s.Results[i].Signal && math.IsNaN(w.firstSignal) {
-				w.firstSignal = s.Exams[i].Time
-			}
-		}
-		for _, r := range s.Rules {
-			first := math.NaN()
-			for _, i := range w.idx {
-				if r.Fired[i] {
-					first = s.Exams[i].Time
-					break
-				}
-			}
-			if !math.IsNaN(first) {
-				w.rules = append(w.rules, r.Name)
-				if math.IsNaN(w.firstRule) || first < w.firstRule {
-					w.firstRule = first
-				}
-			}
-		}
-		w.flag = w.firstSignal
-		if math.IsNaN(w.flag) || w.firstRule < w.flag {
-			w.flag = w.firstRule
-		}
-	}
-	return ws
+	return rs
 }
 
 func buildPage(d Data) (*page, error) {
@@ -252,7 +247,7 @@ func buildPage(d Data) (*page, error) {
 		maxPanels = DefaultMaxPanels
 	}
 	for k := range d.Sections {
-		sv, err := buildSection(&d.Sections[k], k, maxPanels, d.ListAllWorkers)
+		sv, err := buildSection(&d.Sections[k], k, maxPanels, d.Workers, d.ListAllWorkers)
 		if err != nil {
 			return nil, err
 		}
@@ -277,51 +272,38 @@ func markerLabel(s *Section) (name, short, axis string) {
 	return name, short, axis
 }
 
-func buildSection(s *Section, k, maxPanels int, all bool) (*sectionView, error) {
+func buildSection(s *Section, k, maxPanels int, chosen []string, all bool) (*sectionView, error) {
 	name, _, _ := markerLabel(s)
 	sv := &sectionView{ID: "m" + strconv.Itoa(k+1), Heading: name}
 	if s.Unit != "" {
 		sv.Heading += " (" + s.Unit + ")"
 	}
-	ws := groupWorkers(s)
+	rules := sectionRules(s)
+	ws := flagged.Workers(s.Exams, s.Results, rules, s.Limit.H)
+	counts := flagged.Count(ws, rules)
 	sv.WorkerCount, sv.ExamCount = len(ws), len(s.Exams)
 
-	// Headline figures.
-	var signalled, flagged, outside int
-	for _, w := range ws {
-		if !math.IsNaN(w.firstSignal) {
-			signalled++
-		}
-		if w.flagged() {
-			flagged++
-		}
-	}
+	// Headline figures, each labelled with what it counts.
+	outside := 0
 	for _, r := range s.Results {
 		if !r.InRange {
 			outside++
 		}
 	}
-	sv.FlaggedCount = flagged
+	sv.FlaggedCount = counts.Flagged
 	sv.Stats = []kv{
 		{"Exams screened", thousands(len(s.Exams))},
 		{"Workers screened", thousands(len(ws))},
-		{"Workers with a chart signal", countShare(signalled, len(ws))},
+		{"Workers flagged (" + flagged.Definition + ")", countShare(counts.Flagged, len(ws))},
+		{"Workers with a chart signal", countShare(counts.Signalled, len(ws))},
 	}
-	for _, r := range s.Rules {
-		n := 0
-		for _, w := range ws {
-			for _, rn := range w.rules {
-				if rn == r.Name {
-					n++
-					break
-				}
-			}
+	for i, r := range s.Rules {
+		label := "Workers for whom rule “" + r.Name + "” fired"
+		if r.Severity != "" {
+			label += " (severity " + r.Severity + ")"
 		}
-		sv.Stats = append(sv.Stats, kv{"Workers for whom rule “" + r.Name + "” fired", countShare(n, len(ws))})
-		sv.RuleRows = append(sv.RuleRows, kv{r.Name, r.Expr})
-	}
-	if len(s.Rules) > 0 {
-		sv.Stats = append(sv.Stats, kv{"Workers flagged by the chart or a rule", countShare(flagged, len(ws))})
+		sv.Stats = append(sv.Stats, kv{label, countShare(counts.Rules[i], len(ws))})
+		sv.RuleRows = append(sv.RuleRows, ruleRow{r.Name, severityText(r.Severity), r.Expr})
 	}
 	if outside > 0 {
 		sv.Stats = append(sv.Stats, kv{"Exams outside the reference age range", thousands(outside) +
@@ -347,64 +329,74 @@ func buildSection(s *Section, k, maxPanels int, all bool) (*sectionView, error) 
 		sv.Diag, sv.ModelDiag, sv.Warnings = diagnostics(s.Model)
 	}
 
-	// Panels, in order of first flag.
-	var fl []*workerView
-	for _, w := range ws {
-		if w.flagged() {
-			fl = append(fl, w)
+	// Flagged workers in the order a reviewer needs them (flagged.ByUrgency:
+	// the largest chart statistic relative to the limit at the latest exam
+	// first); the panels show these, or the workers chosen.
+	ordered := append([]*flagged.Worker(nil), ws...)
+	flagged.ByUrgency(ordered)
+	fl := ordered[:counts.Flagged]
+	var panels []*flagged.Worker
+	switch {
+	case len(chosen) > 0:
+		byID := map[string]*flagged.Worker{}
+		for _, w := range ws {
+			byID[w.ID] = w
 		}
-	}
-	sort.SliceStable(fl, func(a, b int) bool { return fl[a].flag < fl[b].flag })
-	shown := len(fl)
-	if maxPanels < 0 {
-		shown = 0
-	} else if shown > maxPanels {
-		shown = maxPanels
+		for _, id := range chosen {
+			panels = append(panels, byID[id])
+		}
+	case maxPanels >= 0:
+		panels = fl[:min(len(fl), maxPanels)]
 	}
 	panelOf := map[string]int{}
-	sv.Legend = template.HTML(legendSVG(sv.ID + "-legend"))
-	for i := 0; i < shown; i++ {
-		pv, err := workerPanel(s, fl[i], i+1, sv.ID)
+	sv.Legend = template.HTML(legendSVG(sv.ID+"-legend", s))
+	sv.Expected = showExpected(s)
+	for i, w := range panels {
+		pv, err := workerPanel(s, w, i+1, sv.ID)
 		if err != nil {
 			return nil, err
 		}
-		panelOf[fl[i].id] = i + 1
+		panelOf[w.ID] = i + 1
 		sv.Panels = append(sv.Panels, pv)
 	}
+	const order = "the largest chart statistic relative to the limit at the worker's latest exam first, so workers still far over the limit come before those whose chart has come back down"
 	switch {
+	case len(chosen) > 0:
+		sv.PanelNote = fmt.Sprintf("The %s chosen for this report, in the order given (%d of them flagged).",
+			plural(len(panels), "worker"), countChosen(panels))
 	case len(fl) == 0:
-		sv.PanelNote = "No worker was flagged by the chart or by a rule."
-	case shown < len(fl):
-		sv.PanelNote = fmt.Sprintf("Showing %d of %d flagged workers (the first %d in order of first signal, earliest age first); "+
-			"the summary table below lists all of them.", shown, len(fl), shown)
+		sv.PanelNote = "No worker was flagged (" + flagged.Definition + ")."
+	case len(panels) < len(fl):
+		sv.PanelNote = fmt.Sprintf("Showing %d of %d flagged workers, %s; the summary table below lists all of them in the same order.",
+			len(panels), len(fl), order)
 	default:
-		sv.PanelNote = fmt.Sprintf("All %d flagged workers, in order of first signal (earliest age first).", len(fl))
+		sv.PanelNote = fmt.Sprintf("All %d flagged workers, %s.", len(fl), order)
 	}
 
-	for _, w := range ws {
-		if !all && !w.flagged() {
-			continue
-		}
-		first, last := s.Exams[w.idx[0]].Time, s.Exams[w.idx[len(w.idx)-1]].Time
+	list := fl
+	if all {
+		list = ordered
+	}
+	for _, w := range list {
 		row := summaryRow{
-			Worker: w.id, Group: groupName(w.group) + covariateText(s, w.idx), Exams: strconv.Itoa(len(w.idx)),
-			FirstExam: age(first), LastExam: age(last), FirstSignal: "—", Rules: "—",
-			Flagged: w.flagged(), Panel: "—",
+			Worker: w.ID, Group: groupName(w.Group) + covariateText(s, w.Rows), Exams: strconv.Itoa(len(w.Rows)),
+			FirstExam: age(w.First), LastExam: age(w.Last), FirstSignal: "—", Rules: "—",
+			Ratio: num(w.LastRatio, 3), Flagged: w.Flagged(), Panel: "—",
 		}
-		if !math.IsNaN(w.firstSignal) {
-			row.FirstSignal = age(w.firstSignal)
+		if w.Signalled() {
+			row.FirstSignal = age(w.FirstSignal)
 		}
-		if len(w.rules) > 0 {
-			row.Rules = strings.Join(w.rules, ", ")
+		if len(w.RulesFired) > 0 {
+			row.Rules = strings.Join(w.RulesFired, ", ")
 		}
-		if n, ok := panelOf[w.id]; ok {
+		if n, ok := panelOf[w.ID]; ok {
 			row.Panel = strconv.Itoa(n)
 			row.Anchor = panelAnchor(sv.ID, n)
 		}
 		sv.Summary = append(sv.Summary, row)
 	}
-	if !all && len(ws)-flagged > 0 {
-		sv.SummaryNote = fmt.Sprintf("%s other workers had no chart signal and no rule fired; they are not listed.", thousands(len(ws)-flagged))
+	if !all && len(ws)-counts.Flagged > 0 {
+		sv.SummaryNote = fmt.Sprintf("%s other workers were not flagged; they are not listed.", thousands(len(ws)-counts.Flagged))
 	}
 	if s.Evaluation != nil {
 		ev, err := buildEvaluation(s, sv.ID+"-eval")
@@ -414,6 +406,30 @@ func buildSection(s *Section, k, maxPanels int, all bool) (*sectionView, error) 
 		sv.Evaluation = ev
 	}
 	return sv, nil
+}
+
+func countChosen(ws []*flagged.Worker) int {
+	n := 0
+	for _, w := range ws {
+		if w.Flagged() {
+			n++
+		}
+	}
+	return n
+}
+
+func plural(n int, what string) string {
+	if n == 1 {
+		return "1 " + what
+	}
+	return strconv.Itoa(n) + " " + what + "s"
+}
+
+func severityText(s string) string {
+	if s == "" {
+		return "—"
+	}
+	return s
 }
 
 func panelAnchor(sectionID string, n int) string { return sectionID + "-w" + strconv.Itoa(n) }

@@ -14,6 +14,7 @@ import (
 
 	"veer/functions/monitor"
 	"veer/functions/screening"
+	"veer/internal/symbols"
 )
 
 var svgRE = regexp.MustCompile(`(?s)<svg\b.*?</svg>`)
@@ -43,40 +44,60 @@ func render(t *testing.T, d Data) string {
 }
 
 // flaggedInOrder recomputes, independently of the report code, the workers a
-// section flags (chart signal or any rule), ordered by the age of the first
-// flag.
+// section flags (a chart signal, or a rule of severity high), ordered for a
+// reviewer: the chart statistic relative to the limit at the worker's
+// latest exam, largest first; then the largest over the worker's exams;
+// then the earliest flag; then the order of first appearance.
 func flaggedInOrder(s Section) []string {
-	first := map[string]float64{}
+	type w struct {
+		id                  string
+		pos                 int
+		lastAge, last, most float64
+		flagged             bool
+		firstFlag           float64
+	}
+	ws := map[string]*w{}
+	var ids []string
 	for i, e := range s.Exams {
+		x, ok := ws[e.Worker]
+		if !ok {
+			x = &w{id: e.Worker, pos: i, lastAge: math.Inf(-1), most: math.Inf(-1), firstFlag: math.Inf(1)}
+			ws[e.Worker] = x
+			ids = append(ids, e.Worker)
+		}
+		r := s.Results[i].Stat / s.Limit.H
+		x.most = math.Max(x.most, r)
+		if e.Time > x.lastAge {
+			x.lastAge, x.last = e.Time, r
+		}
 		hit := s.Results[i].Signal
-		for _, r := range s.Rules {
-			hit = hit || r.Fired[i]
+		for _, rl := range s.Rules {
+			hit = hit || (strings.EqualFold(rl.Severity, "high") && rl.Fired[i])
 		}
-		if !hit {
-			continue
-		}
-		if a, ok := first[e.Worker]; !ok || e.Time < a {
-			first[e.Worker] = e.Time
+		if hit {
+			x.flagged = true
+			x.firstFlag = math.Min(x.firstFlag, e.Time)
 		}
 	}
-	ids := make([]string, 0, len(first))
-	for id := range first {
-		ids = append(ids, id)
-	}
-	// Ties keep the order of first appearance in the sheet.
-	pos := map[string]int{}
-	for i, e := range s.Exams {
-		if _, ok := pos[e.Worker]; !ok {
-			pos[e.Worker] = i
+	var out []string
+	for _, id := range ids {
+		if ws[id].flagged {
+			out = append(out, id)
 		}
 	}
-	sort.Slice(ids, func(a, b int) bool {
-		if first[ids[a]] != first[ids[b]] {
-			return first[ids[a]] < first[ids[b]]
+	sort.SliceStable(out, func(a, b int) bool {
+		x, y := ws[out[a]], ws[out[b]]
+		switch {
+		case x.last != y.last:
+			return x.last > y.last
+		case x.most != y.most:
+			return x.most > y.most
+		case x.firstFlag != y.firstFlag:
+			return x.firstFlag < y.firstFlag
 		}
-		return pos[ids[a]] < pos[ids[b]]
+		return x.pos < y.pos
 	})
-	return ids
+	return out
 }
 
 func TestRenderDemoStructure(t *testing.T) {
@@ -127,7 +148,7 @@ func TestRenderDemoStructure(t *testing.T) {
 		if len(fl) == 0 {
 			t.Fatalf("%s: the demo should flag workers", s.Marker)
 		}
-		// Panels: capped, in order of first flag.
+		// Panels: capped, the most urgent first.
 		re := regexp.MustCompile(`<div class="panel" id="` + id + `-w(\d+)">\s*<h4>\d+\. Worker ([^<]+)</h4>`)
 		got := re.FindAllStringSubmatch(out, -1)
 		if len(got) != min(len(fl), DefaultMaxPanels) {
@@ -135,7 +156,7 @@ func TestRenderDemoStructure(t *testing.T) {
 		}
 		for j, g := range got {
 			if g[2] != fl[j] {
-				t.Fatalf("%s: panel %d shows worker %s, want %s (order of first signal)", s.Marker, j+1, g[2], fl[j])
+				t.Fatalf("%s: panel %d shows worker %s, want %s (largest chart ÷ limit at the latest exam first)", s.Marker, j+1, g[2], fl[j])
 			}
 		}
 		if len(fl) > DefaultMaxPanels && !strings.Contains(out, "Showing 40 of ") {
@@ -327,5 +348,110 @@ func TestSpreadLabels(t *testing.T) {
 	}
 	if got[2] != 50 {
 		t.Errorf("a label with room moved: %v", got)
+	}
+}
+
+// TestRenderChosenWorkers chooses the panels by worker id: in the order
+// given, flagged or not; an id without exams is refused by name.
+func TestRenderChosenWorkers(t *testing.T) {
+	s := demoData(t).Sections[0]
+	fl := flaggedInOrder(s)
+	isFlagged := map[string]bool{}
+	for _, id := range fl {
+		isFlagged[id] = true
+	}
+	var quiet string
+	for _, e := range s.Exams {
+		if !isFlagged[e.Worker] {
+			quiet = e.Worker
+			break
+		}
+	}
+	want := []string{fl[3], quiet, fl[0]}
+	out := render(t, Data{Sections: []Section{s}, Workers: want})
+	re := regexp.MustCompile(`<div class="panel" id="m1-w(\d+)">\s*<h4>\d+\. Worker ([^<]+)</h4>`)
+	got := re.FindAllStringSubmatch(out, -1)
+	if len(got) != len(want) {
+		t.Fatalf("%d panels, want %d", len(got), len(want))
+	}
+	for j, g := range got {
+		if g[2] != want[j] {
+			t.Errorf("panel %d shows %s, want %s", j+1, g[2], want[j])
+		}
+	}
+	if !strings.Contains(out, "The 3 workers chosen for this report, in the order given (2 of them flagged).") {
+		t.Error("the panel note does not say the workers were chosen")
+	}
+	var b bytes.Buffer
+	err := Render(&b, Data{Sections: []Section{s}, Workers: []string{fl[0], "nobody", "W-none"}})
+	var me *MissingWorkersError
+	if !errors.As(err, &me) || !strings.Contains(err.Error(), `workers "nobody", "W-none" have no exams`) {
+		t.Fatalf("unknown ids: %v, want a *MissingWorkersError naming both", err)
+	}
+}
+
+// TestPanelShowsWhy checks that each panel shows why its worker was
+// flagged: one expected-reading bar per exam (the serial model's one-step
+// prediction, drawn in the key's colour), a ring around every reading
+// outside the central 95% (|z| > 1.96), a diamond at every signalling exam
+// in both charts, the limit line, and a caption that compares the reading at
+// the first signal with the worker's own expected reading.
+func TestPanelShowsWhy(t *testing.T) {
+	s := demoData(t).Sections[0]
+	if s.Model.Serial.Independent() {
+		t.Fatal("the demo model should carry serial correlation")
+	}
+	out := render(t, Data{Sections: []Section{s}, MaxPanels: 6})
+	fl := flaggedInOrder(s)
+	panels := regexp.MustCompile(`(?s)<div class="panel" id="m1-w\d+">.*?<p>.*?</p>`).FindAllString(out, -1)
+	if len(panels) != 6 {
+		t.Fatalf("%d panels, want 6", len(panels))
+	}
+	key := symbols.Legend
+	for j, p := range panels {
+		id := fl[j]
+		var exams, outside, signals int
+		for i, e := range s.Exams {
+			if e.Worker != id {
+				continue
+			}
+			exams++
+			if math.Abs(s.Results[i].Z) > 1.959963984540054 {
+				outside++
+			}
+			if s.Results[i].Signal {
+				signals++
+			}
+		}
+		svgs := svgRE.FindAllString(p, -1)
+		if len(svgs) != 2 {
+			t.Fatalf("worker %s: %d charts in the panel, want 2", id, len(svgs))
+		}
+		readings, stat := svgs[0], svgs[1]
+		ticks := strings.Count(readings, `stroke="`+key.Expected.Stroke+`" stroke-width="2"/>`)
+		if ticks != exams {
+			t.Errorf("worker %s: %d expected-reading ticks, want one per exam (%d)", id, ticks, exams)
+		}
+		rings := strings.Count(readings, `fill="none" stroke="`+key.Outside.Stroke+`"`)
+		if rings != outside {
+			t.Errorf("worker %s: %d rings, want %d readings outside the central 95%%", id, rings, outside)
+		}
+		diamond := `fill="` + key.Signal.Fill + `" stroke="` + key.Signal.Stroke + `"`
+		if a, b := strings.Count(readings, diamond), strings.Count(stat, diamond); a != signals || b != signals {
+			t.Errorf("worker %s: %d and %d signal diamonds, want %d in each chart", id, a, b, signals)
+		}
+		if !strings.Contains(stat, `stroke-dasharray="`+key.Limit.Dash+`"`) {
+			t.Errorf("worker %s: no limit line", id)
+		}
+		if signals > 0 && !strings.Contains(p, "this worker&#39;s earlier exams led the model to expect") {
+			t.Errorf("worker %s: the caption does not compare the reading with the expected one", id)
+		}
+	}
+	// Without serial whitening there is no expectation to show.
+	off := s
+	off.Settings.Serial = screening.SerialDirect
+	out = render(t, Data{Sections: []Section{off}, MaxPanels: 2})
+	if strings.Contains(out, `stroke="`+key.Expected.Stroke+`" stroke-width="2"/>`) {
+		t.Error("serial direct: panels should not show expected readings")
 	}
 }

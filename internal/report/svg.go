@@ -9,24 +9,16 @@ import (
 	"veer/internal/numeric"
 )
 
-// Palette of Okabe & Ito (2008), safe for the common forms of colour-blindness.
+// Colours of the frame; the marks' colours are those of symbols.Legend.
 const (
-	colBlack     = "#000000"
-	colOrange    = "#E69F00"
-	colSky       = "#56B4E9"
-	colGreen     = "#009E73"
-	colBlue      = "#0072B2"
-	colVermilion = "#D55E00"
-	colPurple    = "#CC79A7"
-	colGrid      = "#d9d9d9"
-	colAxis      = "#444444"
+	colGrid = "#d9d9d9"
+	colAxis = "#444444"
 )
 
-// Dash patterns, so series differ without colour.
+// Dash patterns of the reference centiles, so series differ without colour.
 const (
 	dashOuter = "7 4" // 2.5th and 97.5th centiles
 	dashInner = "2 3" // 10th and 90th centiles
-	dashLimit = "9 3 2 3"
 )
 
 // linScale maps a data interval onto a pixel interval.
@@ -271,6 +263,10 @@ const (
 	shapeCircle  = "circle"
 	shapeDiamond = "diamond"
 	shapeSquare  = "square" // open square, drawn around a point
+	shapeRing    = "ring"   // open circle, drawn around a point
+	// shapeTriangle is a filled triangle pointing up: the evaluation's
+	// baseline, outside the key of symbols.
+	shapeTriangle = "triangle"
 )
 
 // marker draws one marker at data point (x, y).
@@ -283,11 +279,34 @@ func (p *plot) marker(x, y float64, shape, fill, stroke string, r float64) {
 	case shapeDiamond:
 		p.b.WriteString(`<path d="M` + px(cx) + " " + px(cy-r) + "L" + px(cx+r) + " " + px(cy) + "L" + px(cx) + " " + px(cy+r) +
 			"L" + px(cx-r) + " " + px(cy) + `Z" fill="` + fill + `" stroke="` + stroke + `" stroke-width="1"/>`)
+	case shapeTriangle:
+		p.b.WriteString(`<path d="M` + px(cx) + " " + px(cy-r) + "L" + px(cx+r) + " " + px(cy+0.8*r) + "L" + px(cx-r) + " " + px(cy+0.8*r) +
+			`Z" fill="` + fill + `" stroke="` + stroke + `" stroke-width="1"/>`)
+	case shapeRing:
+		p.b.WriteString(`<circle cx="` + px(cx) + `" cy="` + px(cy) + `" r="` + px(r) + `" fill="none" stroke="` + stroke + `" stroke-width="1.6"/>`)
 	case shapeSquare:
 		p.b.WriteString(`<rect x="` + px(cx-r) + `" y="` + px(cy-r) + `" width="` + px(2*r) + `" height="` + px(2*r) +
 			`" fill="none" stroke="` + stroke + `" stroke-width="1.6"/>`)
 	default:
 		p.b.WriteString(`<circle cx="` + px(cx) + `" cy="` + px(cy) + `" r="` + px(r) + `" fill="` + fill + `" stroke="` + stroke + `" stroke-width="1"/>`)
+	}
+}
+
+// interval draws a vertical bar from lo to hi at x with a tick at mid
+// (a value and its interval); non-finite ends are left out.
+func (p *plot) interval(x, lo, mid, hi float64, stroke string) {
+	if !numeric.Finite(x) {
+		return
+	}
+	cx := p.x.at(x)
+	if numeric.Finite(lo) && numeric.Finite(hi) {
+		p.b.WriteString(`<line clip-path="url(#` + esc(p.clipID) + `)" x1="` + px(cx) + `" x2="` + px(cx) + `" y1="` + px(p.y.at(lo)) + `" y2="` + px(p.y.at(hi)) +
+			`" stroke="` + stroke + `" stroke-width="1.2" stroke-opacity="0.8"/>`)
+	}
+	if numeric.Finite(mid) {
+		y := p.y.at(mid)
+		p.b.WriteString(`<line clip-path="url(#` + esc(p.clipID) + `)" x1="` + px(cx-4) + `" x2="` + px(cx+4) + `" y1="` + px(y) + `" y2="` + px(y) +
+			`" stroke="` + stroke + `" stroke-width="2"/>`)
 	}
 }
 

@@ -75,7 +75,9 @@ var pageTemplate = template.Must(template.New("report").Parse(`<!DOCTYPE html>
 <h3>How to read this report</h3>
 <p>For each marker, the report shows the reference curves of healthy workers by age and group, how well the reference model fits,
 the control limit and what it means, one panel per flagged worker and a table of flagged workers.
-A worker is flagged when the chart statistic of the worker's whole history of exams passes the limit, or when an alert rule fires.
+A worker is flagged when the chart statistic of the worker's whole history of exams passes the limit (a chart signal), or when an alert
+rule of severity high fires; every count of flagged workers in this report, on the terminal and in the workbook's summary sheet counts
+exactly these. Rules of other severities are listed where they fired but do not flag.
 The chart compares each reading with healthy workers of the same age and group, so it can notice a drift long before a single
 reading crosses a fixed cut-off, and it can also flag healthy workers by chance at the agreed rate.</p>
 {{range .Sections}}
@@ -92,8 +94,8 @@ reading crosses a fixed cut-off, and it can also flag healthy workers by chance 
 {{range .LimitRows}}<tr><th scope="row">{{.Label}}</th><td>{{.Value}}</td></tr>
 {{end}}</tbody></table>
 {{if .RuleRows}}<h3>Alert rules</h3>
-<table><thead><tr><th>rule</th><th>expression</th></tr></thead><tbody>
-{{range .RuleRows}}<tr><td>{{.Label}}</td><td><code>{{.Value}}</code></td></tr>
+<table><thead><tr><th>rule</th><th>severity</th><th>expression</th></tr></thead><tbody>
+{{range .RuleRows}}<tr><td>{{.Name}}</td><td>{{.Severity}}</td><td><code>{{.Expr}}</code></td></tr>
 {{end}}</tbody></table>{{end}}
 <h3>Reference curves</h3>
 {{range .RefFigures}}<figure>{{.SVG}}<figcaption>{{.Caption}}</figcaption></figure>
@@ -115,7 +117,9 @@ reading crosses a fixed cut-off, and it can also flag healthy workers by chance 
 {{range .Warnings}}<li>{{.}}</li>
 {{end}}</ul>{{end}}
 <h3>Flagged workers</h3>
-<p>{{.PanelNote}} Left: the worker's readings against the reference band of the worker's group. Right: the chart statistic against the limit.
+<p>{{.PanelNote}} Left: the worker's readings against the reference band of the worker's group{{if .Expected}}, with the reading the serial
+model expected from the worker's own earlier exams (the chart adds up how far each reading lies from that expectation, so a reading near
+the median can move the chart up after low ones){{end}}. Right: the chart statistic against the limit.
 {{$.Signal}}</p>
 {{if .Panels}}<figure class="key">{{.Legend}}</figure>{{end}}
 {{range .Panels}}<div class="panel" id="{{.Anchor}}">
@@ -126,9 +130,9 @@ reading crosses a fixed cut-off, and it can also flag healthy workers by chance 
 {{end}}
 <h3>Summary table</h3>
 {{if .Summary}}<table class="summary"><thead><tr><th>worker</th><th>group</th><th class="num">exams</th><th class="num">first exam (age)</th>
-<th class="num">last exam (age)</th><th class="num">first chart signal (age)</th><th>rules fired</th><th class="num">panel</th></tr></thead><tbody>
+<th class="num">last exam (age)</th><th class="num">first chart signal (age)</th><th class="num">chart ÷ limit at the latest exam</th><th>rules fired</th><th class="num">panel</th></tr></thead><tbody>
 {{range .Summary}}<tr{{if .Flagged}} class="flagged"{{end}}><td>{{.Worker}}</td><td>{{.Group}}</td><td class="num">{{.Exams}}</td>
-<td class="num">{{.FirstExam}}</td><td class="num">{{.LastExam}}</td><td class="num">{{.FirstSignal}}</td><td>{{.Rules}}</td>
+<td class="num">{{.FirstExam}}</td><td class="num">{{.LastExam}}</td><td class="num">{{.FirstSignal}}</td><td class="num">{{.Ratio}}</td><td>{{.Rules}}</td>
 <td class="num">{{if .Anchor}}<a href="#{{.Anchor}}">{{.Panel}}</a>{{else}}{{.Panel}}{{end}}</td></tr>
 {{end}}</tbody></table>{{else}}<p>No worker to list.</p>{{end}}
 {{if .SummaryNote}}<p>{{.SummaryNote}}</p>{{end}}
