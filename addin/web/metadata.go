@@ -8,6 +8,7 @@ import (
 
 	"veer/functions/cell"
 	"veer/functions/screening"
+	"veer/internal/symbols"
 )
 
 // Namespace is the prefix the host shows before every function name
@@ -153,8 +154,11 @@ func CatalogJS(l cell.Listing) ([]byte, error) {
 		Functions []runtimeFunc        `json:"functions"`
 		Codes     map[cell.Code]string `json:"codes"`
 		Caution   string               `json:"caution"` // screening.Caution, for the task pane's texts
+		// Symbols is the one key of chart marks (symbols.Legend), which
+		// the task pane draws with, as the report does.
+		Symbols symbols.Key `json:"symbols"`
 	}
-	t := table{Namespace: Namespace, Functions: []runtimeFunc{}, Codes: l.Codes, Caution: screening.Caution}
+	t := table{Namespace: Namespace, Functions: []runtimeFunc{}, Codes: l.Codes, Caution: screening.Caution, Symbols: symbols.Legend}
 	for _, f := range l.Functions {
 		rf := runtimeFunc{ID: FunctionID(f.Name), Name: f.Name, Result: f.Result, Streaming: f.Streaming, Writes: f.Writes, Slow: f.Slow, Params: []runtimeParam{}}
 		for _, p := range f.Params {

@@ -14,8 +14,11 @@ import catalog from "./catalog.js";
 import * as veer from "./veer.js";
 
 const SVGNS = "http://www.w3.org/2000/svg";
-// Okabe-Ito colours (see taskpane.css); each also differs in shape.
-const C = { blue: "#0072B2", sky: "#56B4E9", vermillion: "#D55E00", ink: "#1a1a1a", grid: "#e4e4e4", muted: "#555" };
+// Colours of the frame; every mark (reading, signal, limit, band...) comes
+// from veer's one key of chart marks, catalog.symbols, which the report
+// draws with too: one shape and colour, one meaning.
+const C = { ink: "#1a1a1a", grid: "#e4e4e4", muted: "#555" };
+const K = catalog.symbols;
 // Units and marker names of the built-in demo models; for other models the
 // pane's settings give the unit.
 const DEMO = {
@@ -334,7 +337,42 @@ function runs(xs, ys) {
 
 const points = (pts) => pts.map(([x, y]) => `${x},${y}`).join(" ");
 const diamond = (cx, cy, r) => `M${cx} ${cy - r} L${cx + r} ${cy} L${cx} ${cy + r} L${cx - r} ${cy} Z`;
-const triangle = (cx, cy, r) => `M${cx} ${cy - r} L${cx + r} ${cy + r * 0.8} L${cx - r} ${cy + r * 0.8} Z`;
+
+// mark draws one mark of the key (catalog.symbols) at (cx, cy) with size r.
+function mark(m, cx, cy, r, cls, parent) {
+  switch (m.shape) {
+    case "diamond":
+      return el("path", { class: cls, d: diamond(cx, cy, r), fill: m.fill, stroke: m.stroke, "stroke-width": 0.8 }, parent);
+    case "ring":
+      return el("circle", { class: cls, cx, cy, r, fill: "none", stroke: m.stroke, "stroke-width": 1.6 }, parent);
+    case "square":
+      return el("rect", { class: cls, x: cx - r, y: cy - r, width: 2 * r, height: 2 * r, fill: "none", stroke: m.stroke, "stroke-width": 1.6 }, parent);
+    default:
+      return el("circle", { class: cls, cx, cy, r, fill: m.fill, stroke: "#fff", "stroke-width": 1 }, parent);
+  }
+}
+
+// fillLegend writes the key of a chart from the marks it draws, each with
+// the key's meaning.
+function fillLegend(id, entries) {
+  const ul = $(id);
+  if (!ul) return;
+  ul.replaceChildren(...entries.map(([m, text]) => {
+    const li = document.createElement("li");
+    const svg = el("svg", { width: 26, height: 14, "aria-hidden": "true" });
+    if (m.shape === "band") {
+      el("rect", { x: 0, y: 1, width: 26, height: 12, fill: m.fill, "fill-opacity": 0.28 }, svg);
+      el("rect", { x: 0, y: 4, width: 26, height: 6, fill: m.fill, "fill-opacity": 0.55 }, svg);
+    } else if (m.shape === "line") {
+      el("line", { x1: 0, y1: 7, x2: 26, y2: 7, stroke: m.stroke, "stroke-width": 2, ...(m.dash ? { "stroke-dasharray": m.dash } : {}) }, svg);
+    } else {
+      if (m.shape === "ring") mark(K.reading, 13, 7, 3.5, "", svg);
+      mark(m, 13, 7, m.shape === "ring" ? 6 : 5, "", svg);
+    }
+    li.append(svg, " " + (text || m.meaning));
+    return li;
+  }));
+}
 
 // ---- worker charts -------------------------------------------------------
 
@@ -436,14 +474,14 @@ function drawWorker(d) {
   });
   const summary = summarise(d, ages, outside.filter(Boolean).length, chart);
   $("worker-summary").textContent = summary;
-  drawBand(d, ages, vals, outside, xd, summary);
+  drawBand(d, ages, vals, rows, outside, xd, summary);
   drawStatistic(d, ages, chart, xd, summary);
   fillTable(ages, vals, rows);
 }
 
 // drawBand draws the reference band of healthy workers with the worker's
 // readings.
-function drawBand(d, ages, vals, outside, xd, summary) {
+function drawBand(d, ages, vals, rows, outside, xd, summary) {
   const W = 600, H = 320;
   const svg = newSVG($("band-chart"), "band", W, H,
     `${d.marker} of worker ${d.w.worker} against healthy workers of the same age`,
@@ -461,19 +499,21 @@ function drawBand(d, ages, vals, outside, xd, summary) {
       const idx = run.map(([x]) => d.grid.indexOf(x));
       const top = idx.map((i) => [s.x(d.grid[i]), s.y(hiS[i])]);
       const bot = [...idx].reverse().map((i) => [s.x(d.grid[i]), s.y(loS[i])]);
-      el("polygon", { points: points([...top, ...bot]), fill: C.sky, "fill-opacity": opacity, stroke: "none" }, bands);
+      el("polygon", { points: points([...top, ...bot]), fill: K.band.fill, "fill-opacity": opacity, stroke: "none" }, bands);
     }
   }
   for (const run of runs(d.grid, d.band[2])) {
-    el("polyline", { class: "median", points: points(run.map(([x, y]) => [s.x(x), s.y(y)])), fill: "none", stroke: C.blue, "stroke-width": 2.5 }, svg);
+    el("polyline", { class: "median", points: points(run.map(([x, y]) => [s.x(x), s.y(y)])), fill: "none", stroke: K.median.stroke, "stroke-width": 2.5 }, svg);
   }
   el("polyline", { points: points(ages.map((a, i) => [s.x(a), s.y(vals[i])])), fill: "none", stroke: C.muted, "stroke-width": 1 }, svg);
   const pts = el("g", { class: "readings" }, svg);
   ages.forEach((a, i) => {
-    const label = `Age ${fmt(a, 3)}: ${fmt(vals[i], 4)}${d.unit ? ` ${d.unit}` : ""}${outside[i] ? ", outside the central 95%" : ""}`;
-    const m = outside[i]
-      ? el("path", { class: "reading outside", d: diamond(s.x(a), s.y(vals[i]), 6), fill: C.vermillion, stroke: "#000", "stroke-width": 0.8 }, pts)
-      : el("circle", { class: "reading", cx: s.x(a), cy: s.y(vals[i]), r: 4, fill: "#000", stroke: "#fff", "stroke-width": 1 }, pts);
+    const signal = rows?.[i]?.[4] === true;
+    const label = `Age ${fmt(a, 3)}: ${fmt(vals[i], 4)}${d.unit ? ` ${d.unit}` : ""}${outside[i] ? ", outside the central 95%" : ""}${signal ? ", the chart signals" : ""}`;
+    const x = s.x(a), y = s.y(vals[i]);
+    const m = mark(K.reading, x, y, 4, outside[i] ? "reading outside" : "reading", pts);
+    if (signal) mark(K.signal, x, y, 6, "signal", pts);
+    if (outside[i]) mark(K.outside, x, y, 9, "outside-ring", pts);
     el("title", {}, m, label);
   });
 }
@@ -496,27 +536,27 @@ function drawStatistic(d, ages, chart, xd, summary) {
   y1 += (y1 - y0) * 0.12 || 1;
   const s = frame(svg, box, xd, [y0, y1], "Age (years)", `${kind} statistic (SD units)`);
   if (!rows) {
-    el("text", { x: W / 2, y: H / 2, "text-anchor": "middle", fill: C.vermillion, "font-size": "13" }, svg, `No chart: ${errText(d.chartErr)}`);
+    el("text", { x: W / 2, y: H / 2, "text-anchor": "middle", fill: C.ink, "font-size": "13" }, svg, `No chart: ${errText(d.chartErr)}`);
     return;
   }
   if (Number.isFinite(limit)) {
-    el("line", { class: "limit", x1: box.l, x2: W - box.r, y1: s.y(limit), y2: s.y(limit), stroke: "#000", "stroke-width": 1.5, "stroke-dasharray": "6 4" }, svg);
-    el("text", { x: W - box.r - 4, y: s.y(limit) - 5, "text-anchor": "end", "font-size": "12", fill: C.ink }, svg, `limit h = ${fmt(limit, 3)}`);
+    el("line", { class: "limit", x1: box.l, x2: W - box.r, y1: s.y(limit), y2: s.y(limit), stroke: K.limit.stroke, "stroke-width": 1.6, "stroke-dasharray": K.limit.dash }, svg);
+    el("text", { x: W - box.r - 4, y: s.y(limit) - 5, "text-anchor": "end", "font-size": "12", fill: K.limit.stroke }, svg, `limit h = ${fmt(limit, 3)}`);
   }
   if (Number.isFinite(first)) {
-    el("line", { class: "first-signal", x1: s.x(first), x2: s.x(first), y1: box.t, y2: H - box.b, stroke: C.vermillion, "stroke-width": 1.2, "stroke-dasharray": "2 3" }, svg);
+    el("line", { class: "first-signal", x1: s.x(first), x2: s.x(first), y1: box.t, y2: H - box.b, stroke: C.muted, "stroke-width": 1.2, "stroke-dasharray": "2 3" }, svg);
     el("text", { x: s.x(first) + 4, y: box.t + 12, "font-size": "12", fill: C.ink }, svg, `first signal, age ${fmt(first, 3)}`);
   }
   for (const run of runs(ages, cs)) {
-    el("polyline", { class: "stat-line", points: points(run.map(([x, y]) => [s.x(x), s.y(y)])), fill: "none", stroke: C.blue, "stroke-width": 2 }, svg);
+    el("polyline", { class: "stat-line", points: points(run.map(([x, y]) => [s.x(x), s.y(y)])), fill: "none", stroke: K.statistic.stroke, "stroke-width": 2 }, svg);
   }
   const g = el("g", { class: "stats" }, svg);
   ages.forEach((a, i) => {
     if (!Number.isFinite(cs[i])) return;
     const signal = rows[i][4] === true;
     const m = signal
-      ? el("path", { class: "signal", d: triangle(s.x(a), s.y(cs[i]), 7), fill: C.vermillion, stroke: "#000", "stroke-width": 0.8 }, g)
-      : el("circle", { class: "stat", cx: s.x(a), cy: s.y(cs[i]), r: 3, fill: C.blue }, g);
+      ? mark(K.signal, s.x(a), s.y(cs[i]), 6, "signal", g)
+      : el("circle", { class: "stat", cx: s.x(a), cy: s.y(cs[i]), r: 3, fill: K.statistic.fill }, g);
     el("title", {}, m, `Age ${fmt(a, 3)}: chart ${fmt(cs[i], 3)}${signal ? ", signal" : ""}`);
   });
 }
@@ -593,6 +633,8 @@ async function onSelection() {
 
 function start(info) {
   fillSettings();
+  fillLegend("band-legend", [[K.band], [K.median], [K.reading], [K.outside], [K.signal]]);
+  fillLegend("stat-legend", [[K.statistic], [K.limit], [K.signal]]);
   $("settings-form").addEventListener("submit", saveSettings);
   $("refresh-models").addEventListener("click", refreshModels);
   $("model").addEventListener("change", () => selectModel($("model").value));

@@ -17,6 +17,7 @@ import (
 	"net/http"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"syscall"
@@ -30,6 +31,7 @@ import (
 	"veer/functions/catalog"
 	"veer/functions/screening"
 	"veer/internal/browsertest"
+	"veer/internal/symbols"
 	"veer/server"
 	"veer/server/servertest"
 )
@@ -685,6 +687,11 @@ func TestTaskPaneInBrowser(t *testing.T) {
 	type drawn struct {
 		Readings, Signals, Limits, Bands, Medians int
 		Title, Desc, Summary                      string
+		// The marks, to compare with the report's (symbols.Legend).
+		BandSignals, Outside, Rings      int
+		SignalTags, SignalFills, RingInk []string
+		LimitDash, LimitInk              string
+		BandLegend, StatLegend           []string
 	}
 	d := inPage[drawn](t, ctx, 5*time.Second, `({
 		readings: document.querySelectorAll("#band-chart .reading").length,
@@ -694,8 +701,43 @@ func TestTaskPaneInBrowser(t *testing.T) {
 		medians: document.querySelectorAll("#band-chart .median").length,
 		title: document.querySelector("#band-chart svg title").textContent,
 		desc: document.querySelector("#stat-chart svg desc").textContent,
-		summary: document.getElementById("worker-summary").textContent
+		summary: document.getElementById("worker-summary").textContent,
+		bandSignals: document.querySelectorAll("#band-chart .signal").length,
+		outside: document.querySelectorAll("#band-chart .reading.outside").length,
+		rings: document.querySelectorAll("#band-chart .outside-ring").length,
+		signalTags: [...document.querySelectorAll(".chart .signal")].map((e) => e.tagName),
+		signalFills: [...document.querySelectorAll(".chart .signal")].map((e) => e.getAttribute("fill")),
+		ringInk: [...document.querySelectorAll(".chart .outside-ring")].map((e) => e.getAttribute("stroke")),
+		limitDash: document.querySelector("#stat-chart .limit").getAttribute("stroke-dasharray"),
+		limitInk: document.querySelector("#stat-chart .limit").getAttribute("stroke"),
+		bandLegend: [...document.querySelectorAll("#band-legend li")].map((e) => e.textContent.trim()),
+		statLegend: [...document.querySelectorAll("#stat-legend li")].map((e) => e.textContent.trim())
 	})`)
+	// One mark, one meaning: the pane draws a signal, a reading outside
+	// the central 95% and the limit as the report does, and says so in its
+	// keys with the key's words.
+	key := symbols.Legend
+	if d.BandSignals != signals || d.Rings != d.Outside {
+		t.Errorf("reading chart: %d signal marks (want %d), %d rings for %d readings outside the central 95%%", d.BandSignals, signals, d.Rings, d.Outside)
+	}
+	for i, tag := range d.SignalTags {
+		if tag != "path" || d.SignalFills[i] != key.Signal.Fill {
+			t.Errorf("signal mark %d: <%s fill=%q>, want the key's diamond filled %s", i+1, tag, d.SignalFills[i], key.Signal.Fill)
+		}
+	}
+	for _, ink := range d.RingInk {
+		if ink != key.Outside.Stroke {
+			t.Errorf("ring drawn in %s, want %s", ink, key.Outside.Stroke)
+		}
+	}
+	if d.LimitDash != key.Limit.Dash || d.LimitInk != key.Limit.Stroke {
+		t.Errorf("limit line %s dashed %q, want %s dashed %q", d.LimitInk, d.LimitDash, key.Limit.Stroke, key.Limit.Dash)
+	}
+	for _, want := range [][2]any{{d.BandLegend, key.Outside.Meaning}, {d.BandLegend, key.Signal.Meaning}, {d.StatLegend, key.Limit.Meaning}, {d.StatLegend, key.Signal.Meaning}} {
+		if !slices.Contains(want[0].([]string), want[1].(string)) {
+			t.Errorf("a key lacks %q: %q", want[1], want[0])
+		}
+	}
 	if d.Readings != len(w.Ages) || d.Signals != signals || signals == 0 || d.Limits != 1 || d.Bands < 2 || d.Medians < 1 {
 		t.Errorf("drawn: %d readings (want %d), %d signals (server: %d), %d limit lines, %d band areas, %d median lines", d.Readings, len(w.Ages), d.Signals, signals, d.Limits, d.Bands, d.Medians)
 	}

@@ -19,6 +19,7 @@ import (
 	"veer/functions/rules"
 	"veer/functions/screening"
 	"veer/internal/atomicfile"
+	"veer/internal/flagged"
 	"veer/internal/report"
 	"veer/internal/table"
 )
@@ -89,7 +90,7 @@ func runSmallSiteDemo(e *env, out string, target float64) error {
 	for _, r := range all {
 		secs = append(secs, r.sec)
 	}
-	if err := writeReport(filepath.Join(out, "report.html"), smallsite.ExamsFile+" (synthetic small-site data)", secs); err != nil {
+	if err := writeReport(filepath.Join(out, "report.html"), smallsite.ExamsFile+" (synthetic small-site data)", panelChoice{}, secs); err != nil {
 		return err
 	}
 	printSmallSiteSummary(e.stdout, all, target)
@@ -162,16 +163,18 @@ func smallSiteOne(e *env, mk smallSiteMarker, work, truthTab *table.Table, files
 	if err != nil {
 		return nil, err
 	}
-	sig := make([]bool, len(res))
-	for i, x := range res {
-		sig[i] = x.Signal
-	}
-	r.rows = append(r.rows, demoRow{fmt.Sprintf("veer, %g-year target", target), screening.Evaluate(exams, sig, truth)})
+	var frs []flagged.Rule
 	for k, rule := range rs.Rules {
 		f := fired(ruleCols[k])
-		r.sec.Rules = append(r.sec.Rules, report.Rule{Name: rule.Name, Expr: rule.Expr, Fired: f})
-		if rule.Name != "chart_over_limit" {
-			r.rows = append(r.rows, demoRow{"rule " + rule.Name, screening.Evaluate(exams, f, truth)})
+		frs = append(frs, flagged.Rule{Name: rule.Name, Severity: rule.Severity, Fired: f})
+		r.sec.Rules = append(r.sec.Rules, report.Rule{Name: rule.Name, Expr: rule.Expr, Severity: rule.Severity, Fired: f})
+	}
+	// The chart's row counts the flagged workers of the report (package
+	// flagged); each trade threshold is scored on its own after it.
+	r.rows = append(r.rows, demoRow{fmt.Sprintf("chart, %g-year target", target), screening.Evaluate(exams, flagged.Exams(res, frs), truth)})
+	for _, fr := range frs {
+		if fr.Name != "chart_over_limit" {
+			r.rows = append(r.rows, demoRow{"rule " + fr.Name, screening.Evaluate(exams, fr.Fired, truth)})
 		}
 	}
 	fmt.Fprintf(e.stderr, "  %s: %s; limit %.3f for %g years\n", mk.name, m.Summary(), lim.H, target)
@@ -208,15 +211,15 @@ func smallSiteTruth(t *table.Table, marker string) (map[string]screening.Truth, 
 
 func printSmallSiteSummary(w io.Writer, all []*smallSiteResult, target float64) {
 	fmt.Fprintf(w, "\nSmall site: 60 workers, no reference cohort; published references (synthetic), the serial model estimated from the workforce itself.\n")
+	fmt.Fprintln(w)
 	tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
-	fmt.Fprintln(tw, "marker\tmethod\tworkers flagged\ttruly drifting\tcases detected\tfalse signals per 100 worker-years")
+	fmt.Fprintln(tw, strings.Join(demoColumns, "\t"))
 	for _, r := range all {
 		for _, row := range r.rows {
-			ev := row.ev
-			fmt.Fprintf(tw, "%s (%s)\t%s\t%d of %d\t%d\t%d of %d\t%.2f\n", r.marker.name, r.marker.side, row.method,
-				ev.Flagged, ev.Workers, ev.TrueFlagged, ev.Detected, ev.CasesAtRisk, ev.FalsePer100)
+			demoTableRow(tw, r.marker.name, r.marker.side, row)
 		}
 	}
 	tw.Flush()
+	fmt.Fprintln(w)
 	fmt.Fprintf(w, "With so few workers every figure here is noisy. A %g-year target means a healthy worker is flagged on average once in %g years of exams.\n", target, target)
 }

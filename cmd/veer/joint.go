@@ -17,6 +17,7 @@ import (
 	"veer/functions/screening"
 	"veer/functions/transform"
 	"veer/internal/atomicfile"
+	"veer/internal/flagged"
 	"veer/internal/table"
 )
 
@@ -312,6 +313,8 @@ type jointScreenJob struct {
 	target   float64
 	exams    []screening.JointExam
 	results  []screening.JointResult
+	// flagRules are the screen's rules, for the flagged count.
+	flagRules []flagged.Rule
 }
 
 // jointScreen screens a CSV sheet with a joint model: --value names the
@@ -438,21 +441,21 @@ func (job *jointScreenJob) write(out io.Writer, ruleNames []string, ruleCols [][
 }
 
 func (job *jointScreenJob) summary(e *env) {
-	workers, flagged := 0, 0
 	lead := map[string]int{}
-	for _, r := range job.results {
-		if r.Exam == 1 {
-			workers++
-			if !math.IsNaN(r.FirstSignal) {
-				flagged++
-			}
-		}
+	// The joint chart in the shape package flagged counts.
+	exams := make([]screening.Exam, len(job.results))
+	res := make([]screening.Result, len(job.results))
+	for i, r := range job.results {
+		exams[i] = screening.Exam{Worker: job.exams[i].Worker, Group: job.exams[i].Group, Time: job.exams[i].Time}
+		res[i] = screening.Result{Stat: r.Stat, Signal: r.Signal}
 		if r.Signal && r.Leading >= 0 {
 			lead[job.cols[r.Leading]]++
 		}
 	}
-	fmt.Fprintf(e.stderr, "screened %d exams of %d workers on %s together at limit %.4f: %d workers signalled\n",
-		len(job.results), workers, strings.Join(job.cols, ", "), job.limit.H, flagged)
+	c := flagged.Count(flagged.Workers(exams, res, job.flagRules, job.limit.H), job.flagRules)
+	fmt.Fprintf(e.stderr, "screened %d exams of %d workers on %s together at limit %.4f\n",
+		len(job.results), c.Workers, strings.Join(job.cols, ", "), job.limit.H)
+	printCounts(e, c, job.flagRules)
 	if len(lead) > 0 {
 		var parts []string
 		for _, m := range job.cols {
@@ -494,6 +497,9 @@ func runJointScreen(e *env, sf *screenFlags, j *screening.Joint, out string) (*j
 	ruleNames, ruleCols, err := job.rules(rs)
 	if err != nil {
 		return nil, err
+	}
+	for k, n := range ruleNames {
+		job.flagRules = append(job.flagRules, flagged.Rule{Name: n, Severity: rs.Rules[k].Severity, Fired: fired(ruleCols[k])})
 	}
 	write := func(w io.Writer) error { return job.write(w, ruleNames, ruleCols) }
 	if out == "" {

@@ -78,7 +78,7 @@ func TestJointCommands(t *testing.T) {
 	screened := filepath.Join(dir, "out.csv")
 	code, _, errs = cli("screen", "--model", model, "--in", work, "--id", "worker", "--time", "age", "--value", "fev1,sbp,chol",
 		"--side", "down,up,up", "--target", "20", "--extrapolate", "--rule", "both_high=z_sbp > 1.0 && z_chol > 1.0", "--out", screened)
-	if code != 0 || !strings.Contains(errs, "workers signalled") || !strings.Contains(errs, "not a diagnosis") {
+	if code != 0 || !strings.Contains(errs, "workers with a chart signal") || !strings.Contains(errs, "not a diagnosis") {
 		t.Fatalf("screen: %d %s", code, errs)
 	}
 	f, err := os.Open(screened)

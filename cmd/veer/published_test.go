@@ -231,7 +231,7 @@ func TestDemoSmallSite(t *testing.T) {
 		}
 	}
 	out := stdout.String()
-	for _, want := range []string{"sbp (up)     veer, 50-year target", "rule sbp_at_or_above_140", "fev1 (down)  rule below_lln", "rule fev1_fall_15pct"} {
+	for _, want := range []string{"sbp (up)     chart, 50-year target", "rule sbp_at_or_above_140", "fev1 (down)  rule below_lln", "rule fev1_fall_15pct"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("summary lacks %q:\n%s", want, out)
 		}

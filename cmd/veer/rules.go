@@ -20,12 +20,20 @@ func (r *ruleList) Set(v string) error {
 	name, expr, ok := strings.Cut(v, "=")
 	name, expr = strings.TrimSpace(name), strings.TrimSpace(expr)
 	if !ok || name == "" || expr == "" {
-		return errors.New("a rule is written NAME=EXPRESSION, e.g. high=chart > limit")
+		return errors.New("a rule is written NAME=EXPRESSION or NAME [SEVERITY]=EXPRESSION, e.g. 'over [high]=chart > limit'")
 	}
 	if strings.HasPrefix(expr, "=") {
 		return fmt.Errorf("rule %q: the expression starts with '='; write NAME=EXPRESSION with a single '=' after the name", name)
 	}
-	*r = append(*r, rules.NamedRule{Name: name, Expr: expr})
+	sev := ""
+	if n, rest, ok := strings.Cut(name, "["); ok {
+		s, tail, closed := strings.Cut(rest, "]")
+		if !closed || strings.TrimSpace(tail) != "" {
+			return fmt.Errorf("rule %q: write the severity in brackets after the name, e.g. 'over [high]=chart > limit'", name)
+		}
+		name, sev = strings.TrimSpace(n), strings.TrimSpace(s)
+	}
+	*r = append(*r, rules.NamedRule{Name: name, Severity: sev, Expr: expr})
 	return nil
 }
 

@@ -3,12 +3,14 @@ package main
 import (
 	"bytes"
 	"context"
+	"errors"
 	"flag"
 	"fmt"
 	"io"
 	"math"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"time"
 
@@ -16,6 +18,7 @@ import (
 	"veer/functions/rules"
 	"veer/functions/screening"
 	"veer/internal/atomicfile"
+	"veer/internal/flagged"
 	"veer/internal/report"
 	"veer/internal/table"
 	"veer/internal/workbook"
@@ -153,19 +156,38 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 	return j, nil
 }
 
-// summary prints what was screened on stderr.
-func (j *screenJob) summary(e *env) {
-	workers, flagged := 0, 0
-	for _, r := range j.results {
-		if r.Exam == 1 {
-			workers++
-			if !math.IsNaN(r.FirstSignal) {
-				flagged++
-			}
-		}
+// flaggedRules are the job's rules for package flagged.
+func (j *screenJob) flaggedRules() []flagged.Rule {
+	rs := make([]flagged.Rule, len(j.ruleNames))
+	for k, n := range j.ruleNames {
+		rs[k] = flagged.Rule{Name: n, Severity: j.ruleSet.Rules[k].Severity, Fired: fired(j.ruleCols[k])}
 	}
-	fmt.Fprintf(e.stderr, "screened %d exams of %d workers at limit %.4f: %d workers signalled\n", len(j.results), workers, j.limit.H, flagged)
+	return rs
+}
+
+// summary prints what was screened on stderr, each count labelled with
+// what it counts (the same counts as the workbook's summary and the
+// report).
+func (j *screenJob) summary(e *env) {
+	rs := j.flaggedRules()
+	c := flagged.Count(flagged.Workers(j.exams, j.results, rs, j.limit.H), rs)
+	fmt.Fprintf(e.stderr, "screened %d exams of %d workers at limit %.4f\n", len(j.results), c.Workers, j.limit.H)
+	printCounts(e, c, rs)
 	fmt.Fprintln(e.stderr, screening.Caution)
+}
+
+// printCounts prints the flagged workers, those with a chart signal and,
+// per rule, those for whom it fired.
+func printCounts(e *env, c flagged.Counts, rs []flagged.Rule) {
+	fmt.Fprintf(e.stderr, "  %d of %d workers flagged (%s)\n", c.Flagged, c.Workers, flagged.Definition)
+	fmt.Fprintf(e.stderr, "  %d of %d workers with a chart signal\n", c.Signalled, c.Workers)
+	for k, r := range rs {
+		sev := ""
+		if r.Severity != "" {
+			sev = " [" + r.Severity + "]"
+		}
+		fmt.Fprintf(e.stderr, "  %d of %d workers for whom rule %s%s fired\n", c.Rules[k], c.Workers, r.Name, sev)
+	}
 }
 
 // fired turns a rule column into true/false per row (a label counts as
@@ -183,11 +205,7 @@ func fired(col []string) []bool {
 }
 
 func (j *screenJob) markerResults(name string) workbook.MarkerResults {
-	mr := workbook.MarkerResults{Name: name, Exams: j.exams, Results: j.results, Limit: j.limit.H}
-	for k, n := range j.ruleNames {
-		mr.Rules = append(mr.Rules, workbook.RuleColumn{Name: n, Fired: fired(j.ruleCols[k])})
-	}
-	return mr
+	return workbook.MarkerResults{Name: name, Exams: j.exams, Results: j.results, Limit: j.limit.H, Rules: j.flaggedRules()}
 }
 
 func (j *screenJob) reportSection(marker, unit string) report.Section {
@@ -196,7 +214,8 @@ func (j *screenJob) reportSection(marker, unit string) report.Section {
 		Target: j.target, Exams: j.exams, Results: j.results,
 	}
 	for k, n := range j.ruleNames {
-		sec.Rules = append(sec.Rules, report.Rule{Name: n, Expr: j.ruleSet.Rules[k].Expr, Fired: fired(j.ruleCols[k])})
+		r := j.ruleSet.Rules[k]
+		sec.Rules = append(sec.Rules, report.Rule{Name: n, Expr: r.Expr, Severity: r.Severity, Fired: fired(j.ruleCols[k])})
 	}
 	return sec
 }
@@ -207,6 +226,8 @@ func runScreen(e *env, args []string) error {
 	sf.register(fs)
 	out := fs.String("out", "", "file to write: a CSV file (default: standard output), or for an .xlsx input the workbook to write (default: the input workbook itself, with a backup)")
 	rep := fs.String("report", "", "also write an HTML report to this file")
+	var panels panelChoice
+	panels.register(fs)
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -267,7 +288,7 @@ func runScreen(e *env, args []string) error {
 		}
 	}
 	if *rep != "" {
-		if err := writeReport(*rep, sf.in, []report.Section{j.reportSection(j.model.Name, "")}); err != nil {
+		if err := writeReport(*rep, sf.in, panels, []report.Section{j.reportSection(j.model.Name, "")}); err != nil {
 			return err
 		}
 		fmt.Fprintf(e.stderr, "report written to %s\n", *rep)
@@ -285,6 +306,8 @@ func runReport(e *env, args []string) error {
 	out := fs.String("out", "", "HTML file to write (required)")
 	marker := fs.String("marker", "", "name of the marker shown in the report (default: the model's name)")
 	unit := fs.String("value-unit", "", "unit of the readings shown in the report, e.g. mmHg")
+	var panels panelChoice
+	panels.register(fs)
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -311,7 +334,7 @@ func runReport(e *env, args []string) error {
 		}
 		sec.Evaluation = &report.Evaluation{Source: filepath.Base(of.outcomes), Condition: of.diagnosed, History: ev.history, Target: sf.target}
 	}
-	if err := writeReport(*out, sf.in, []report.Section{sec}); err != nil {
+	if err := writeReport(*out, sf.in, panels, []report.Section{sec}); err != nil {
 		return err
 	}
 	fmt.Fprintf(e.stderr, "report written to %s\n", *out)
@@ -322,13 +345,59 @@ func runReport(e *env, args []string) error {
 	return nil
 }
 
-func writeReport(path, source string, secs []report.Section) error {
+// panelChoice is --workers: how many flagged workers get a panel in the
+// report, or which workers.
+type panelChoice struct {
+	max int      // 0: the report's default; -1: none
+	ids []string // chosen workers, in order
+}
+
+func (p *panelChoice) register(fs *flag.FlagSet) {
+	fs.Func("workers", fmt.Sprintf("report panels: how many flagged workers (default %d, the largest chart relative to its limit at the latest exam first; 0 for none; all), "+
+		"or which workers, by id, comma-separated (W017,W102; to name one worker whose id is a whole number, end with a comma: 1234,)", report.DefaultMaxPanels), p.set)
+}
+
+func (p *panelChoice) set(v string) error {
+	v = strings.TrimSpace(v)
+	switch {
+	case v == "":
+		return errors.New("give a number of workers, all, or worker ids")
+	case strings.EqualFold(v, "all"):
+		p.max, p.ids = math.MaxInt32, nil
+		return nil
+	case !strings.Contains(v, ","):
+		if n, err := strconv.Atoi(v); err == nil {
+			if n < 0 {
+				return errors.New("the number of workers must not be negative")
+			}
+			p.max, p.ids = n, nil
+			if n == 0 {
+				p.max = -1
+			}
+			return nil
+		}
+	}
+	p.ids = nil
+	for _, id := range strings.Split(v, ",") {
+		if id = strings.TrimSpace(id); id != "" {
+			p.ids = append(p.ids, id)
+		}
+	}
+	if len(p.ids) == 0 {
+		return errors.New("give a number of workers, all, or worker ids")
+	}
+	return nil
+}
+
+func writeReport(path, source string, panels panelChoice, secs []report.Section) error {
 	var buf bytes.Buffer
 	d := report.Data{
 		Title:     "Health surveillance screening",
 		Generated: time.Now().Format("2 January 2006"),
 		Source:    filepath.Base(source),
 		Sections:  secs,
+		MaxPanels: panels.max,
+		Workers:   panels.ids,
 	}
 	if err := report.Render(&buf, d); err != nil {
 		return err
