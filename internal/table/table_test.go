@@ -2,6 +2,7 @@ package table
 
 import (
 	"bytes"
+	"errors"
 	"math"
 	"strings"
 	"testing"
@@ -18,8 +19,8 @@ func TestReadDelimitersAndErrors(t *testing.T) {
 		{"semicolon decimal comma", "id;age\nA;30,5\nB;41\n", "AGE", []float64{30.5, 41}, ""},
 		{"tab", "id\tage\nA\t30\n", "age", []float64{30}, ""},
 		{"bom", "\xEF\xBB\xBFid,age\nA,1\n", "age", []float64{1}, ""},
-		{"text cell", "id,age\nA,30\nB,old\n", "age", nil, `data row 2 (line 3), column "age": "old" is not a number`},
-		{"empty cell", "id,age\nA,\n", "age", nil, "data row 1 (line 2), column \"age\": the cell is empty"},
+		{"text cell", "id,age\nA,30\nB,old\n", "age", nil, `line 3, column "age": "old" is not a number`},
+		{"empty cell", "id,age\nA,\n", "age", nil, "line 2, column \"age\": the cell is empty"},
 		{"nan", "id,age\nA,NaN\n", "age", nil, "not a finite number"},
 		{"inf", "id,age\nA,+Inf\n", "age", nil, "not a finite number"},
 		{"missing column", "id,age\nA,1\n", "weight", nil, `there is no column "weight"; the columns are: "id", "age"`},
@@ -111,4 +112,117 @@ func FuzzRead(f *testing.F) {
 			_, _ = tb.Floats(c)
 		}
 	})
+}
+
+// Rows are placed as the user sees them: blank lines and cells spanning
+// lines are counted, and a sheet names the cell.
+func TestWhere(t *testing.T) {
+	tb, err := Read(strings.NewReader("id,age\nA,1\n\n\nB,\"2\"\n\"C\nD\",x\nE,3\n"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []string{"line 2", "line 5", "line 6", "line 8"}
+	for i, w := range want {
+		if got := tb.Where(i, -1); got != w {
+			t.Errorf("row %d at %q; want %q", i, got, w)
+		}
+	}
+	if got := tb.Where(3, 1); got != `line 8, column "age"` {
+		t.Errorf("cell: %q", got)
+	}
+	_, err = tb.Floats(1)
+	var ce *CellError
+	if !errors.As(err, &ce) || ce.Row != 2 || ce.Col != 1 || ce.Line != 6 || ce.Column != "age" {
+		t.Errorf("%#v", err)
+	}
+	sheet := &Table{Header: []string{"id", "age"}, Rows: [][]string{{"A", "1"}, {"B", "x"}}, Line: []int{3, 9}, Sheet: "Exams"}
+	if got := sheet.Where(1, 1); got != `cell B9 (column "age")` {
+		t.Errorf("sheet cell: %q", got)
+	}
+	if got := sheet.Where(1, -1); got != "row 9" {
+		t.Errorf("sheet row: %q", got)
+	}
+	if _, err := ParseNumber("  ", false); !errors.Is(err, ErrEmptyCell) {
+		t.Errorf("blank cell: %v", err)
+	}
+}
+
+// Problems lists the first MaxListed in row order and counts the rest.
+func TestProblems(t *testing.T) {
+	tb := &Table{Header: []string{"id", "age"}}
+	for i := 0; i < 30; i++ {
+		tb.Rows = append(tb.Rows, []string{"w", "x"})
+	}
+	var p Problems
+	if p.Err() != nil {
+		t.Fatal("an empty collection is an error")
+	}
+	for i := 29; i >= 0; i-- {
+		p.Add(tb.CellError(i, 1, ErrEmptyCell))
+	}
+	msg := p.Err().Error()
+	lines := strings.Split(msg, "\n")
+	if lines[0] != "30 problems:" || len(lines) != MaxListed+2 || lines[len(lines)-1] != "  and 10 more" {
+		t.Fatalf("message:\n%s", msg)
+	}
+	if lines[1] != `  line 2, column "age": `+ErrEmptyCell.Error() || !strings.HasPrefix(lines[20], "  line 21,") {
+		t.Errorf("not in row order:\n%s", msg)
+	}
+	if !errors.Is(p.Err(), ErrEmptyCell) {
+		t.Error("errors.Is does not see the problems")
+	}
+	var one Problems
+	one.Add(tb.CellError(0, -1, ErrEmptyCell))
+	if one.Error() != "line 2: "+ErrEmptyCell.Error() {
+		t.Errorf("one problem: %q", one.Error())
+	}
+}
+
+// A file is written back as it came: delimiter, decimal mark, byte-order
+// mark and line ends.
+func TestFormatRoundTrip(t *testing.T) {
+	for _, c := range []struct {
+		name, in string
+		want     Format
+	}{
+		{"comma", "id,age\nA,30.5\n", Format{Comma: ','}},
+		{"excel europe", "\xEF\xBB\xBFid;age\r\nA;30,5\r\nB;31\r\n", Format{Comma: ';', DecimalComma: true, BOM: true, CRLF: true}},
+		{"semicolon, points", "id;age\nA;30.5\n", Format{Comma: ';'}},
+		{"semicolon, whole numbers", "id;age\nA;30\n", Format{Comma: ';', DecimalComma: true}},
+		{"tab", "id\tage\nA\t30.5\n", Format{Comma: '\t'}},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			tb, err := Read(strings.NewReader(c.in))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if got := tb.Format(); got != c.want {
+				t.Fatalf("format %+v; want %+v", got, c.want)
+			}
+			var b bytes.Buffer
+			w := NewFormatWriter(&b, tb.Format())
+			w.Text("id")
+			w.Text("age")
+			w.Text("a;b,c")
+			w.EndRow()
+			w.Text("A")
+			w.Float(30.5, -1)
+			w.Float(math.NaN(), 2)
+			w.EndRow()
+			w.Flush()
+			back, err := Read(bytes.NewReader(b.Bytes()))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if back.Format() != c.want && !(c.name == "semicolon, whole numbers") {
+				t.Errorf("written back as %+v; want %+v:\n%q", back.Format(), c.want, b.String())
+			}
+			if v, err := back.Floats(1); err != nil || v[0] != 30.5 {
+				t.Errorf("number read back: %v %v from %q", v, err, b.String())
+			}
+			if back.Rows[0][2] != "" || back.Header[2] != "a;b,c" {
+				t.Errorf("cells read back: %q %q", back.Header, back.Rows)
+			}
+		})
+	}
 }

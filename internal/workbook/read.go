@@ -163,7 +163,9 @@ func findSheet(f *excelize.File, path, sheet string) (string, error) {
 
 // ReadSheet reads one sheet of an .xlsx workbook into a table: the first
 // non-empty row is the header naming the columns, every later non-empty row
-// is a data row. An empty sheet name means the first sheet.
+// is a data row. An empty sheet name means the first sheet. The table's
+// Sheet is the sheet's name and its Line the sheet row of each data row, so
+// messages name rows and cells as the spreadsheet shows them.
 //
 // Cells are read as stored, not as displayed: a number is given in its
 // shortest text form that reads back exactly (37.01, not "37" under a
@@ -192,7 +194,7 @@ func ReadSheet(path, sheet string) (t *table.Table, err error) {
 	}
 	defer rows.Close()
 	raw := excelize.Options{RawCellValue: true}
-	t = &table.Table{Comma: ','}
+	t = &table.Table{Comma: ',', Sheet: name}
 	rowNo := 0
 	for rows.Next() {
 		rowNo++
@@ -219,6 +221,7 @@ func ReadSheet(path, sheet string) (t *table.Table, err error) {
 		row := make([]string, len(t.Header))
 		copy(row, cells)
 		t.Rows = append(t.Rows, row)
+		t.Line = append(t.Line, rowNo)
 	}
 	if err := rows.Error(); err != nil {
 		return nil, fmt.Errorf("%s, sheet %q: %v", path, name, err)
