@@ -21,6 +21,7 @@ import (
 
 	"veer/functions/cell"
 	"veer/functions/screening"
+	"veer/internal/version"
 )
 
 // Names of the extension and its UNO component.
@@ -34,8 +35,9 @@ const (
 	ImplementationName = "org.veer.calc.Functions"
 	// InterfaceName is the generated IDL interface.
 	InterfaceName = "org.veer.calc.XFunctions"
-	// DefaultVersion is the extension version written to description.xml.
-	DefaultVersion = "0.1.0"
+	// DefaultVersion is the extension version written to description.xml:
+	// veer's release.
+	DefaultVersion = version.Release
 	// DefaultPort is where the component looks for the server unless told.
 	DefaultPort = 7311
 )

@@ -247,14 +247,19 @@ func TestCLIExitCodes(t *testing.T) {
 		{"fit without --in", []string{"fit", "--name", "x", "--out", model, "--id", "worker", "--time", "age", "--value", "sbp"}, 2, []string{"--in"}, model, false},
 		{"fit missing file", fitArgs(filepath.Join(dir, "nosuch.csv")), 1, []string{"cannot find", "nosuch.csv"}, model, false},
 		{"fit missing column", append(fitArgs(f.refCSV)[:8], "sbpp", "--name", "x", "--out", model), 1, []string{`"sbpp"`, `"sbp"`}, model, false},
-		{"fit log of a negative reading", fitArgs(negRef, "--transform", "log"), 1, []string{"row 7", "-3"}, model, false},
+		{"fit log of a negative reading", fitArgs(negRef, "--transform", "log"), 1, []string{`line 8, column "sbp"`, "-3", "nothing was written"}, model, false},
 		{"fit bad transform", fitArgs(f.refCSV, "--transform", "sqrt"), 2, []string{"--transform"}, model, false},
-		{"fit text cell", fitArgs(textCell), 1, []string{"data row 3", `"sbp"`, `"high"`}, model, false},
-		{"screen text cell", screenArgs(textCell), 1, []string{"data row 3 (line 4)", `"sbp"`, `"high"`}, out, false},
-		{"screen NaN", screenArgs(nanCell), 1, []string{"data row 5", "NaN", "not a finite number"}, out, false},
-		{"screen infinity", screenArgs(infCell), 1, []string{"data row 5", `"age"`}, out, false},
-		{"screen empty id", screenArgs(emptyID), 1, []string{"data row 2", "worker id is empty"}, out, false},
-		{"screen duplicate exam", screenArgs(dup), 1, []string{"rows 2 and 3", "same age"}, out, false},
+		{"fit text cell", fitArgs(textCell), 1, []string{`line 4, column "sbp"`, `"high"`, "nothing was written"}, model, false},
+		// A bad row does not stop screen: the rest is screened, the row
+		// gets a status, and the exit code says rows were set aside.
+		{"screen text cell", screenArgs(textCell), exitSkipped, []string{`line 4, column "sbp"`, `"high" is not a number`, "1 bad_reading"}, "", false},
+		{"screen NaN", screenArgs(nanCell), exitSkipped, []string{`line 6, column "sbp"`, "NaN", "not a finite number"}, "", false},
+		{"screen infinity", screenArgs(infCell), exitSkipped, []string{`line 6, column "age"`, "1 bad_age"}, "", false},
+		{"screen empty id", screenArgs(emptyID), exitSkipped, []string{`line 3, column "worker"`, "worker id is blank"}, "", false},
+		{"screen duplicate exam", screenArgs(dup), exitSkipped, []string{"line 4", "repeats the exam", "of line 3", "1 repeated_exam"}, "", false},
+		// --strict keeps all or nothing, naming every row.
+		{"screen strict text cell", screenArgs(textCell, "--strict"), 1, []string{`line 4, column "sbp"`, `"high"`, "nothing was written"}, out, false},
+		{"screen strict duplicate", screenArgs(dup, "--strict"), 1, []string{"line 4", "repeats the exam"}, out, false},
 		{"screen missing column", append(screenArgs(f.workCSV), "--group", "site"), 1, []string{`"site"`, `"group"`}, out, false},
 		{"screen target and limit", append(screenArgs(f.workCSV), "--target", "20"), 2, []string{"--target", "--limit"}, out, false},
 		{"screen tampered model", append([]string{"screen", "--model", tampered}, screenArgs(f.workCSV)[3:]...), 1, []string{"damaged or was edited"}, out, false},
@@ -262,7 +267,7 @@ func TestCLIExitCodes(t *testing.T) {
 		{"screen missing model", append([]string{"screen", "--model", filepath.Join(dir, "none.json")}, screenArgs(f.workCSV)[3:]...), 1, []string{"cannot find the model file"}, out, false},
 		{"screen bad rule", screenArgs(f.workCSV, "--rule", "r=chrt > limit"), 2, []string{"column 1", `"chrt"`, `"chart"`}, out, false},
 		{"screen rule without name", screenArgs(f.workCSV, "--rule", "chart > limit"), 2, []string{"NAME=EXPRESSION"}, out, false},
-		{"curve out of range", []string{"curve", "--model", f.model, "--at", "99"}, 1, []string{"outside the reference range"}, "", false},
+		{"curve out of range", []string{"curve", "--model", f.model, "--at", "99"}, 1, []string{"above the reference range", "--extrapolate"}, "", false},
 		{"curve unknown group", []string{"curve", "--model", f.model, "--at", "40", "--group", "lab"}, 1, []string{`"lab"`}, "", false},
 		{"curve bad list", []string{"curve", "--model", f.model, "--at", "40,forty"}, 2, []string{`"forty"`}, "", false},
 		{"limit without target", []string{"limit", "--gap", "1"}, 2, []string{"--target"}, "", false},
@@ -370,7 +375,7 @@ func TestCLICurve(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if got := strings.Join(tab.Header, ","); got != "time,group,mean,sd,c2.5,c97.5" {
+	if got := strings.Join(tab.Header, ","); got != "age,group,mean,sd,c2.5,c97.5" {
 		t.Errorf("header %s", got)
 	}
 	if len(tab.Rows) != 6 {
@@ -436,7 +441,7 @@ func TestCLIScreen(t *testing.T) {
 	r.Shuffle(len(rows), func(i, j int) { rows[i], rows[j] = rows[j], rows[i] })
 	in := writeFile(t, filepath.Join(t.TempDir(), "shuffled.csv"), csvOf(rows))
 	tab := screenOut(t, in, "--target", "20", "--rule", "high=chart > limit", "--rule", `label=signal ? "review" : "ok"`)
-	wantHeader := "worker,group,age,sbp,mean,sd,z,centile,innovation,chart_up,chart_down,chart,limit,signal,exam,first_signal,high,label"
+	wantHeader := "worker,group,age,sbp,mean,sd,z,centile,innovation,chart_up,chart_down,chart,limit,signal,exam,first_signal,status,status_note,high,label"
 	if got := strings.Join(tab.Header, ","); got != wantHeader {
 		t.Errorf("header\n %s\nwant\n %s", got, wantHeader)
 	}
@@ -488,7 +493,7 @@ func TestCLIScreen(t *testing.T) {
 	}
 	// Without --out the table goes to stdout and the talk to stderr.
 	code, stdout, stderr := cli("screen", "--model", f.model, "--in", in, "--id", "worker", "--time", "age", "--value", "sbp", "--group", "group", "--limit", "4")
-	if code != 0 || !strings.HasPrefix(stdout, "worker,group,age,sbp,mean") || strings.Contains(stdout, "screened") || !strings.Contains(stderr, "screened") {
+	if code != 0 || !strings.HasPrefix(stdout, "worker,group,age,sbp,mean") || strings.Contains(stdout, "signalled") || !strings.Contains(stderr, "signalled") {
 		t.Errorf("screen to stdout: exit %d, stdout starts %.60q, stderr %q", code, stdout, stderr)
 	}
 }

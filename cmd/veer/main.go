@@ -1,7 +1,9 @@
 // Command veer screens workers' irregular medical exams against reference
 // curves from a healthy cohort. Its standard output is data, its standard
 // error is talk; it exits 0 on success, 1 when the work failed (bad data,
-// unreadable model) and 2 when the command line itself is wrong.
+// unreadable model), 2 when the command line itself is wrong and 3 when
+// screen or report wrote their output but some exam rows could not be
+// screened (their status says why).
 //
 // A signal from veer is a prompt for review by a licensed clinician under
 // local occupational-health rules, not a diagnosis.
@@ -17,6 +19,7 @@ import (
 	"strings"
 
 	"veer/functions/screening"
+	"veer/internal/version"
 )
 
 // command is one veer subcommand.
@@ -34,6 +37,9 @@ type env struct {
 	stdout io.Writer
 	stderr io.Writer
 	stdin  io.Reader
+	// stderrTerminal: stderr is a terminal, so progress may rewrite a line
+	// in place.
+	stderrTerminal bool
 }
 
 // usageError marks a wrong command line (exit code 2).
@@ -58,6 +64,7 @@ func commands() []command {
 		{"addin", "print the web add-in's manifest or function metadata", runAddin, false},
 		{"calc-extension", "build the LibreOffice Calc extension (veer.oxt) from the function catalogue", runCalcExtension, false},
 		{"demo", "run the whole screening job on the embedded demo data", runDemo, true},
+		{"version", "print veer's version", runVersion, false},
 	}
 }
 
@@ -71,8 +78,12 @@ func mainUsage(w io.Writer) {
 	fmt.Fprintln(w, "Usage: veer <command> [flags]   (veer <command> --help for the flags)")
 	fmt.Fprintln(w)
 	cmds := commands()
+	width := 0
 	for _, c := range cmds {
-		fmt.Fprintf(w, "  %-8s %s\n", c.name, c.summary)
+		width = max(width, len(c.name))
+	}
+	for _, c := range cmds {
+		fmt.Fprintf(w, "  %-*s  %s\n", width, c.name, c.summary)
 	}
 	fmt.Fprintln(w)
 	fmt.Fprintln(w, screening.Caution)
@@ -86,7 +97,13 @@ func main() {
 		// default, so its memory stays close to what it holds.
 		debug.SetGCPercent(400)
 	}
-	os.Exit(run(&env{stdout: os.Stdout, stderr: os.Stderr, stdin: os.Stdin}, os.Args[1:]))
+	os.Exit(run(&env{stdout: os.Stdout, stderr: os.Stderr, stdin: os.Stdin, stderrTerminal: isTerminal(os.Stderr)}, os.Args[1:]))
+}
+
+// isTerminal reports whether f is a terminal (a character device).
+func isTerminal(f *os.File) bool {
+	fi, err := f.Stat()
+	return err == nil && fi.Mode()&os.ModeCharDevice != 0
 }
 
 // batchCommand reports whether the command line runs a batch command.
@@ -122,6 +139,12 @@ func run(e *env, args []string) int {
 		if errors.Is(err, flag.ErrHelp) {
 			return 0
 		}
+		var skipped rowsSkipped
+		if errors.As(err, &skipped) {
+			// The output was written and the summary said which rows
+			// were not screened.
+			return exitSkipped
+		}
 		var ue usageError
 		if errors.As(err, &ue) {
 			fmt.Fprintf(e.stderr, "veer %s: %v\n", c.name, err)
@@ -150,9 +173,38 @@ func newFlags(e *env, name, synopsis string) *flag.FlagSet {
 	fs.SetOutput(e.stderr)
 	fs.Usage = func() {
 		fmt.Fprintf(e.stderr, "Usage: veer %s %s\n\nFlags:\n", name, synopsis)
-		fs.PrintDefaults()
+		printFlags(fs)
 	}
 	return fs
+}
+
+// hiddenUsage marks a flag that --help does not list: an earlier spelling
+// of a flag, kept working (see alias).
+const hiddenUsage = "\x00hidden"
+
+// alias makes old another name of the flag called name, kept working for
+// command lines written for earlier releases; --help lists only name.
+func alias(fs *flag.FlagSet, old, name string) {
+	f := fs.Lookup(name)
+	if f == nil {
+		panic("veer: alias of an unknown flag " + name)
+	}
+	fs.Var(f.Value, old, hiddenUsage)
+}
+
+// printFlags prints the flags of fs as flag.PrintDefaults does, without the
+// hidden ones.
+func printFlags(fs *flag.FlagSet) {
+	shown := flag.NewFlagSet(fs.Name(), flag.ContinueOnError)
+	shown.SetOutput(fs.Output())
+	fs.VisitAll(func(f *flag.Flag) {
+		if f.Usage == hiddenUsage {
+			return
+		}
+		shown.Var(f.Value, f.Name, f.Usage)
+		shown.Lookup(f.Name).DefValue = f.DefValue
+	})
+	shown.PrintDefaults()
 }
 
 // parseFlags parses and turns flag errors into usage errors.
@@ -164,6 +216,9 @@ func parseFlags(fs *flag.FlagSet, args []string) error {
 		return usageError{err.Error()}
 	}
 	if fs.NArg() > 0 {
+		if i := len(args) - fs.NArg(); i > 0 && (args[i-1] == "--extrapolate" || args[i-1] == "-extrapolate") {
+			return usagef("unexpected argument %q: --extrapolate takes no value; give the years with --reach %s", fs.Arg(0), fs.Arg(0))
+		}
 		return usagef("unexpected argument %q", fs.Arg(0))
 	}
 	return nil
@@ -176,5 +231,14 @@ func required(pairs ...string) error {
 			return usagef("--%s is required", pairs[i])
 		}
 	}
+	return nil
+}
+
+func runVersion(e *env, args []string) error {
+	fs := newFlags(e, "version", "")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	fmt.Fprintf(e.stdout, "veer %s\n", version.String())
 	return nil
 }

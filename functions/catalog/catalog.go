@@ -15,7 +15,7 @@ const caution = " " + screening.Caution
 var chartOptions = []string{
 	cell.OptionTarget, cell.OptionLimit, cell.OptionChart, cell.OptionSide, cell.OptionAllowance,
 	cell.OptionLambda, cell.OptionUnit, cell.OptionHeadstart, cell.OptionRestart, cell.OptionSerial,
-	cell.OptionMethod, cell.OptionGap, cell.OptionSeed, cell.OptionReps, cell.OptionExtrapolate, cell.OptionHorizon,
+	cell.OptionMethod, cell.OptionGap, cell.OptionSeed, cell.OptionReps, cell.OptionExtrapolate, cell.OptionReach, cell.OptionHorizon,
 	cell.OptionMarkers,
 }
 

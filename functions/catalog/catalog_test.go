@@ -497,17 +497,35 @@ func TestChartRowsPolicy(t *testing.T) {
 		}
 		k++
 	}
-	// With extrapolate=true the rows outside the range are charted.
+	// With extrapolate=true the row 3 years below the range is charted;
+	// the one 10 years above only when reach allows it.
 	tab = table(t, mustCall(t, env, "VEER.CHART", "sbp", ids, ages, vals, groups, "limit=4; extrapolate=true"))
+	wantErr(t, cellErr(t, tab[9][0]), cell.CodeNum, "row 10", "10 years outside", "reach=YEARS")
+	num(t, tab[12][0])
+	tab = table(t, mustCall(t, env, "VEER.CHART", "sbp", ids, ages, vals, groups, "limit=4; reach=12"))
 	num(t, tab[9][0])
 	num(t, tab[12][0])
-	// Two exams of a worker at one age fail the call, naming the sheet's
-	// rows (not the rows left after the blank ones).
+	_, e := call(t, env, "VEER.CHART", "sbp", ids, ages, vals, groups, "limit=4; extrapolate=false; reach=12")
+	wantErr(t, e, cell.CodeValue, "reach", "extrapolate is off")
+	_, e = call(t, env, "VEER.CHART", "sbp", ids, ages, vals, groups, "limit=4; reach=0")
+	wantErr(t, e, cell.CodeNum, "reach must be")
+	// Two exams of a worker at one age with different readings are
+	// #VALUE! in both rows, naming the sheet's rows (not the rows left
+	// after the blank ones); the rest is charted. A repeat with the same
+	// reading is #VALUE! in the repeat alone.
 	dupAges := anyCol(sheet.ages)
 	dupAges[0] = nil // rows 1 to 3 are the first worker's
 	dupAges[2] = dupAges[1]
-	_, e := call(t, env, "VEER.CHART", "sbp", anyCol(sheet.ids), dupAges, anyCol(sheet.vals), anyCol(sheet.groups), "limit=4")
-	wantErr(t, e, cell.CodeValue, "rows 2 and 3", "same age")
+	tab = table(t, mustCall(t, env, "VEER.CHART", "sbp", anyCol(sheet.ids), dupAges, anyCol(sheet.vals), anyCol(sheet.groups), "limit=4"))
+	for _, r := range []int{1, 2} {
+		wantErr(t, cellErr(t, tab[r][0]), cell.CodeValue, "rows 2 and 3", "same age", "different readings")
+	}
+	num(t, tab[3][0])
+	dupVals := anyCol(sheet.vals)
+	dupVals[2] = dupVals[1]
+	tab = table(t, mustCall(t, env, "VEER.CHART", "sbp", anyCol(sheet.ids), dupAges, dupVals, anyCol(sheet.groups), "limit=4"))
+	num(t, tab[1][0])
+	wantErr(t, cellErr(t, tab[2][0]), cell.CodeValue, "row 3", "repeats the exam", "in row 2")
 	// A text cell fails the call, naming the argument and the cell.
 	vals[3] = "n/a"
 	_, e = call(t, env, "VEER.CHART", "sbp", ids, ages, vals, anyCol(sheet.groups), "limit=4")
@@ -534,7 +552,6 @@ func TestChartErrors(t *testing.T) {
 		{"bad side", s, "target=20; side=upward", cell.CodeValue, []string{"side", "up, down, both"}},
 		{"lambda out of range", s, "target=20; chart=ewma; lambda=1.5", cell.CodeNum, []string{"lambda"}},
 		{"target too short", s, "target=0.5", cell.CodeNum, []string{"target"}},
-		{"same age twice", dup, "limit=4", cell.CodeValue, []string{"rows 2 and 3", "same age"}},
 		{"bootstrap with too many reps", s, "target=20; method=bootstrap; reps=2000000", cell.CodeNum, []string{"reps"}},
 		{"fractional seed", s, "target=20; seed=1.5", cell.CodeNum, []string{"seed"}},
 	} {

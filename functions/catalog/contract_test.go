@@ -44,7 +44,7 @@ func TestErrorContract(t *testing.T) {
 	}{
 		{cell.WrongArgument, nil, "VEER.ZSCORE", []any{"sbp", []float64{40, 41}, []any{120.0, "abc"}, "office"}, -1},
 		{cell.WrongArgument, nil, "VEER.LIMIT", []any{20, blank, "gap=1; colour=red"}, -1},
-		{cell.BadData, nil, "VEER.CHART", []any{"sbp", anyCol(dup.ids), anyCol(dup.ages), anyCol(dup.vals), anyCol(dup.groups), "limit=4"}, -1},
+		{cell.BadData, nil, "VEER.CHART", []any{"sbp", anyCol(dup.ids), anyCol(dup.ages), anyCol(dup.vals), anyCol(dup.groups), "limit=4"}, 1},
 		{cell.BadData, nil, "VEER.FIT", []any{"few", ref.ids[:20], ref.ages[:20], ref.vals[:20], ref.groups[:20]}, -1},
 		{cell.BlankInput, nil, "VEER.ZSCORE", []any{"sbp", []float64{40, 41}, []any{120.0, nil}, "office"}, 1},
 		{cell.BlankInput, nil, "VEER.CHART", []any{"sbp", []any{"a", nil}, []float64{40, 41}, []float64{120, 130}, "office", "limit=4"}, 1},

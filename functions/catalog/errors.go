@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"strconv"
 
 	"veer/functions/cell"
 	"veer/functions/chart"
@@ -74,6 +75,10 @@ var failureKinds = []struct {
 	{evaluation.ErrNoDiagnosed, cell.BadData},
 	{evaluation.ErrNoHealthy, cell.BadData},
 	{evaluation.ErrNoExams, cell.BadData},
+	{screening.ErrNoReading, cell.BlankInput},
+	{screening.ErrNoAge, cell.BlankInput},
+	{screening.ErrNoWorker, cell.BlankInput},
+	{refcurve.ErrTooFewWorkers, cell.BadData},
 }
 
 // failureOf returns the contract failure of err's kind, or fallback.
@@ -132,8 +137,12 @@ func rowError(err error, row int, groupGiven bool) *cell.Error {
 		if re.Group != "" {
 			g = fmt.Sprintf("group %q", re.Group)
 		}
-		return cell.OutsideReference.Errorf(`%sage %s is outside the reference range %s to %s of %s; add "extrapolate=true" to the options to hold the curves at their ends`,
-			where, cell.FormatNumber(re.Time), cell.FormatNumber(round2(re.Min)), cell.FormatNumber(round2(re.Max)), g)
+		if re.Reach > 0 {
+			return cell.OutsideReference.Errorf(`%sage %s is %s years outside the reference range %s to %s of %s, farther than extrapolation reaches (%s years); give "reach=YEARS" to reach further, if the curves' end values still fit such ages`,
+				where, cell.FormatNumber(re.Time), strconv.FormatFloat(re.Distance(), 'g', 3, 64), cell.FormatNumber(round2(re.Min)), cell.FormatNumber(round2(re.Max)), g, cell.FormatNumber(re.Reach))
+		}
+		return cell.OutsideReference.Errorf(`%sage %s is outside the reference range %s to %s of %s; add "extrapolate=true" to the options to answer ages up to %s years outside from the curves' end values`,
+			where, cell.FormatNumber(re.Time), cell.FormatNumber(round2(re.Min)), cell.FormatNumber(round2(re.Max)), g, cell.FormatNumber(screening.DefaultExtrapolation))
 	case errors.As(err, &ge) && ge.Group == "" && groupGiven:
 		return cell.BlankInput.Errorf("%sthe group is blank; %v", where, err)
 	case errors.As(err, &ge) && ge.Group == "":

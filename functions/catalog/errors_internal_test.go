@@ -69,7 +69,9 @@ func TestRowErrorWording(t *testing.T) {
 		want       string
 	}{
 		{&refcurve.RangeError{Group: "office", Time: 70, Min: 25.004, Max: 64.996}, 2, true, cell.CodeNum,
-			`row 2: age 70 is outside the reference range 25 to 65 of group "office"; add "extrapolate=true" to the options to hold the curves at their ends`},
+			`row 2: age 70 is outside the reference range 25 to 65 of group "office"; add "extrapolate=true" to the options to answer ages up to 5 years outside from the curves' end values`},
+		{&refcurve.RangeError{Group: "office", Time: 80, Min: 25.004, Max: 64.996, Reach: 5}, 3, true, cell.CodeNum,
+			`row 3: age 80 is 15 years outside the reference range 25 to 65 of group "office", farther than extrapolation reaches (5 years); give "reach=YEARS"`},
 		{&refcurve.RangeError{Time: 70, Min: 25, Max: 65}, 0, false, cell.CodeNum,
 			`age 70 is outside the reference range 25 to 65 of the reference data; add "extrapolate=true"`},
 		{&refcurve.GroupError{Group: "", Groups: []string{"office", "plant"}}, 4, true, cell.CodeNA, "row 4: the group is blank; this model has groups"},

@@ -185,9 +185,22 @@ func jointExamsArgs(a cell.Args, i, p int) (*jointSheet, error) {
 	return sh, nil
 }
 
+// scoreWithin scores reading v at age t of group g against a marker's
+// curves, answering up to reach years outside the reference range; the
+// error says why it cannot be scored.
+func scoreWithin(c *refcurve.Model, g string, t, v, reach float64) error {
+	if lo, hi, err := c.Range(g); err == nil {
+		if err := refcurve.Outside(g, t, lo, hi, reach); err != nil {
+			return err
+		}
+	}
+	_, err := c.Z(g, t, v, reach > 0)
+	return err
+}
+
 // screenable moves rows a marker cannot score to the failed rows (as the
 // sheet of one marker does), naming the marker.
-func (sh *jointSheet) screenable(j *screening.Joint, ext bool) error {
+func (sh *jointSheet) screenable(j *screening.Joint, reach float64) error {
 	kept, rowOf := sh.exams[:0], sh.rowOf[:0]
 	for k, e := range sh.exams {
 		r := sh.rowOf[k]
@@ -196,7 +209,7 @@ func (sh *jointSheet) screenable(j *screening.Joint, ext bool) error {
 			if math.IsNaN(v) {
 				continue
 			}
-			if _, err := j.Markers[m].Curves.Z(e.Group, e.Time, v, ext); err != nil {
+			if err := scoreWithin(j.Markers[m].Curves, e.Group, e.Time, v, reach); err != nil {
 				ce := rowError(err, r+1, sh.groupGiven)
 				ce.Message = j.Markers[m].Name + ", " + ce.Message
 				sh.failed[r] = ce
@@ -287,8 +300,11 @@ func jointSettings(o cell.Options, p int) (screening.JointSettings, error) {
 			Unit:      o.Number(cell.OptionUnit, d.Unit),
 			Restart:   o.Bool(cell.OptionRestart, false),
 		},
-		Serial:      screening.Serial(o.Text(cell.OptionSerial, "")),
-		Extrapolate: o.Bool(cell.OptionExtrapolate, false),
+		Serial: screening.Serial(o.Text(cell.OptionSerial, "")),
+	}
+	var err error
+	if s.Extrapolate, err = reachOption(o); err != nil {
+		return s, err
 	}
 	if o.Number(cell.OptionHeadstart, 0) != 0 {
 		return s, cell.OutOfRange.Errorf("headstart is for a chart of one marker; charts of several markers start at 0")

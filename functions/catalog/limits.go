@@ -36,8 +36,10 @@ func chartSettings(o cell.Options, joint bool) (screening.Settings, screening.Li
 		// Not given: "" (the engine's default, whiten, with a model; no
 		// serial correlation without one).
 		Serial: screening.Serial(o.Text(cell.OptionSerial, "")),
-
-		Extrapolate: o.Bool(cell.OptionExtrapolate, false),
+	}
+	var err error
+	if s.Extrapolate, err = reachOption(o); err != nil {
+		return s, screening.LimitOptions{}, err
 	}
 	if err := s.Chart.Validate(); err != nil && !joint {
 		return s, screening.LimitOptions{}, cellError(err, cell.OutOfRange)
@@ -61,6 +63,28 @@ func chartSettings(o cell.Options, joint bool) (screening.Settings, screening.Li
 		return s, lo, cell.OutOfRange.Errorf("the gap option must be from a day (%.4f years) to %d years, not %s; leave it out to use the reference workers' own gaps", monitor.MinGap, monitor.MaxGap, cell.FormatNumber(lo.Gap))
 	}
 	return s, lo, nil
+}
+
+// reachOption reads extrapolate and reach: how many years beyond the
+// reference ages an age is answered from the curves' nearest end (0: none).
+// extrapolate=on reaches screening.DefaultExtrapolation years; reach=N
+// reaches N years and turns extrapolation on.
+func reachOption(o cell.Options) (float64, error) {
+	on := o.Bool(cell.OptionExtrapolate, false)
+	if !o.Has(cell.OptionReach) {
+		if on {
+			return screening.DefaultExtrapolation, nil
+		}
+		return 0, nil
+	}
+	if o.Has(cell.OptionExtrapolate) && !on {
+		return 0, cell.WrongArgument.Errorf("reach says how far extrapolate reaches, but extrapolate is off; drop one of them")
+	}
+	r := o.Number(cell.OptionReach, 0)
+	if !(r > 0 && r <= screening.MaxExtrapolation) {
+		return 0, cell.OutOfRange.Errorf("reach must be a number of years above 0 and at most %g, not %s", screening.MaxExtrapolation, cell.FormatNumber(r))
+	}
+	return r, nil
 }
 
 // chartCall is what VEER.CHART, VEER.RULE, VEER.LIMIT and VEER.DELAY

@@ -8,10 +8,11 @@ import (
 	"math"
 
 	"veer/functions/cell"
+	"veer/functions/refcurve"
 	"veer/functions/screening"
 )
 
-var lookupOptions = []string{cell.OptionExtrapolate}
+var lookupOptions = []string{cell.OptionExtrapolate, cell.OptionReach}
 
 // lookupFailures are the failures a lookup answers in the row they concern.
 var lookupFailures = []cell.Failure{cell.BlankInput, cell.UnknownGroup, cell.OutsideReference}
@@ -69,7 +70,20 @@ type lookupRows struct {
 	scalar     bool
 }
 
-func (l lookupRows) answer(at func(group string, age, value float64, cov []float64) (float64, error)) (any, error) {
+// within checks that age t of group g lies inside the reference range or
+// within reach years of it (a *refcurve.RangeError carrying the reach
+// otherwise; an unknown group is left to the lookup to report).
+func (l lookupRows) within(g string, t, reach float64) error {
+	lo, hi, err := l.m.Reference().Range(g)
+	if err != nil {
+		return nil
+	}
+	return refcurve.Outside(g, t, lo, hi, reach)
+}
+
+// answer answers at(group, age, value, covariates) for every row, ages up
+// to reach years outside the reference range included.
+func (l lookupRows) answer(reach float64, at func(group string, age, value float64, cov []float64) (float64, error)) (any, error) {
 	out := make([]any, len(l.ages))
 	var buf []float64
 	for i, t := range l.ages {
@@ -86,7 +100,11 @@ func (l lookupRows) answer(at func(group string, age, value float64, cov []float
 			continue
 		}
 		buf = covRow(l.cov, i, buf)
-		v, err := at(l.groups[i], t, y, buf)
+		var v float64
+		err := l.within(l.groups[i], t, reach)
+		if err == nil {
+			v, err = at(l.groups[i], t, y, buf)
+		}
 		if err != nil {
 			out[i] = rowError(err, rowLabel(len(l.ages), i), l.groupGiven)
 			continue
@@ -115,7 +133,7 @@ var (
 func lookupParams(groupHelp string) []cell.Param {
 	return []cell.Param{
 		{Name: "groups", Type: cell.TypeRange, Optional: true, Help: groupHelp},
-		{Name: "options", Type: cell.TypeAny, Optional: true, Help: "extrapolate=true to allow ages (and covariates) outside the reference range"},
+		{Name: "options", Type: cell.TypeAny, Optional: true, Help: "extrapolate=true to answer ages up to 5 years (reach=YEARS: that many) and covariates outside the reference range from its nearest end"},
 		covariatesParam(),
 	}
 }
@@ -159,9 +177,13 @@ func callMean(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
-	ext := o.Bool(cell.OptionExtrapolate, false)
+	reach, err := reachOption(o)
+	if err != nil {
+		return nil, err
+	}
+	ext := reach > 0
 	ref := l.m.Reference()
-	return l.answer(func(g string, t, _ float64, cov []float64) (float64, error) {
+	return l.answer(reach, func(g string, t, _ float64, cov []float64) (float64, error) {
 		mean, _, err := ref.MeanSD(g, t, cov, ext)
 		return mean, err
 	})
@@ -172,9 +194,13 @@ func callSD(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
-	ext := o.Bool(cell.OptionExtrapolate, false)
+	reach, err := reachOption(o)
+	if err != nil {
+		return nil, err
+	}
+	ext := reach > 0
 	ref := l.m.Reference()
-	return l.answer(func(g string, t, _ float64, cov []float64) (float64, error) {
+	return l.answer(reach, func(g string, t, _ float64, cov []float64) (float64, error) {
 		_, sd, err := ref.MeanSD(g, t, cov, ext)
 		return sd, err
 	})
@@ -213,9 +239,13 @@ func callCentile(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if !(p > 0 && p < 100) {
 		return nil, cell.OutOfRange.Errorf("the centile p must be between 0 and 100 (percent), not %s", cell.FormatNumber(p))
 	}
-	ext := o.Bool(cell.OptionExtrapolate, false)
+	reach, err := reachOption(o)
+	if err != nil {
+		return nil, err
+	}
+	ext := reach > 0
 	ref := l.m.Reference()
-	return l.answer(func(g string, t, _ float64, cov []float64) (float64, error) { return ref.Centile(g, t, cov, p, ext) })
+	return l.answer(reach, func(g string, t, _ float64, cov []float64) (float64, error) { return ref.Centile(g, t, cov, p, ext) })
 }
 
 func callZ(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
@@ -223,7 +253,11 @@ func callZ(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
-	ext := o.Bool(cell.OptionExtrapolate, false)
+	reach, err := reachOption(o)
+	if err != nil {
+		return nil, err
+	}
+	ext := reach > 0
 	ref := l.m.Reference()
-	return l.answer(func(g string, t, y float64, cov []float64) (float64, error) { return ref.Z(g, t, cov, y, ext) })
+	return l.answer(reach, func(g string, t, y float64, cov []float64) (float64, error) { return ref.Z(g, t, cov, y, ext) })
 }

@@ -5,6 +5,8 @@ package catalog
 
 import (
 	"context"
+	"errors"
+	"fmt"
 	"strings"
 
 	"veer/functions/cell"
@@ -78,8 +80,8 @@ func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 	if err != nil {
 		return nil, err
 	}
-	if e := sh.firstFailed(); e != nil {
-		return nil, cell.BadData.Errorf("%s; every reference row needs an id, an age and a reading", e.Message)
+	if len(sh.failed) > 0 {
+		return nil, cell.BadData.Errorf("%s; every reference row needs an id, an age and a reading", sh.failedList())
 	}
 	o, err := a.Options(5)
 	if err != nil {
@@ -103,7 +105,7 @@ func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		if cerr := ctx.Err(); cerr != nil {
 			return nil, cerr
 		}
-		return nil, cellError(err, cell.BadData)
+		return nil, fitError(err)
 	}
 	doc, err := m.Encode()
 	if err != nil {
@@ -113,6 +115,34 @@ func callFit(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		return nil, err
 	}
 	return env.SaveModel(name, doc)
+}
+
+// fitError words a failed fit for a cell: every problem found (the first
+// few), a group too small naming the minworkers option.
+func fitError(err error) error {
+	var all *refcurve.RowErrors
+	if !errors.As(err, &all) {
+		return cellError(fitHint(err), cell.BadData)
+	}
+	parts := make([]string, 0, maxListed+1)
+	for i, e := range all.List {
+		if i == maxListed {
+			parts = append(parts, fmt.Sprintf("and %d more", all.Count-maxListed))
+			break
+		}
+		parts = append(parts, fitHint(e).Error())
+	}
+	return failureOf(err, cell.BadData).Errorf("%s", strings.Join(parts, "; "))
+}
+
+// fitHint adds to a group too small for a curve the option that lowers
+// the minimum.
+func fitHint(err error) error {
+	var ge *refcurve.GroupSizeError
+	if errors.As(err, &ge) {
+		return fmt.Errorf(`%w (option "minworkers=N" lowers the minimum, down to %d; curves from fewer workers are less certain)`, err, refcurve.LeastMinWorkers)
+	}
+	return err
 }
 
 func callInfo(ctx context.Context, env cell.Env, a cell.Args) (any, error) {

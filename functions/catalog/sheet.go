@@ -7,7 +7,9 @@ package catalog
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
+	"slices"
 	"strings"
 
 	"veer/functions/cell"
@@ -18,7 +20,8 @@ import (
 // sheetHelp says what VEER.CHART and VEER.RULE answer for rows that cannot
 // be charted and which failures stop the call, from the error contract.
 var sheetHelp = cell.RowHelp(cell.BlankInput, cell.UnknownGroup, cell.OutsideReference, cell.OutOfDomain) +
-	" The worker's other exams are charted without that row. " + cell.CallHelp(cell.WrongArgument, cell.BadData) +
+	"; two exams of a worker at the same age give " + string(cell.BadData.Code()) + " in both rows (a repeat with the same reading in the repeat only)." +
+	" The worker's other exams are charted without those rows. " + cell.CallHelp(cell.WrongArgument, cell.BadData) +
 	" Messages name the rows."
 
 // sheet is a table of exam rows read from ids, ages, values and groups
@@ -82,6 +85,28 @@ func examsArgs(a cell.Args, i int) (*sheet, error) {
 	return sh, nil
 }
 
+// maxListed is how many rows a message about several rows lists.
+const maxListed = 5
+
+// failedList lists the messages of the first failed rows, in row order,
+// and counts the others.
+func (sh *sheet) failedList() string {
+	rows := make([]int, 0, len(sh.failed))
+	for r := range sh.failed {
+		rows = append(rows, r)
+	}
+	slices.Sort(rows)
+	var parts []string
+	for i, r := range rows {
+		if i == maxListed {
+			parts = append(parts, fmt.Sprintf("and %d more rows", len(rows)-maxListed))
+			break
+		}
+		parts = append(parts, sh.failed[r].Message)
+	}
+	return strings.Join(parts, "; ")
+}
+
 // firstFailed returns the error of the first failed row, or nil.
 func (sh *sheet) firstFailed() *cell.Error {
 	first := -1
@@ -97,11 +122,12 @@ func (sh *sheet) firstFailed() *cell.Error {
 }
 
 // screenable moves the rows m cannot score (age outside the reference
-// range without extrapolation, unknown group, a reading the transform
+// range by more than reach years, unknown group, a reading the transform
 // cannot take) to the failed rows, each with its own error, so the rest of
 // the sheet is still charted; the other exams of such a worker are charted
 // without that row.
-func (sh *sheet) screenable(m *screening.Model, ext bool) error {
+func (sh *sheet) screenable(m *screening.Model, reach float64) error {
+	ext := reach > 0
 	// The usual row passes with a range check against its group's span,
 	// looked up once per group; a row that fails it is scored alone to
 	// find why (rowError words it).
@@ -130,8 +156,15 @@ func (sh *sheet) screenable(m *screening.Model, ext bool) error {
 			}
 			last, lastGroup, haveLast = sp, e.Group, true
 		}
-		if each || !last.ok || (!ext && (e.Time < last.lo || e.Time > last.hi)) || (positive && !(e.Value > 0)) {
-			if _, err := ref.Z(e.Group, e.Time, e.Covariates, e.Value, ext); err != nil {
+		if each || !last.ok || e.Time < last.lo || e.Time > last.hi || (positive && !(e.Value > 0)) {
+			err := error(nil)
+			if last.ok {
+				err = refcurve.Outside(e.Group, e.Time, last.lo, last.hi, reach)
+			}
+			if err == nil {
+				_, err = ref.Z(e.Group, e.Time, e.Covariates, e.Value, ext)
+			}
+			if err != nil {
 				sh.failed[r] = rowError(err, r+1, sh.groupGiven)
 				continue
 			}
@@ -146,30 +179,49 @@ func (sh *sheet) screenable(m *screening.Model, ext bool) error {
 	return nil
 }
 
-// screen runs the engine over the screenable rows. Two exams of one worker
-// at the same age fail the call; the engine's error names them by their
-// place among the screenable rows, which are mapped back to sheet rows.
+// screen charts the rows of the sheet that can be screened
+// (screening.Model.ScreenEach) and moves the others to the failed rows,
+// each with its own error: an age beyond the reach of the reference, an
+// unknown or blank group, a reading the transform cannot take, a repeated
+// exam. The other exams of such a worker are charted without that row.
+// The sheet keeps the rows screened, with their results.
 func (sh *sheet) screen(m *screening.Model, s screening.Settings, h float64) ([]screening.Result, error) {
-	res, err := m.Screen(sh.exams, s, h)
-	if err == nil {
-		return res, nil
+	res, err := m.ScreenEach(sh.exams, s, h)
+	if err != nil {
+		return nil, cellError(err, cell.BadData)
 	}
-	if e := sh.duplicateError(err); e != nil {
-		return nil, e
+	kept := make([]screening.Exam, 0, len(res))
+	rowOf := make([]int, 0, len(res))
+	out := make([]screening.Result, 0, len(res))
+	for k, r := range res {
+		row := sh.rowOf[k]
+		if r.Skipped != nil {
+			sh.failed[row] = sh.skipError(r.Skipped, row)
+			continue
+		}
+		kept, rowOf, out = append(kept, sh.exams[k]), append(rowOf, row), append(out, r)
 	}
-	return nil, cellError(err, cell.BadData)
+	// Errors that name other rows (a repeated exam) were worded above,
+	// before the rows were compacted.
+	sh.exams, sh.rowOf = kept, rowOf
+	if len(sh.exams) == 0 {
+		return nil, sh.firstFailed()
+	}
+	return out, nil
 }
 
-// duplicateError words two exams of one worker at the same age with their
-// sheet rows, or returns nil for another error. The engine names them by
-// their place among the screenable rows.
-func (sh *sheet) duplicateError(err error) *cell.Error {
+// skipError words why sheet row row (0-based) was not screened. A repeated
+// exam names both sheet rows; other reasons are worded by rowError.
+func (sh *sheet) skipError(err error, row int) *cell.Error {
 	var dup *refcurve.DuplicateError
-	if !errors.As(err, &dup) {
-		return nil
+	if errors.As(err, &dup) {
+		a, b := sh.rowOf[dup.Rows[0]-1]+1, sh.rowOf[dup.Rows[1]-1]+1
+		if dup.Same {
+			return cell.BadData.Errorf("row %d: repeats the exam of worker %q at age %s in row %d (same reading); it is left out", b, dup.Worker, cell.FormatNumber(dup.Time), a)
+		}
+		return cell.BadData.Errorf("row %d: worker %q has two exams at the same age %s with different readings (rows %d and %d); remove or merge one", row+1, dup.Worker, cell.FormatNumber(dup.Time), a, b)
 	}
-	return cell.BadData.Errorf("worker %q has two exams at the same age %s (rows %d and %d); remove or merge one",
-		dup.Worker, cell.FormatNumber(dup.Time), sh.rowOf[dup.Rows[0]-1]+1, sh.rowOf[dup.Rows[1]-1]+1)
+	return rowError(err, row+1, sh.groupGiven)
 }
 
 // screened is a sheet charted by VEER.CHART or VEER.RULE: its rows, the
@@ -259,4 +311,16 @@ func callChart(ctx context.Context, env cell.Env, a cell.Args) (any, error) {
 		out[sh.rowOf[k]] = []any{r.Z, r.Innovation, r.Stat, h, r.Signal, fs}
 	}
 	return out, nil
+}
+
+// duplicateError words two exams of one worker at the same age with their
+// sheet rows, or returns nil for another error. The engine names them by
+// their place among the screenable rows.
+func (sh *sheet) duplicateError(err error) *cell.Error {
+	var dup *refcurve.DuplicateError
+	if !errors.As(err, &dup) {
+		return nil
+	}
+	return cell.BadData.Errorf("worker %q has two exams at the same age %s (rows %d and %d); remove or merge one",
+		dup.Worker, cell.FormatNumber(dup.Time), sh.rowOf[dup.Rows[0]-1]+1, sh.rowOf[dup.Rows[1]-1]+1)
 }

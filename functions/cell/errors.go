@@ -66,7 +66,7 @@ var contract = [...]struct {
 	BlankInput:       {CodeNA, "a blank or error input cell"},
 	UnknownGroup:     {CodeNA, "a group the model does not know"},
 	UnknownRule:      {CodeNA, "a rule name the rule set does not hold"},
-	OutsideReference: {CodeNum, "an age (or a covariate such as height) outside the reference range (unless extrapolate=true)"},
+	OutsideReference: {CodeNum, "an age (or a covariate such as height) outside the reference range (unless extrapolate=true, which reaches 5 years beyond the reference ages, or reach=YEARS)"},
 	OutOfDomain:      {CodeNum, "a reading the model's transform cannot take (zero or less under log or Box-Cox) or a centile it cannot map back"},
 	OutOfRange:       {CodeNum, "a number outside its allowed range (a lambda outside (0, 1], a negative onset) or a computation without a finite answer (a target no limit reaches, a rule stopped by its cost or time limit)"},
 	UnknownFunction:  {CodeName, "a function name the catalogue does not hold"},

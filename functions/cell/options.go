@@ -31,6 +31,7 @@ const (
 	OptionUnit        = "unit"
 	OptionRestart     = "restart"
 	OptionExtrapolate = "extrapolate"
+	OptionReach       = "reach"
 	OptionBandwidth   = "bandwidth"
 	OptionMinWorkers  = "minworkers"
 	OptionOnset       = "onset"
@@ -84,7 +85,8 @@ var sharedOptions = []Option{
 	{Name: OptionGroup, Type: TypeText, Help: "group (for example sex or job group) whose reference curve is used"},
 	{Name: OptionUnit, Type: TypeNumber, Help: "time unit, in years, of the gap-aware EWMA weight 1-(1-lambda)^(gap/unit)"},
 	{Name: OptionRestart, Type: TypeBool, Help: "on: the chart statistic starts again after a signal; off: it carries on"},
-	{Name: OptionExtrapolate, Type: TypeBool, Help: "on: answer times outside the reference age range from the nearest end of the curves; off: " + string(OutsideReference.Code()) + " there"},
+	{Name: OptionExtrapolate, Type: TypeBool, Help: "on: answer ages up to a few years (5, or reach) outside the reference age range from the nearest end of the curves; off: " + string(OutsideReference.Code()) + " there"},
+	{Name: OptionReach, Type: TypeNumber, Help: "how many years beyond the reference ages extrapolate reaches (default 5; giving it turns extrapolate on); ages farther out are " + string(OutsideReference.Code())},
 	{Name: OptionBandwidth, Type: TypeNumber, Help: "smoothing bandwidth of the reference curves, in years; 0 or absent: chosen by cross-validation"},
 	{Name: OptionMinWorkers, Type: TypeNumber, Help: "fewest reference workers a group needs to get its own curves"},
 	{Name: OptionOnset, Type: TypeNumber, Help: "years after the first exam at which a sustained shift starts"},

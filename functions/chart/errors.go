@@ -3,6 +3,7 @@ package chart
 import (
 	"errors"
 	"fmt"
+	"strconv"
 )
 
 // ErrSetting is the kind of failure of a setting outside what a chart, its
@@ -28,3 +29,14 @@ func (e *SettingError) Error() string {
 
 // Is reports whether target is ErrSetting.
 func (e *SettingError) Is(target error) bool { return target == ErrSetting }
+
+// Years writes a number of years for a message to three significant
+// digits, with the noun in the singular for exactly one ("1 year", "1.5
+// years").
+func Years(v float64) string {
+	s := strconv.FormatFloat(v, 'g', 3, 64)
+	if s == "1" {
+		return "1 year"
+	}
+	return s + " years"
+}

@@ -113,7 +113,7 @@ func TestFalseSignalRateMatchesTarget(t *testing.T) {
 	t.Logf("%d workers: %d diagnosed (%d at the first exam), %d never; %d of %d exams after a diagnosis left out",
 		s.Workers, s.Diagnosed, s.AtFirstExam, s.Healthy, s.AfterDiagnosis, s.Exams)
 	set := screening.DefaultSettings()
-	set.Extrapolate = true
+	set.Extrapolate = screening.MaxExtrapolation
 	targets := []float64{5, 10, 20, 50, 100}
 	rates := make([]float64, len(targets))
 	prevShare, prevLead := 2.0, math.Inf(1)

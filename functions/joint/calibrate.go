@@ -570,7 +570,7 @@ func Limit(c Calibration, target float64) (monitor.LimitResult, error) {
 		return monitor.LimitResult{}, &chart.SettingError{Setting: "target", Value: target, Want: fmt.Sprintf("at most %d years", monitor.MaxTarget)}
 	}
 	if target < pr.meanGap {
-		return monitor.LimitResult{}, &chart.SettingError{Setting: "target", Value: target, Want: fmt.Sprintf("at least one mean gap between exams (%.3g years)", pr.meanGap)}
+		return monitor.LimitResult{}, &chart.SettingError{Setting: "target", Value: target, Want: "at least one mean gap between exams (" + chart.Years(pr.meanGap) + ")"}
 	}
 	spec := c.Settings.Chart
 	hint := 0.0

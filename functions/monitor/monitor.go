@@ -504,7 +504,7 @@ func Limit(c Calibration, target float64) (LimitResult, error) {
 		return LimitResult{}, &chart.SettingError{Setting: "target", Value: target, Want: fmt.Sprintf("at most %d years", MaxTarget)}
 	}
 	if target < p.meanGap {
-		return LimitResult{}, &chart.SettingError{Setting: "target", Value: target, Want: fmt.Sprintf("at least one mean gap between exams (%.3g years)", p.meanGap)}
+		return LimitResult{}, &chart.SettingError{Setting: "target", Value: target, Want: "at least one mean gap between exams (" + chart.Years(p.meanGap) + ")"}
 	}
 	spec := c.Settings.Chart
 	exactGap := spec.Kind == chart.CUSUM || p.constantGaps()

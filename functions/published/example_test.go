@@ -51,7 +51,7 @@ func ExampleNewTable() {
 	// Output:
 	// age 30: L -0.40 M 114.0 S 0.105
 	// z of 140 at 30: 1.88
-	// time 65 is outside the reference range 20–60 of group "f"; ask for extrapolation to allow it
+	// age 65 is outside the reference range 20–60 of group "f"
 	// data row 2 (line 3), column "S": S (the coefficient of variation) must be positive, not -0.1
 }
 

@@ -69,7 +69,7 @@ func TestTableLookup(t *testing.T) {
 	if !errors.As(err, &re) || !errors.Is(err, ErrOutOfRange) || re.Min != 20 || re.Max != 60 || re.Time != 65 || re.Group != "f" {
 		t.Fatalf("age 65: %v", err)
 	}
-	if !strings.Contains(err.Error(), "time 65 is outside the reference range 20–60 of group \"f\"") {
+	if !strings.Contains(err.Error(), "age 65 is outside the reference range 20–60 of group \"f\"") {
 		t.Errorf("message: %v", err)
 	}
 	for _, c := range []struct{ age, end float64 }{{65, 60}, {12, 20}, {1e9, 60}} {

@@ -119,11 +119,11 @@ func (m *Model) validate() error {
 			return fmt.Errorf("%s: curves must have %d grid times", groupLabel(c.Group), n)
 		}
 		if !numeric.Finite(c.TimeMin) || !numeric.Finite(c.TimeMax) || !(c.TimeMin < c.TimeMax) || !wideEnough(c.TimeMin, c.TimeMax) {
-			return fmt.Errorf("%s: the time range is not valid", groupLabel(c.Group))
+			return fmt.Errorf("%s: the age range is not valid", groupLabel(c.Group))
 		}
 		r := c.TimeMax - c.TimeMin
 		if c.Time[0] != c.TimeMin || c.Time[n-1] != c.TimeMax {
-			return fmt.Errorf("%s: the grid does not span the time range", groupLabel(c.Group))
+			return fmt.Errorf("%s: the grid does not span the age range", groupLabel(c.Group))
 		}
 		for k := 0; k < n; k++ {
 			want := c.TimeMin + float64(k)*r/float64(n-1)

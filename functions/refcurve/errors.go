@@ -19,25 +19,131 @@ var (
 	ErrUnknownGroup = errors.New("unknown group")
 	// ErrDuplicateExam: two exams of one worker at the same time (a
 	// *DuplicateError).
-	ErrDuplicateExam = errors.New("two exams of a worker at the same time")
+	ErrDuplicateExam = errors.New("two exams of a worker at the same age")
+	// ErrTooFewWorkers: a group with fewer reference workers than a curve
+	// needs (a *GroupSizeError).
+	ErrTooFewWorkers = errors.New("too few reference workers in a group")
 )
 
-// RangeError reports a time outside the reference range [Min, Max] of a
-// group ("" for a model without groups) where extrapolation was not asked
-// for.
+// GroupSizeError reports a group with fewer reference workers than the
+// minimum a curve needs (Options.MinWorkers). The caller names the setting
+// that lowers the minimum.
+type GroupSizeError struct {
+	Group        string
+	Workers, Min int
+}
+
+func (e *GroupSizeError) Error() string {
+	return fmt.Sprintf("%s has %s; a reference curve needs at least %d",
+		groupLabel(e.Group), plural(e.Workers, "worker", "workers"), e.Min)
+}
+
+// Is reports whether target is ErrTooFewWorkers.
+func (e *GroupSizeError) Is(target error) bool { return target == ErrTooFewWorkers }
+
+// MaxCollected bounds the problems a RowErrors keeps (it counts them all).
+const MaxCollected = 1000
+
+// RowErrors collects every problem Fit or Residuals found in the rows
+// given (*RowError, *DuplicateError) or the groups they make
+// (*GroupSizeError), so that one run reports them all. List holds the
+// first MaxCollected, Count all of them. errors.Is and errors.As look into
+// List.
+type RowErrors struct {
+	Count int
+	List  []error
+}
+
+func (e *RowErrors) add(err error) {
+	e.Count++
+	if len(e.List) < MaxCollected {
+		e.List = append(e.List, err)
+	}
+}
+
+// err returns e, or nil when it holds nothing.
+func (e *RowErrors) err() error {
+	if e.Count == 0 {
+		return nil
+	}
+	return e
+}
+
+func (e *RowErrors) Error() string {
+	if e.Count == 1 && len(e.List) == 1 {
+		return e.List[0].Error()
+	}
+	var b strings.Builder
+	b.WriteString(strconv.Itoa(e.Count) + " problems")
+	for i, x := range e.List {
+		if i == 5 {
+			b.WriteString("; ...")
+			break
+		}
+		b.WriteString("; " + x.Error())
+	}
+	return b.String()
+}
+
+// Unwrap returns the problems kept.
+func (e *RowErrors) Unwrap() []error { return e.List }
+
+// plural writes n with the singular or plural noun.
+func plural(n int, one, many string) string {
+	if n == 1 {
+		return "1 " + one
+	}
+	return strconv.Itoa(n) + " " + many
+}
+
+// RangeError reports an age (the time of an exam) outside the reference
+// range [Min, Max] of a group ("" for a model without groups): either no
+// extrapolation was asked for (Reach 0) or the age lies farther outside
+// than the Reach years extrapolation was allowed (see Place). Messages say
+// what is wrong; the caller adds how to allow it (a command-line flag, a
+// cell option).
 type RangeError struct {
 	Group    string
 	Time     float64
 	Min, Max float64
+	// Reach is the years beyond the range that extrapolation allowed (0:
+	// none was asked for).
+	Reach float64
+}
+
+// Distance is how many years the age lies outside the range.
+func (e *RangeError) Distance() float64 {
+	if e.Time < e.Min {
+		return e.Min - e.Time
+	}
+	return e.Time - e.Max
 }
 
 func (e *RangeError) Error() string {
-	return fmt.Sprintf("time %s is outside the reference range %s–%s of %s; ask for extrapolation to allow it",
+	if e.Reach > 0 {
+		side := "above"
+		if e.Time < e.Min {
+			side = "below"
+		}
+		return fmt.Sprintf("age %s is %s years %s the reference range %s–%s of %s, farther than the %s years extrapolation reaches",
+			num(e.Time), strconv.FormatFloat(e.Distance(), 'g', 3, 64), side, num(e.Min), num(e.Max), groupLabel(e.Group), num(e.Reach))
+	}
+	return fmt.Sprintf("age %s is outside the reference range %s–%s of %s",
 		num(e.Time), num(e.Min), num(e.Max), groupLabel(e.Group))
 }
 
 // Is reports whether target is ErrOutsideRange.
 func (e *RangeError) Is(target error) bool { return target == ErrOutsideRange }
+
+// Outside checks an age t against a group's reference range [lo, hi] when
+// extrapolation may reach reach years beyond it (0: none): it returns nil
+// when t is inside the range or within reach of it, else a *RangeError.
+func Outside(group string, t, lo, hi, reach float64) error {
+	if t >= lo-reach && t <= hi+reach {
+		return nil
+	}
+	return &RangeError{Group: group, Time: t, Min: lo, Max: hi, Reach: reach}
+}
 
 // GroupError reports a group the model has no curves for. Groups are the
 // model's groups ("" alone for a model without groups); Group is the one
@@ -66,14 +172,19 @@ func (e *GroupError) Is(target error) bool { return target == ErrUnknownGroup }
 
 // DuplicateError reports two exams of one worker at the same time. Rows are
 // the 1-based positions of both in the slice given (the earlier first).
+// Same is true when both hold the same reading (a repeated row).
 type DuplicateError struct {
 	Worker string
 	Time   float64
 	Rows   [2]int
+	Same   bool
 }
 
 func (e *DuplicateError) Error() string {
-	return fmt.Sprintf("data rows %d and %d hold two exams of worker %q at the same age %s; keep one exam per worker and age (drop the repeat or average the two)",
+	if e.Same {
+		return fmt.Sprintf("data row %d repeats the exam of worker %q at age %s of data row %d, with the same reading", e.Rows[1], e.Worker, num(e.Time), e.Rows[0])
+	}
+	return fmt.Sprintf("data rows %d and %d hold two exams of worker %q at the same age %s with different readings; keep one exam per worker and age (drop the wrong one or average the two)",
 		e.Rows[0], e.Rows[1], e.Worker, num(e.Time))
 }
 

@@ -62,7 +62,7 @@ func ExampleModel_At() {
 	fmt.Printf("extrapolated mean %.0f\n", mean)
 	// Output:
 	// mean 119, sd 10, <nil>
-	// time 70 is outside the reference range 20.0044–62.7043 of group "F"; ask for extrapolation to allow it
+	// age 70 is outside the reference range 20.0044–62.7043 of group "F"
 	// extrapolated mean 140
 }
 

@@ -87,15 +87,32 @@ func Fit(rows []Row, opt Options) (*Model, error) {
 			return nil, fmt.Errorf("group name %q is not valid text (UTF-8)", g)
 		}
 	}
+	var errs RowErrors
 	vals := make([]float64, len(rows))
 	for i := range rows {
 		vals[i] = rows[i].Value
 		if tr.NeedsPositive() && !(vals[i] > 0) {
-			return nil, &RowError{Rows: []int{i + 1}, Column: "value",
-				Reason: fmt.Sprintf("value %s is not positive; the %s transform needs values > 0", num(vals[i]), tr.Name)}
+			errs.add(&RowError{Rows: []int{i + 1}, Column: "value",
+				Reason: fmt.Sprintf("value %s is not positive; the %s transform needs values > 0", num(vals[i]), tr.Name)})
 		}
 	}
 	order, gstart := ix.byGroup()
+	// Every group too small for a curve, before any is fitted.
+	for r := 0; r+1 < len(gstart); r++ {
+		blk := order[gstart[r]:gstart[r+1]]
+		workers := 0
+		for k, i := range blk {
+			if k == 0 || ix.wid[i] != ix.wid[blk[k-1]] {
+				workers++
+			}
+		}
+		if workers < set.MinWorkers {
+			errs.add(&GroupSizeError{Group: rows[blk[0]].Group, Workers: workers, Min: set.MinWorkers})
+		}
+	}
+	if err := errs.err(); err != nil {
+		return nil, err
+	}
 	if tr.Name == transform.BoxCox {
 		progress("choosing the Box-Cox lambda", 0.01)
 		// In canonical order, so the sums and the lambda do not depend on
@@ -174,10 +191,10 @@ func fitGroup(rows []Row, vals []float64, blk []int32, ix *rowIndex, set Setting
 	d.Start = append(d.Start, n)
 	workers := len(d.Start) - 1
 	if workers < set.MinWorkers {
-		return nil, fmt.Errorf("%s has %d workers; a reference curve needs at least %d (the minimum-workers setting)", label, workers, set.MinWorkers)
+		return nil, &GroupSizeError{Group: group, Workers: workers, Min: set.MinWorkers}
 	}
 	if !(hi > lo) {
-		return nil, fmt.Errorf("all exams of %s are at time %s; a curve needs exams at different times", label, num(lo))
+		return nil, fmt.Errorf("all exams of %s are at age %s; a curve needs exams at different ages", label, num(lo))
 	}
 	if !wideEnough(lo, hi) {
 		return nil, fmt.Errorf("the exams of %s span only %g years (%s to %s); a curve needs a wider range of times", label, hi-lo, num(lo), num(hi))
@@ -344,7 +361,7 @@ func warnings(c *Curve, set Settings) []string {
 		}
 		for _, p := range pts {
 			if p.Bandwidth == h && p.Excluded > 0 {
-				w = append(w, fmt.Sprintf("%d exams could not be predicted from other workers when choosing the %s bandwidth (no other worker was examined near that time)", p.Excluded, what))
+				w = append(w, fmt.Sprintf("%d exams could not be predicted from other workers when choosing the %s bandwidth (no other worker was examined near that age)", p.Excluded, what))
 			}
 		}
 	}

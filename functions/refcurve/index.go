@@ -24,8 +24,10 @@ type rowIndex struct {
 }
 
 // indexRows validates rows (worker id present, finite time and value, one
-// exam per worker and time) and orders them.
+// exam per worker and time) and orders them. Every problem is collected in
+// a *RowErrors.
 func indexRows(rows []Row) (*rowIndex, error) {
+	var errs RowErrors
 	n := len(rows)
 	ix := &rowIndex{wid: make([]int32, n), gid: make([]int32, n)}
 	wmap := map[string]int32{}
@@ -35,13 +37,13 @@ func indexRows(rows []Row) (*rowIndex, error) {
 	for i := range rows {
 		r := &rows[i]
 		if r.Worker == "" {
-			return nil, &RowError{Rows: []int{i + 1}, Column: "worker", Reason: "the worker id is empty"}
+			errs.add(&RowError{Rows: []int{i + 1}, Column: "worker", Reason: "the worker id is empty"})
 		}
 		if math.IsNaN(r.Time) || math.IsInf(r.Time, 0) {
-			return nil, &RowError{Rows: []int{i + 1}, Column: "time", Reason: "time is " + strconv.FormatFloat(r.Time, 'g', -1, 64) + "; expected a finite number of years"}
+			errs.add(&RowError{Rows: []int{i + 1}, Column: "time", Reason: "age is " + strconv.FormatFloat(r.Time, 'g', -1, 64) + "; expected a finite number of years"})
 		}
 		if math.IsNaN(r.Value) || math.IsInf(r.Value, 0) {
-			return nil, &RowError{Rows: []int{i + 1}, Column: "value", Reason: "value is " + strconv.FormatFloat(r.Value, 'g', -1, 64) + "; expected a finite number"}
+			errs.add(&RowError{Rows: []int{i + 1}, Column: "value", Reason: "value is " + strconv.FormatFloat(r.Value, 'g', -1, 64) + "; expected a finite number"})
 		}
 		// Rows usually come grouped by worker: skip the map when the id
 		// repeats.
@@ -67,6 +69,9 @@ func indexRows(rows []Row) (*rowIndex, error) {
 			}
 			ix.gid[i], prevG, prevGID = id, r.Group, id
 		}
+	}
+	if errs.Count > 0 {
+		return nil, &errs
 	}
 	ix.wrank = ranks(ix.workers)
 	ix.grank = ranks(ix.groups)
@@ -114,9 +119,12 @@ func indexRows(rows []Row) (*rowIndex, error) {
 			a, b := blk[i-1], blk[i]
 			if rows[a].Time == rows[b].Time {
 				lo, hi := min(a, b), max(a, b)
-				return nil, &DuplicateError{Worker: rows[a].Worker, Time: rows[a].Time, Rows: [2]int{int(lo) + 1, int(hi) + 1}}
+				errs.add(&DuplicateError{Worker: rows[a].Worker, Time: rows[a].Time, Rows: [2]int{int(lo) + 1, int(hi) + 1}, Same: rows[a].Value == rows[b].Value})
 			}
 		}
+	}
+	if err := errs.err(); err != nil {
+		return nil, err
 	}
 	return ix, nil
 }

@@ -17,7 +17,7 @@ import (
 // look up: t itself, or the nearest end when extrapolating.
 func (c *Curve) place(t float64, extrapolate bool) (float64, error) {
 	if math.IsNaN(t) || math.IsInf(t, 0) {
-		return 0, fmt.Errorf("time %g is not a finite number", t)
+		return 0, fmt.Errorf("age %g is not a finite number", t)
 	}
 	if t < c.TimeMin || t > c.TimeMax {
 		if !extrapolate {
@@ -76,7 +76,7 @@ func (m *Model) Centile(group string, t, p float64, extrapolate bool) (float64, 
 	q := mean + distuv.UnitNormal.Quantile(p/100)*sd
 	y, err := m.transform().Inverse(q)
 	if err != nil {
-		return 0, fmt.Errorf("the %s centile at time %s of %s: %w", ordinal(p), num(t), groupLabel(group), err)
+		return 0, fmt.Errorf("the %s centile at age %s of %s: %w", ordinal(p), num(t), groupLabel(group), err)
 	}
 	return y, nil
 }

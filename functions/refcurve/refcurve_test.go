@@ -106,7 +106,7 @@ func TestFitErrors(t *testing.T) {
 				r = append(r, Row{Worker: itoa(w), Time: 40, Value: float64(w)})
 			}
 			return r
-		}(), Options{}, []string{"all exams of the reference data are at time 40"}},
+		}(), Options{}, []string{"all exams of the reference data are at age 40"}},
 		{"tiny time range", func() []Row {
 			var r []Row
 			for w := 0; w < 12; w++ {
@@ -184,8 +184,8 @@ func TestLookups(t *testing.T) {
 		err  error
 		want []string
 	}{
-		{"outside", func() error { _, _, err := m.At("F", hi+1, false); return err }(), []string{"outside the reference range", num(lo) + "–" + num(hi), `group "F"`, "extrapolation"}},
-		{"below", func() error { _, err := m.Z("M", 3, 100, false); return err }(), []string{"time 3 is outside"}},
+		{"outside", func() error { _, _, err := m.At("F", hi+1, false); return err }(), []string{"outside the reference range", num(lo) + "–" + num(hi), `group "F"`}},
+		{"below", func() error { _, err := m.Z("M", 3, 100, false); return err }(), []string{"age 3 is outside"}},
 		{"nan time", func() error { _, _, err := m.At("F", math.NaN(), true); return err }(), []string{"not a finite number"}},
 		{"unknown group", func() error { _, _, err := m.At("X", 40, false); return err }(), []string{`unknown group "X"`, `"F", "M"`}},
 		{"no group given", func() error { _, _, err := m.At("", 40, false); return err }(), []string{"say which group"}},
@@ -417,7 +417,7 @@ func TestResiduals(t *testing.T) {
 		t.Errorf("got %v", err)
 	}
 	dup := append(slices.Clone(rows[:10]), rows[3])
-	if _, err := m.Residuals(dup); err == nil || !strings.Contains(err.Error(), "data rows 4 and 11") {
+	if _, err := m.Residuals(dup); err == nil || !strings.Contains(err.Error(), "data row 11 repeats the exam") || !strings.Contains(err.Error(), "of data row 4") {
 		t.Errorf("got %v", err)
 	}
 }

@@ -302,7 +302,16 @@ func (m *Model) EvaluateHistory(ctx context.Context, exams []Exam, c *evaluation
 func inExamRows(err error, keep []int) error {
 	var dup *refcurve.DuplicateError
 	var se *refcurve.ScoreErrors
+	var ee *ExamErrors
 	switch {
+	case errors.As(err, &ee):
+		x := *ee
+		x.First = slices.Clone(ee.First)
+		for i := range x.First {
+			x.First[i].Index = keep[x.First[i].Index]
+			x.First[i].Err = inExamRows(x.First[i].Err, keep)
+		}
+		return &x
 	case errors.As(err, &dup):
 		d := *dup
 		d.Rows = [2]int{keep[d.Rows[0]-1] + 1, keep[d.Rows[1]-1] + 1}

@@ -50,7 +50,7 @@ func ExampleModel_EvaluateHistory() {
 		return
 	}
 	set := screening.DefaultSettings()
-	set.Extrapolate = true
+	set.Extrapolate = screening.DefaultExtrapolation
 	h, err := m.EvaluateHistory(ctx, exams, c, screening.HistoryOptions{
 		Settings: set, Target: 20, Sweep: []float64{50, 100}, MatchBaseline: true,
 		Rules: []rules.NamedRule{{Name: "high_twice", Expr: "centile > 99.0 && times.count(t, t >= time - 5.0) >= 2"}},

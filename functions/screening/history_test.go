@@ -92,7 +92,7 @@ func TestEvaluateHistory(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			set := DefaultSettings()
-			set.Extrapolate = true
+			set.Extrapolate = MaxExtrapolation
 			set.Chart.HeadStart, set.Chart.Restart = tc.headStart, tc.restart
 			o := HistoryOptions{
 				Settings: set, Target: 20, Sweep: []float64{5, 10, 50, 20, 200}, MatchBaseline: true,
@@ -217,7 +217,7 @@ func TestEvaluateHistoryBadOptions(t *testing.T) {
 	m := fit(t, cohort(300, serial.Params{Phi: 0.6, C: 0.6}, 3, "R"))
 	ex, c := labelled(t, 200, 4)
 	set := DefaultSettings()
-	set.Extrapolate = true
+	set.Extrapolate = MaxExtrapolation
 	many := make([]float64, MaxSweep+1)
 	for i := range many {
 		many[i] = float64(i + 1)
@@ -253,7 +253,7 @@ func BenchmarkEvaluateHistory1M(b *testing.B) {
 	m := fit(b, cohort(1000, serial.Params{Phi: 0.9, C: 0.7}, 5, "R"))
 	ex, c := labelled(b, 160000, 6)
 	set := DefaultSettings()
-	set.Extrapolate = true
+	set.Extrapolate = MaxExtrapolation
 	rs := []rules.NamedRule{
 		{Name: "chart", Expr: "chart > limit"},
 		{Name: "high_twice", Expr: "centile > 99.0 && times.count(t, t >= time - 5.0) >= 2"},
@@ -332,8 +332,8 @@ func TestEvaluateHistoryRows(t *testing.T) {
 	}
 	ex[5].Time = 99
 	_, err = m.EvaluateHistory(context.Background(), ex, cohortOf(ex), HistoryOptions{Settings: set, Target: 20})
-	var se *refcurve.ScoreErrors
-	if !errors.As(err, &se) || se.First[0].Index != 5 {
+	var ee *ExamErrors
+	if !errors.As(err, &ee) || ee.First[0].Index != 5 || !errors.Is(err, refcurve.ErrOutsideRange) {
 		t.Errorf("outside the range: %v", err)
 	}
 }

@@ -184,7 +184,7 @@ func TestJointScreenRealisedRate(t *testing.T) {
 	fresh := jointExams(jointCohort(6000, 4, "H", nil))
 	set := DefaultJointSettings(3)
 	set.Chart.Sides = []chart.Side{chart.Up, chart.Up, chart.Down}
-	set.Extrapolate = true
+	set.Extrapolate = MaxExtrapolation
 	const target = 20.0
 	for _, method := range []monitor.Method{monitor.Normal, monitor.Bootstrap} {
 		lr, err := j.Limit(set, LimitOptions{Method: method}, target)
@@ -250,7 +250,7 @@ func TestJointScreenErrors(t *testing.T) {
 	ex = jointExams(jointCohort(3, 7, "W", nil))
 	ex[1].Time = ex[0].Time
 	var de *refcurve.DuplicateError
-	set.Extrapolate = true
+	set.Extrapolate = MaxExtrapolation
 	if _, err := j.Screen(ex, set, 3); !errors.As(err, &de) || de.Rows != [2]int{1, 2} {
 		t.Errorf("two exams at one age: %v", err)
 	}

@@ -20,9 +20,12 @@ import (
 // JointSettings choose the chart over several markers and how serial
 // correlation is handled (as in Settings).
 type JointSettings struct {
-	Chart       joint.Spec
-	Serial      Serial
-	Extrapolate bool
+	Chart  joint.Spec
+	Serial Serial
+	// Extrapolate is how many years beyond a marker's reference age range
+	// an exam may lie and be scored against the curves' end values (as in
+	// Settings); farther out it is a *refcurve.RangeError.
+	Extrapolate float64
 }
 
 // DefaultJointSettings are the default chart of package joint over p
@@ -118,6 +121,9 @@ func (j *Joint) Screen(exams []JointExam, set JointSettings, h float64) ([]Joint
 		}
 		r.InRange, r.Leading = true, -1
 	}
+	if err := checkExtrapolate(set.Extrapolate); err != nil {
+		return nil, err
+	}
 	if err := j.score(exams, set.Extrapolate, out); err != nil {
 		return nil, err
 	}
@@ -195,7 +201,8 @@ func (j *Joint) Screen(exams []JointExam, set JointSettings, h float64) ([]Joint
 }
 
 // score fills each measured marker's Z, Mean, SD and Centile and InRange.
-func (j *Joint) score(exams []JointExam, extrapolate bool, out []JointResult) error {
+func (j *Joint) score(exams []JointExam, reach float64, out []JointResult) error {
+	extrapolate := reach > 0
 	std := distuv.UnitNormal
 	for k, m := range j.Markers {
 		var idx []int
@@ -224,6 +231,26 @@ func (j *Joint) score(exams []JointExam, extrapolate bool, out []JointResult) er
 				err = mapped
 			}
 			return &joint.MarkerError{Marker: m.Name, Err: err}
+		}
+		// Ages outside the range by more than the reach.
+		var far *refcurve.ScoreErrors
+		for a, i := range idx {
+			lo, hi, err := m.Curves.Range(groups[a])
+			if err != nil {
+				continue
+			}
+			if err := refcurve.Outside(groups[a], times[a], lo, hi, reach); err != nil {
+				if far == nil {
+					far = &refcurve.ScoreErrors{Total: len(exams)}
+				}
+				far.Count++
+				if len(far.First) < 5 {
+					far.First = append(far.First, refcurve.EntryError{Index: i, Err: err})
+				}
+			}
+		}
+		if far != nil {
+			return &joint.MarkerError{Marker: m.Name, Err: far}
 		}
 		for a, i := range idx {
 			mean, sd, err := m.Curves.At(groups[a], times[a], true)

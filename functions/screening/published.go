@@ -82,7 +82,7 @@ func FitPublished(ctx context.Context, ref *published.Reference, exams []Exam, o
 	if err != nil {
 		return nil, err
 	}
-	workers := groupByWorker(exams)
+	workers := groupByWorker(exams, func(int) bool { return true })
 	if err := checkDuplicates(exams, workers); err != nil {
 		return nil, err
 	}

@@ -119,7 +119,7 @@ func TestPublishedModel(t *testing.T) {
 		t.Errorf("age 80: %v", err)
 	}
 	set := DefaultSettings()
-	set.Extrapolate = true
+	set.Extrapolate = MaxExtrapolation
 	r, err := m.Screen(old, set, 4)
 	z75, _ := ref.Z("f", 75, nil, 150, false)
 	if err != nil || r[0].InRange || math.Abs(r[0].Z-z75) > 1e-12 {
@@ -210,8 +210,8 @@ func TestPublishedEquationsWithHeight(t *testing.T) {
 	}
 	exams[2].Covariates = nil
 	_, err = m.Screen(exams, DefaultSettings(), 4)
-	var se *published.ScoreErrors
-	if !errors.Is(err, published.ErrMissingCovariate) || !errors.As(err, &se) || se.First[0].Index != 2 {
+	var ee *ExamErrors
+	if !errors.Is(err, published.ErrMissingCovariate) || !errors.As(err, &ee) || ee.First[0].Index != 2 {
 		t.Errorf("blank height: %v", err)
 	}
 	// No exam histories: the limit needs the planned gap.

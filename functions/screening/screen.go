@@ -5,13 +5,17 @@ import (
 	"fmt"
 	"math"
 	"runtime"
+	"slices"
 	"sort"
 	"sync"
 
 	"gonum.org/v1/gonum/stat/distuv"
+
 	"veer/functions/chart"
 	"veer/functions/monitor"
+	"veer/functions/refcurve"
 	"veer/functions/serial"
+	"veer/internal/numeric"
 )
 
 // Serial is how a worker's correlated readings are handled.
@@ -37,10 +41,32 @@ type Settings struct {
 	Chart chart.Spec
 	// Serial is SerialWhiten (also "" or "on"), SerialDirect or SerialOff.
 	Serial Serial
-	// Extrapolate allows exams at ages outside the reference range; the
-	// curves are then held at their ends (see refcurve). Without it such an
-	// exam is an error naming the row.
-	Extrapolate bool
+	// Extrapolate is how many years beyond a group's reference age range
+	// an exam may lie and still be screened against the curves' end values
+	// (constant extrapolation; such a result has InRange false). 0 screens
+	// only ages inside the range. An exam farther out is not screened: its
+	// Skipped is a *refcurve.RangeError carrying the reach.
+	// DefaultExtrapolation is the usual value when extrapolation is asked
+	// for without a distance.
+	Extrapolate float64
+}
+
+// DefaultExtrapolation is how many years beyond the reference ages an exam
+// is screened when extrapolation is asked for without a distance: a few
+// years, where the curves' end values are still a fair reference; ages 5
+// or 120 against a reference of 25 to 65 are not.
+const DefaultExtrapolation = 5.0
+
+// MaxExtrapolation bounds Settings.Extrapolate.
+const MaxExtrapolation = 100.0
+
+// checkExtrapolate validates the reach.
+func checkExtrapolate(years float64) error {
+	if !(years >= 0 && years <= MaxExtrapolation) {
+		return &chart.SettingError{Setting: "extrapolate", Value: fmt.Sprint(years),
+			Want: fmt.Sprintf("a number of years from 0 (no extrapolation) to %g", MaxExtrapolation)}
+	}
+	return nil
 }
 
 // DefaultSettings are an upward CUSUM with allowance 0.5 on the Kalman
@@ -105,17 +131,67 @@ type Result struct {
 	// FirstSignal is the age of the worker's first signal (NaN if none).
 	FirstSignal float64
 	// InRange says whether the age (and any covariate) is inside the
-	// ranges the reference covers.
+	// ranges the reference covers; a screened exam outside them was
+	// extrapolated (see Extrapolated).
 	InRange bool
+	// Skipped, when not nil, says why the exam was not screened (see
+	// Model.ScreenEach); every number above is then NaN or 0.
+	Skipped error
 }
 
-// Screen screens a sheet of exams against limit h. Exams may come in any
-// order; each worker's exams are ordered by age inside, and results come
-// back in the input order. Two exams of one worker at the same age are a
-// *refcurve.DuplicateError naming both rows (positions in exams, counted
-// from 1); an age outside the reference range without extrapolation makes
-// the *refcurve.ScoreErrors of Model.Curves.ZMany.
+// Extrapolated reports whether the exam was screened at an age outside the
+// reference range, against the curves' end values.
+func (r *Result) Extrapolated() bool { return r.Skipped == nil && !r.InRange }
+
+// Screen screens a sheet of exams against limit h, all or nothing: when
+// any exam cannot be screened (see ScreenEach) the error is an
+// *ExamErrors naming every such exam with its reason, which errors.Is and
+// errors.As see (a *refcurve.RangeError, *refcurve.DuplicateError, ...).
+// Exams may come in any order; each worker's exams are ordered by age
+// inside, and results come back in the input order.
 func (m *Model) Screen(exams []Exam, set Settings, h float64) ([]Result, error) {
+	res, err := m.ScreenEach(exams, set, h)
+	if err != nil {
+		return nil, err
+	}
+	errs := ExamErrors{Total: len(exams)}
+	seen := map[error]bool{}
+	for i := range res {
+		if e := res[i].Skipped; e != nil && !seen[e] {
+			seen[e] = true
+			errs.add(i, e)
+		}
+	}
+	if errs.Count > 0 {
+		return nil, &errs
+	}
+	return res, nil
+}
+
+// ScreenEach screens every exam of a sheet that can be screened against
+// limit h and sets the others aside, each with the reason in its
+// Result.Skipped, so a few bad rows never stop the screening of a
+// workforce. An exam is set aside for:
+//
+//   - a blank reading (a NaN value): ErrNoReading, a missing exam for
+//     this marker rather than a fault;
+//   - no worker id, or an age that is not a finite number: ErrNoWorker,
+//     ErrNoAge;
+//   - a group the model does not know, or none for a model with groups: a
+//     *refcurve.GroupError;
+//   - an age outside the reference range by more than Settings.Extrapolate
+//     years: a *refcurve.RangeError;
+//   - a reading the model's transform cannot take (not positive under
+//     log): an error of kind transform.ErrDomain;
+//   - another exam of the same worker at the same age: a
+//     *refcurve.DuplicateError naming both (1-based positions in exams).
+//     When both hold the same reading the later one alone is set aside
+//     (Same is true); otherwise both are, since veer cannot tell which is
+//     right.
+//
+// A worker's other exams are charted without the rows set aside. The
+// error is for the call as a whole: settings, the limit, an empty sheet.
+func (m *Model) ScreenEach(exams []Exam, set Settings, h float64) ([]Result, error) {
 	ms, err := m.monitorSettings(set)
 	if err != nil {
 		return nil, err
@@ -123,22 +199,98 @@ func (m *Model) Screen(exams []Exam, set Settings, h float64) ([]Result, error) 
 	if err := chart.ValidateLimit(h); err != nil {
 		return nil, err
 	}
+	if err := checkExtrapolate(set.Extrapolate); err != nil {
+		return nil, err
+	}
 	n := len(exams)
 	if n == 0 {
 		return nil, ErrNoExams
 	}
-	times := make([]float64, n)
-	for i, e := range exams {
-		times[i] = e.Time
-	}
 	out := make([]Result, n)
-	z, err := m.scoreAll(exams, set.Extrapolate)
-	if err != nil {
-		return nil, err
+	skip := func(i int, err error) {
+		nan := math.NaN()
+		out[i] = Result{Mean: nan, SD: nan, Z: nan, Centile: nan, Innovation: nan, Up: nan, Down: nan, Stat: nan,
+			Gap: nan, FirstSignal: nan, Skipped: err}
 	}
-	workers := groupByWorker(exams)
-	if err := checkDuplicates(exams, workers); err != nil {
-		return nil, err
+	groups := make([]string, n)
+	times := make([]float64, n)
+	values := make([]float64, n)
+	for i, e := range exams {
+		groups[i], times[i], values[i] = e.Group, e.Time, e.Value
+		switch {
+		case e.Worker == "":
+			skip(i, ErrNoWorker)
+		case !numeric.Finite(e.Time):
+			skip(i, ErrNoAge)
+		case math.IsNaN(e.Value):
+			skip(i, ErrNoReading)
+		}
+	}
+	ref := m.Reference()
+	ncov := len(ref.Covariates())
+	covOf := func(i int, buf []float64) []float64 {
+		if ncov == 0 {
+			return nil
+		}
+		buf = buf[:0]
+		for c := range ncov {
+			v := math.NaN()
+			if c < len(exams[i].Covariates) {
+				v = exams[i].Covariates[c]
+			}
+			buf = append(buf, v)
+		}
+		return buf
+	}
+	z := make([]float64, n)
+	extrapolate := set.Extrapolate > 0
+	var cov []float64
+	if err := ref.ZMany(groups, times, values, covColumns(exams, ncov), extrapolate, z); err != nil {
+		// The entries that failed are NaN; score each alone to learn why.
+		for i := range z {
+			if out[i].Skipped != nil || !math.IsNaN(z[i]) {
+				continue
+			}
+			cov = covOf(i, cov)
+			_, err := ref.Z(groups[i], times[i], cov, values[i], extrapolate)
+			if err == nil {
+				err = fmt.Errorf("the reading %g cannot be standardised", values[i])
+			}
+			skip(i, err)
+		}
+	}
+	// Ages outside the range: within reach they are screened against the
+	// curves' ends, farther out set aside.
+	type span struct{ lo, hi float64 }
+	spans := map[string]span{}
+	var sp span
+	last, haveLast := "", false
+	for i := range out {
+		if out[i].Skipped != nil {
+			continue
+		}
+		if !haveLast || groups[i] != last {
+			next, ok := spans[groups[i]]
+			if !ok {
+				lo, hi, err := ref.Range(groups[i])
+				if err != nil {
+					skip(i, err)
+					continue
+				}
+				next = span{lo, hi}
+				spans[groups[i]] = next
+			}
+			sp, last, haveLast = next, groups[i], true
+		}
+		if times[i] < sp.lo || times[i] > sp.hi {
+			if err := refcurve.Outside(groups[i], times[i], sp.lo, sp.hi, set.Extrapolate); err != nil {
+				skip(i, err)
+			}
+		}
+	}
+	workers := groupByWorker(exams, func(i int) bool { return out[i].Skipped == nil })
+	for k, idx := range workers {
+		workers[k] = setAsideRepeats(exams, idx, skip)
 	}
 	var first error
 	var mu sync.Mutex
@@ -187,7 +339,9 @@ func (m *Model) Screen(exams []Exam, set Settings, h float64) ([]Result, error) 
 		}()
 	}
 	for _, idx := range workers {
-		next <- idx
+		if len(idx) > 0 {
+			next <- idx
+		}
 	}
 	close(next)
 	wg.Wait()
@@ -195,35 +349,76 @@ func (m *Model) Screen(exams []Exam, set Settings, h float64) ([]Result, error) 
 		return nil, first
 	}
 	std := distuv.UnitNormal
-	ref := m.Reference()
-	var cov []float64
-	if k := len(ref.Covariates()); k > 0 {
-		cov = make([]float64, k)
-	}
-	for i, e := range exams {
-		for c := range cov {
-			cov[c] = math.NaN()
-			if c < len(e.Covariates) {
-				cov[c] = e.Covariates[c]
-			}
+	for i := range out {
+		if out[i].Skipped != nil {
+			continue
 		}
-		mean, sd, err := ref.MeanSD(e.Group, e.Time, cov, true)
+		cov = covOf(i, cov)
+		mean, sd, err := ref.MeanSD(groups[i], times[i], cov, true)
 		if err != nil {
 			return nil, fmt.Errorf("row %d: %w", i+1, err)
 		}
-		out[i].InRange = ref.Within(e.Group, e.Time, cov)
+		out[i].InRange = ref.Within(groups[i], times[i], cov)
 		out[i].Mean, out[i].SD = mean, sd
 		out[i].Centile = 100 * std.CDF(out[i].Z)
 	}
 	return out, nil
 }
 
+// setAsideRepeats sets aside the exams of one worker (idx, sorted by age)
+// that repeat an age: the later copies of a repeated reading, or every exam
+// at an age with different readings. It returns the exams kept.
+func setAsideRepeats(exams []Exam, idx []int, skip func(int, error)) []int {
+	kept := idx[:0:0]
+	for a := 0; a < len(idx); {
+		b := a + 1
+		for b < len(idx) && exams[idx[b]].Time == exams[idx[a]].Time {
+			b++
+		}
+		if b == a+1 {
+			kept = append(kept, idx[a])
+			a = b
+			continue
+		}
+		run := slices.Clone(idx[a:b])
+		slices.Sort(run) // sheet order
+		same := true
+		for _, i := range run[1:] {
+			if exams[i].Value != exams[run[0]].Value {
+				same = false
+			}
+		}
+		e0 := exams[run[0]]
+		if same {
+			kept = append(kept, run[0])
+			for _, i := range run[1:] {
+				skip(i, &refcurve.DuplicateError{Worker: e0.Worker, Time: e0.Time, Rows: [2]int{run[0] + 1, i + 1}, Same: true})
+			}
+		} else {
+			first := &refcurve.DuplicateError{Worker: e0.Worker, Time: e0.Time, Rows: [2]int{run[0] + 1, run[1] + 1}}
+			skip(run[0], first)
+			for k, i := range run[1:] {
+				if k == 0 {
+					skip(i, first)
+					continue
+				}
+				skip(i, &refcurve.DuplicateError{Worker: e0.Worker, Time: e0.Time, Rows: [2]int{run[0] + 1, i + 1}})
+			}
+		}
+		a = b
+	}
+	return kept
+}
+
 // groupByWorker returns, per worker in order of first appearance, the row
-// indices of its exams sorted by age.
-func groupByWorker(exams []Exam) [][]int {
+// indices of its exams sorted by age, counting only the exams use keeps.
+func groupByWorker(exams []Exam, use func(int) bool) [][]int {
 	pos := make(map[string]int, len(exams)/4+1)
 	var workers [][]int
 	for i, e := range exams {
+		if !use(i) {
+			continue
+		}
 		k, ok := pos[e.Worker]
 		if !ok {
 			k = len(workers)

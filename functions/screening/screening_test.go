@@ -89,7 +89,7 @@ func TestRealisedFalseSignalRate(t *testing.T) {
 	for _, serialMode := range []Serial{SerialWhiten, SerialDirect} {
 		for _, method := range []monitor.Method{monitor.Normal, monitor.Bootstrap} {
 			set := DefaultSettings()
-			set.Extrapolate = true
+			set.Extrapolate = MaxExtrapolation
 			set.Serial = serialMode
 			ats, rse := realised(set, LimitOptions{Method: method})
 			t.Logf("%s/%s, follow-up horizon: %.1f worker-years per false signal for a %g-year target (relative SE %.1f%%)", serialMode, method, ats, target, 100*rse)
@@ -99,7 +99,7 @@ func TestRealisedFalseSignalRate(t *testing.T) {
 		}
 	}
 	set := DefaultSettings()
-	set.Extrapolate = true
+	set.Extrapolate = MaxExtrapolation
 	set.Serial = SerialDirect
 	ats, _ := realised(set, LimitOptions{Horizon: monitor.HorizonLong})
 	t.Logf("direct/normal, long horizon: %.1f worker-years per false signal for a %g-year target", ats, target)
@@ -180,7 +180,7 @@ func TestScreenOrderAndErrors(t *testing.T) {
 	}
 	// With extrapolation an age outside the range is screened and marked.
 	s := DefaultSettings()
-	s.Extrapolate = true
+	s.Extrapolate = MaxExtrapolation
 	res, err = m.Screen([]Exam{{Worker: "a", Time: 90, Value: 150}}, s, 1)
 	if err != nil || res[0].InRange {
 		t.Errorf("extrapolated exam: %+v, %v", res, err)
@@ -230,7 +230,7 @@ func BenchmarkScreen1M(b *testing.B) {
 	m := fit(b, cohort(1000, serial.Params{Phi: 0.9, C: 0.7}, 5, "R"))
 	ex := exams(cohort(160000, serial.Params{Phi: 0.9, C: 0.7}, 6, "W"))
 	s := DefaultSettings()
-	s.Extrapolate = true
+	s.Extrapolate = MaxExtrapolation
 	b.ResetTimer()
 	for range b.N {
 		if _, err := m.Screen(ex, s, 1); err != nil {

@@ -71,7 +71,8 @@ func (w *Worker) Signalled() bool { return !math.IsNaN(w.FirstSignal) }
 
 // Workers summarises each worker of a screened sheet, in order of first
 // appearance: exams and results are one per row (as Model.Screen returns
-// them), rules one column each over the same rows, h the control limit.
+// them, or Model.ScreenEach: rows set aside, whose Result is Skipped, are
+// left out), rules one column each over the same rows, h the control limit.
 // It panics if the lengths differ (a programmer error).
 func Workers(exams []screening.Exam, res []screening.Result, rules []Rule, h float64) []*Worker {
 	if len(res) != len(exams) {
@@ -85,6 +86,9 @@ func Workers(exams []screening.Exam, res []screening.Result, rules []Rule, h flo
 	pos := map[string]int{}
 	var ws []*Worker
 	for i, e := range exams {
+		if res[i].Skipped != nil {
+			continue
+		}
 		k, ok := pos[e.Worker]
 		if !ok {
 			k = len(ws)

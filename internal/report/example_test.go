@@ -42,7 +42,7 @@ func ExampleRender() {
 		log.Fatal(err)
 	}
 	set := screening.DefaultSettings()
-	set.Extrapolate = true
+	set.Extrapolate = screening.DefaultExtrapolation
 	lim, err := m.Limit(set, screening.LimitOptions{}, 20)
 	if err != nil {
 		log.Fatal(err)

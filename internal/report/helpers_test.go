@@ -103,7 +103,7 @@ func screenMarker(ref, wf *table.Table, mk demoMarker) (Section, error) {
 		return Section{}, err
 	}
 	set := screening.DefaultSettings()
-	set.Extrapolate = true
+	set.Extrapolate = screening.DefaultExtrapolation
 	set.Chart.Side = mk.side
 	const target = 20
 	lim, err := m.Limit(set, screening.LimitOptions{}, target)

@@ -86,7 +86,7 @@ func examsFrom(t *table.Table, marker string) ([]screening.Exam, error) {
 
 func settings() screening.Settings {
 	s := screening.DefaultSettings()
-	s.Extrapolate = true
+	s.Extrapolate = screening.DefaultExtrapolation
 	return s
 }
 

@@ -64,6 +64,10 @@ type MarkerResults struct {
 	// Rules are alert rules evaluated on the same rows; each gets a
 	// TRUE/FALSE column.
 	Rules []RuleColumn
+	// Status and Notes, when given (one per input row), say what happened
+	// to each row (screened, extrapolated, or why it was not screened) in
+	// two columns. A row whose Result is Skipped shows no numbers.
+	Status, Notes []string
 }
 
 // RuleColumn is one alert rule's outcome per input row; a rule of
@@ -114,6 +118,9 @@ func (d ResultsData) validate() error {
 			if len(r.Fired) != n {
 				return fmt.Errorf("%s: rule %q has %d results for %d input rows", label, r.Name, len(r.Fired), n)
 			}
+		}
+		if (m.Status != nil && len(m.Status) != n) || (m.Notes != nil && len(m.Notes) != n) {
+			return fmt.Errorf("%s: %d statuses and %d notes for %d input rows", label, len(m.Status), len(m.Notes), n)
 		}
 	}
 	return nil
@@ -264,6 +271,13 @@ func inputValue(s string) any {
 	return s
 }
 
+func nilIfEmpty(s string) any {
+	if s == "" {
+		return nil
+	}
+	return s
+}
+
 func numCell(v float64, style int) any {
 	if !numeric.Finite(v) {
 		return nil
@@ -293,6 +307,12 @@ func (w *writer) results() error {
 				signalCols = append(signalCols, len(header)+1)
 			}
 			header = append(header, excelize.Cell{StyleID: w.header, Value: w.prefix(m, c)})
+		}
+		if m.Status != nil {
+			header = append(header, excelize.Cell{StyleID: w.header, Value: w.prefix(m, "status")})
+		}
+		if m.Notes != nil {
+			header = append(header, excelize.Cell{StyleID: w.header, Value: w.prefix(m, "status note")})
 		}
 		for _, r := range m.Rules {
 			if flagged.Flags(r.Severity) {
@@ -357,9 +377,23 @@ func (w *writer) results() error {
 			row[k+3] = numCell(m.Limit, w.num3)
 			row[k+4] = r.Signal
 			row[k+5] = numCell(r.FirstSignal, w.num2)
+			if r.Skipped != nil {
+				row[k+3], row[k+4] = nil, nil
+			}
 			k += 6
+			if m.Status != nil {
+				row[k] = m.Status[i]
+				k++
+			}
+			if m.Notes != nil {
+				row[k] = nilIfEmpty(m.Notes[i])
+				k++
+			}
 			for _, rc := range m.Rules {
 				row[k] = rc.Fired[i]
+				if r.Skipped != nil {
+					row[k] = nil
+				}
 				k++
 			}
 		}
