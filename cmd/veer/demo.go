@@ -191,7 +191,7 @@ func (d demoRun) marker(mk demoMarker, truth map[string]screening.Truth) (*demoR
 	}
 	set := screening.DefaultSettings()
 	set.Chart.Side = mk.side
-	set.Extrapolate = true
+	set.Extrapolate = screening.DefaultExtrapolation
 	lim, err := m.Limit(set, screening.LimitOptions{}, target)
 	if err != nil {
 		return nil, err

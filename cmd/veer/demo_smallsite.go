@@ -109,10 +109,14 @@ func smallSiteOne(e *env, mk smallSiteMarker, work, truthTab *table.Table, files
 		return nil, err
 	}
 	cols := examColumns{id: "worker", time: "age", value: mk.column, group: "sex"}
-	exams, _, err := readExams(work, smallsite.ExamsFile, cols, mk.covariates, ref.Covariates())
+	x, err := readExamsCov(work, smallsite.ExamsFile, cols, mk.covariates, ref.Covariates())
 	if err != nil {
 		return nil, err
 	}
+	if pr := x.problems(); pr.Len() > 0 || x.missing() > 0 {
+		return nil, fmt.Errorf("%s: the embedded exams are not whole: %v", smallsite.ExamsFile, pr)
+	}
+	exams := x.exams
 	spec := chart.DefaultSpec()
 	spec.Side = mk.side
 	fp := published.DefaultFirstPass(spec, monitor.DefaultMode)

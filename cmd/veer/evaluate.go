@@ -240,7 +240,9 @@ func runEvaluate(e *env, args []string) error {
 	if err != nil {
 		return err
 	}
-	set.Extrapolate = sf.extrap
+	if set.Extrapolate, err = sf.reach.value(); err != nil {
+		return err
+	}
 	rs, err := collectRulesUnchecked(sf.rules, sf.rulesFile)
 	if err != nil {
 		return err

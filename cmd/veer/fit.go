@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"errors"
 	"flag"
 	"fmt"
 	"os"
@@ -16,85 +17,10 @@ import (
 	"veer/internal/table"
 )
 
-// loadTable reads a CSV file given on the command line.
-func loadTable(path string) (*table.Table, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		if os.IsNotExist(err) {
-			return nil, fmt.Errorf("cannot find the file %s", path)
-		}
-		return nil, fmt.Errorf("cannot open %s: %v", path, err)
-	}
-	defer f.Close()
-	t, err := table.Read(f)
-	if err != nil {
-		return nil, fmt.Errorf("%s: %v", path, err)
-	}
-	return t, nil
-}
-
-// examColumns names the columns of an exam table.
-type examColumns struct {
-	id, time, value, group string
-}
-
-func (c *examColumns) register(fsAdd func(p *string, name, def, usage string)) {
-	fsAdd(&c.id, "id", "", "column holding the worker id (required)")
-	fsAdd(&c.time, "time", "", "column holding the time of the exam: the worker's age in years (required)")
-	fsAdd(&c.value, "value", "", "column holding the marker's value (required); several markers screened together: their columns, comma-separated, e.g. sbp,chol,fev1")
-	fsAdd(&c.group, "group", "", "column holding the reference group, e.g. sex or job group (optional)")
-}
-
-// readRows turns a table into exam rows using the named columns.
-func readRows(t *table.Table, path string, c examColumns) ([]refcurve.Row, error) {
-	if err := required("id", c.id, "time", c.time, "value", c.value); err != nil {
-		return nil, err
-	}
-	idc, err := t.Column(c.id)
-	if err != nil {
-		return nil, fmt.Errorf("%s: --id: %v", path, err)
-	}
-	tc, err := t.Column(c.time)
-	if err != nil {
-		return nil, fmt.Errorf("%s: --time: %v", path, err)
-	}
-	vc, err := t.Column(c.value)
-	if err != nil {
-		return nil, fmt.Errorf("%s: --value: %v", path, err)
-	}
-	gc := -1
-	if c.group != "" {
-		if gc, err = t.Column(c.group); err != nil {
-			return nil, fmt.Errorf("%s: --group: %v", path, err)
-		}
-	}
-	ids := t.Strings(idc)
-	times, err := t.Floats(tc)
-	if err != nil {
-		return nil, fmt.Errorf("%s: %v", path, err)
-	}
-	values, err := t.Floats(vc)
-	if err != nil {
-		return nil, fmt.Errorf("%s: %v", path, err)
-	}
-	var groups []string
-	if gc >= 0 {
-		groups = t.Strings(gc)
-	}
-	rows := make([]refcurve.Row, len(ids))
-	for i := range rows {
-		if ids[i] == "" {
-			return nil, fmt.Errorf("%s: data row %d (line %d), column %q: the worker id is empty", path, i+1, i+2, c.id)
-		}
-		rows[i] = refcurve.Row{Worker: ids[i], Time: times[i], Value: values[i]}
-		if groups != nil {
-			rows[i].Group = groups[i]
-		}
-	}
-	return rows, nil
-}
-
-// progress prints a fit's progress on stderr once it has run for a second.
+// progress prints a long computation's progress on stderr once it has run
+// for a second. On a terminal one line is rewritten in place; otherwise
+// (stderr to a file or a pipe) whole lines are written, at most one every
+// progressLineEvery, so a log stays readable.
 type progress struct {
 	e       *env
 	start   time.Time
@@ -102,10 +28,22 @@ type progress struct {
 	printed bool
 }
 
+// progressLineEvery is the least time between progress lines written to a
+// file or pipe.
+const progressLineEvery = 15 * time.Second
+
 func newProgress(e *env) *progress { return &progress{e: e, start: time.Now()} }
 
 func (p *progress) report(stage string, done float64) {
 	now := time.Now()
+	if !p.e.stderrTerminal {
+		if now.Sub(p.start) < progressLineEvery || now.Sub(p.last) < progressLineEvery {
+			return
+		}
+		p.last = now
+		fmt.Fprintf(p.e.stderr, "%s: %.0f%%\n", stage, 100*done)
+		return
+	}
 	if now.Sub(p.start) < time.Second || now.Sub(p.last) < 250*time.Millisecond {
 		return
 	}
@@ -121,29 +59,31 @@ func (p *progress) finish() {
 }
 
 func runFit(e *env, args []string) error {
-	fs := newFlags(e, "fit", "--in F.csv --id C --time C --value C [--group C] --name N --out M.json\n       veer fit (--lms-table T.csv | --equations E.json) [--in F.csv --id C --time C --value C [--group C] [--covariate NAME=COL]] [--serial-phi P --serial-c C] --name N --out M.json")
+	fs := newFlags(e, "fit", "--in F.csv|F.xlsx [--sheet S] --id C --time C --value C [--group C] --name N --out M.json\n       veer fit (--lms-table T.csv | --equations E.json) [--in F.csv --id C --time C --value C [--group C] [--covariate NAME=COL]] [--serial-phi P --serial-c C] --name N --out M.json")
 	var cols examColumns
 	cols.register(fs.StringVar)
-	in := fs.String("in", "", "CSV file of healthy reference workers' exams, one row per exam (required); with a published reference, the exams of the workforce to be screened")
+	in := fs.String("in", "", "CSV file or .xlsx workbook of healthy reference workers' exams, one row per exam (required); with a published reference, the exams of the workforce to be screened")
+	sheet := fs.String("sheet", "", "sheet of the .xlsx workbook holding the exams (default: the first sheet)")
 	var pub publishedFlags
 	pub.register(fs)
 	name := fs.String("name", "", "name of the model, e.g. sbp (required)")
 	out := fs.String("out", "", "file to write the model to (required)")
 	tr := fs.String("transform", string(transform.None), "value transform: none, log or boxcox (lambda by maximum likelihood); with several markers one for all or one per marker, e.g. none,log,none")
 	bw := fs.Float64("bandwidth", 0, "bandwidth of the mean curve in years (0: chosen by leave-one-worker-out cross-validation)")
-	minWorkers := fs.Int("min-workers", 0, "fewest workers a group needs (0: the default)")
+	minWorkers := fs.Int("minworkers", 0, fmt.Sprintf("fewest workers a group needs for its own curves (0: the default, %d; at least %d)", refcurve.DefaultMinWorkers, refcurve.LeastMinWorkers))
+	alias(fs, "min-workers", "minworkers")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
 	set := map[string]bool{}
 	fs.Visit(func(f *flag.Flag) { set[f.Name] = true })
 	if pub.wanted() {
-		for _, n := range []string{"transform", "bandwidth", "min-workers"} {
+		for _, n := range []string{"transform", "bandwidth", "minworkers", "min-workers"} {
 			if set[n] {
 				return usagef("--%s is for curves fitted from a reference cohort; a published reference gives its own", n)
 			}
 		}
-		return runFitPublished(e, &pub, *in, *name, *out, cols)
+		return runFitPublished(e, &pub, *in, *sheet, *name, *out, cols)
 	}
 	for _, n := range []string{"interpolate", "serial-phi", "serial-c", "first-pass-target", "side", "covariate", "extrapolate"} {
 		if set[n] {
@@ -156,15 +96,21 @@ func runFit(e *env, args []string) error {
 	if *bw < 0 {
 		return usagef("--bandwidth must be positive (or 0 to choose it)")
 	}
+	if *minWorkers != 0 && *minWorkers < refcurve.LeastMinWorkers {
+		return usagef("--minworkers must be at least %d", refcurve.LeastMinWorkers)
+	}
 	markers, err := valueColumns(cols.value)
 	if err != nil {
 		return err
 	}
+	t, err := readInput(*in, *sheet, "--sheet")
+	if err != nil {
+		return err
+	}
+	if err := refuseOwnSheet(t); err != nil {
+		return err
+	}
 	if len(markers) > 1 {
-		t, err := loadTable(*in)
-		if err != nil {
-			return err
-		}
 		return fitJoint(e, t, *in, *name, *out, cols, markers, *tr, *bw, *minWorkers)
 	}
 	switch transform.Name(*tr) {
@@ -172,13 +118,19 @@ func runFit(e *env, args []string) error {
 	default:
 		return usagef("--transform must be none, log or boxcox, not %q", *tr)
 	}
-	t, err := loadTable(*in)
+	x, err := readExamTable(t, *in, cols)
 	if err != nil {
 		return err
 	}
-	rows, err := readRows(t, *in, cols)
-	if err != nil {
-		return err
+	if p := x.problems(); p.Len() > 0 {
+		return fmt.Errorf("%s: %v\nnothing was written; every reference row needs a worker id, an age and a reading (or a blank reading, a missing exam)%s", *in, p, groupHint(cols))
+	}
+	if len(x.exams) == 0 {
+		return fmt.Errorf("%s: no row has a reading for --value %q", *in, cols.value)
+	}
+	rows := make([]refcurve.Row, len(x.exams))
+	for i, ex := range x.exams {
+		rows[i] = refcurve.Row{Worker: ex.Worker, Group: ex.Group, Time: ex.Time, Value: ex.Value}
 	}
 	p := newProgress(e)
 	m, err := screening.Fit(context.Background(), rows, screening.FitOptions{
@@ -192,7 +144,7 @@ func runFit(e *env, args []string) error {
 	})
 	p.finish()
 	if err != nil {
-		return fmt.Errorf("%s: %v", *in, err)
+		return fmt.Errorf("%s: %v\nnothing was written", *in, x.fitError(err))
 	}
 	doc, err := m.Encode()
 	if err != nil {
@@ -201,9 +153,61 @@ func runFit(e *env, args []string) error {
 	if err := atomicfile.WriteFile(*out, doc, outputPerm); err != nil {
 		return err
 	}
-	fmt.Fprintf(e.stderr, "fitted %q from %d exams: %s\n", *name, len(rows), m.Summary())
+	fmt.Fprintf(e.stderr, "fitted %q from %s: %s\n", *name, plural(len(rows), "exam", "exams"), m.Summary())
+	if n := x.missing(); n > 0 {
+		fmt.Fprintf(e.stderr, "%s without a reading left out (missing exams)\n", plural(n, "row", "rows"))
+	}
 	fmt.Fprintf(e.stderr, "model written to %s\n", *out)
 	return nil
+}
+
+// groupHint reminds that a blank group is not allowed when groups are used.
+func groupHint(c examColumns) string {
+	if c.group == "" {
+		return ""
+	}
+	return " and, with --group, a group"
+}
+
+// fitError words a failed fit for the command line: each problem of the
+// rows at its line (or sheet row and cell), a group too small naming
+// --minworkers.
+func (x *examTable) fitError(err error) error {
+	var all *refcurve.RowErrors
+	list := []error{err}
+	if errors.As(err, &all) {
+		list = all.List
+	}
+	var rowsP table.Problems
+	var other []string
+	for _, e := range list {
+		var (
+			re *refcurve.RowError
+			de *refcurve.DuplicateError
+			ge *refcurve.GroupSizeError
+		)
+		switch {
+		case errors.As(e, &de):
+			i := x.rowOf[de.Rows[1]-1]
+			rowsP.Add(x.placed(i, e))
+		case errors.As(e, &re) && len(re.Rows) > 0:
+			i := x.rowOf[re.Rows[0]-1]
+			rowsP.Add(x.placed(i, e))
+		case errors.As(e, &ge):
+			other = append(other, fmt.Sprintf("%v; --minworkers lowers the minimum (down to %d), at the price of less certain curves", e, refcurve.LeastMinWorkers))
+		default:
+			other = append(other, e.Error())
+		}
+	}
+	if all != nil && all.Count > len(all.List) {
+		other = append(other, fmt.Sprintf("and %d more problems", all.Count-len(all.List)))
+	}
+	var parts []string
+	if rowsP.Len() > 0 {
+		parts = append(parts, rowsP.Error())
+	}
+	parts = append(parts, other...)
+	return errors.New(strings.Join(parts, "\n"))
 }
 
 // loadModel reads a screening model file.
@@ -251,15 +255,26 @@ func runCurve(e *env, args []string) error {
 	at := fs.String("at", "", "ages in years, comma-separated (required)")
 	group := fs.String("group", "", "reference group (default: every group of the model)")
 	centiles := fs.String("centiles", "", "centiles to add as columns, in percent, comma-separated, e.g. 2.5,97.5")
-	extrap := fs.Bool("extrapolate", false, "allow ages outside the reference range (the curve is held at its end)")
+	var reach reachFlags
+	reach.register(fs)
 	var covs covariateList
 	fs.Var(&covs, "covariate", "for a model on reference equations: NAME=VALUE, the covariate value to look the reference up at, e.g. height=170 (repeatable)")
+	fs.Usage = func() {
+		fmt.Fprintf(e.stderr, "Usage: veer curve --model M.json --at 30,40,50 [--group G] [--centiles 2.5,97.5] [--covariate height=170]\n\nFlags:\n")
+		printFlags(fs)
+		fmt.Fprintln(e.stderr, "\nOutput: CSV with the columns age, group, mean, sd and c<P> per centile asked for (mean and sd on the model's scale, centiles in the reading's own unit).")
+	}
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
 	if err := required("model", *model, "at", *at); err != nil {
 		return err
 	}
+	years, err := reach.value()
+	if err != nil {
+		return err
+	}
+	extrap := years > 0
 	ages, err := parseList("at", *at)
 	if err != nil {
 		return err
@@ -296,8 +311,28 @@ func runCurve(e *env, args []string) error {
 	if *group != "" {
 		groups = []string{*group}
 	}
+	// Every age of every group is checked before anything is written.
+	var problems []string
+	for _, g := range groups {
+		lo, hi, err := ref.Range(g)
+		if err != nil {
+			return err
+		}
+		for _, t := range ages {
+			if err := refcurve.Outside(g, t, lo, hi, years); err != nil {
+				var re *refcurve.RangeError
+				if errors.As(err, &re) {
+					err = reachError{re}
+				}
+				problems = append(problems, err.Error())
+			}
+		}
+	}
+	if len(problems) > 0 {
+		return errors.New(strings.Join(problems, "\n"))
+	}
 	w := table.NewWriter(e.stdout)
-	w.Text("time")
+	w.Text("age")
 	for _, h := range []string{"group", "mean", "sd"} {
 		w.Text(h)
 	}
@@ -309,7 +344,7 @@ func runCurve(e *env, args []string) error {
 	}
 	for _, g := range groups {
 		for _, t := range ages {
-			mean, sd, err := ref.MeanSD(g, t, cov, *extrap)
+			mean, sd, err := ref.MeanSD(g, t, cov, extrap)
 			if err != nil {
 				return err
 			}
@@ -318,7 +353,7 @@ func runCurve(e *env, args []string) error {
 			w.Float(mean, 6)
 			w.Float(sd, 6)
 			for _, c := range cents {
-				v, err := ref.Centile(g, t, cov, c, *extrap)
+				v, err := ref.Centile(g, t, cov, c, extrap)
 				if err != nil {
 					return err
 				}

@@ -287,7 +287,7 @@ func jointDelay(e *env, cf *chartFlags, j *screening.Joint, markers int, limitH,
 		if err != nil {
 			return err
 		}
-		describeLimit(e, r, target)
+		describeLimit(e, r, target, c.Method)
 		h = r.H
 	}
 	d, err := joint.Delay(c, h, shift, onset)
@@ -351,7 +351,9 @@ func jointScreen(e *env, f *screenFlags, j *screening.Joint, t *table.Table) (*j
 		}
 		s.Chart.Sides = sides
 	}
-	s.Extrapolate = f.extrap
+	if s.Extrapolate, err = f.reach.value(); err != nil {
+		return nil, err
+	}
 	rows, err := jointRows(t, f.in, f.cols, names)
 	if err != nil {
 		return nil, err
@@ -366,7 +368,7 @@ func jointScreen(e *env, f *screenFlags, j *screening.Joint, t *table.Table) (*j
 		if err != nil {
 			return nil, err
 		}
-		describeLimit(e, job.limit, f.target)
+		describeLimit(e, job.limit, f.target, monitor.Method(f.chart.method))
 		h = job.limit.H
 	}
 	job.exams = make([]screening.JointExam, len(rows))

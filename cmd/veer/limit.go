@@ -42,14 +42,16 @@ func (c *chartFlags) register(fs *flag.FlagSet) {
 	fs.Float64Var(&c.allowance, "allowance", d.Allowance, "CUSUM allowance k, in SDs (half the shift to detect fastest)")
 	fs.Float64Var(&c.lambda, "lambda", d.Lambda, "EWMA smoothing weight per unit of time, in (0,1]")
 	fs.Float64Var(&c.unit, "unit", d.UnitOrDefault(), "EWMA time unit in years (the weight of an exam after a gap d is 1-(1-lambda)^(d/unit))")
-	fs.Float64Var(&c.headStart, "head-start", 0, "fast initial response: start the CUSUM at this fraction of the limit (0 to 1)")
+	fs.Float64Var(&c.headStart, "headstart", 0, "fast initial response: start the CUSUM at this fraction of the limit (0 to 1)")
+	alias(fs, "head-start", "headstart")
 	fs.BoolVar(&c.restart, "restart", false, "restart the chart after a signal")
 	fs.StringVar(&c.serial, "serial", string(screening.SerialWhiten), "serial correlation: whiten (chart each reading against the worker's own predicted level, the Kalman innovation), direct (chart z; the limit carries the correlation) or off (ignore it)")
 	fs.StringVar(&c.method, "method", string(monitor.Normal), "how the limit is computed: normal or bootstrap")
 	fs.StringVar(&c.horizon, "horizon", string(monitor.HorizonFollowUp), "what the target counts: followup (worker-years of exams per false signal, workers followed as long as the reference workers; needs --model) or long (one worker with an unending exam history, the textbook average time to signal)")
 	fs.Var(&c.gap, "gap", fmt.Sprintf("planned years between exams, from a day (%.4f) to %d years (default: the reference workers' own gaps; needed without --model)", monitor.MinGap, monitor.MaxGap))
 	fs.Uint64Var(&c.seed, "seed", screening.DefaultSeed, "seed of the Monte Carlo methods (the same seed gives the same limit)")
-	fs.IntVar(&c.paths, "paths", 0, "Monte Carlo paths (0: default, about 1.6% standard error)")
+	fs.IntVar(&c.paths, "reps", 0, "simulated or resampled sequences of the Monte Carlo and bootstrap methods (0: default, about 1.6% standard error)")
+	alias(fs, "paths", "reps")
 }
 
 func (c *chartFlags) settings() (screening.Settings, error) {
@@ -161,7 +163,7 @@ func runLimit(e *env, args []string) error {
 		if err != nil {
 			return err
 		}
-		describeLimit(e, res, *target)
+		describeLimit(e, res, *target, monitor.Method(cf.method))
 		fmt.Fprintf(e.stdout, "%.4f\n", res.H)
 		return nil
 	}
@@ -193,7 +195,7 @@ func runLimit(e *env, args []string) error {
 			return err
 		}
 	}
-	describeLimit(e, res, *target)
+	describeLimit(e, res, *target, monitor.Method(cf.method))
 	fmt.Fprintf(e.stdout, "%.4f\n", res.H)
 	return nil
 }
@@ -226,10 +228,17 @@ func jointModelOrMarkers(model string, markers int) (jointChoice, error) {
 	return jointChoice{several: true, model: j}, nil
 }
 
-func describeLimit(e *env, r monitor.LimitResult, target float64) {
+// describeLimit says on stderr how the limit was found: exactly, by Monte
+// Carlo simulation of the fitted serial model, or by bootstrap of the
+// reference workers' own sequences.
+func describeLimit(e *env, r monitor.LimitResult, target float64, method monitor.Method) {
 	how := "exact (i.i.d. normal values)"
 	if !r.Exact {
-		how = fmt.Sprintf("Monte Carlo, %d paths, standard error %.2f years (%.1f%% of target), limit ±%.3f", r.Paths, r.SE, 100*r.SE/target, r.SEH)
+		what := "Monte Carlo, %d simulated paths"
+		if method == monitor.Bootstrap {
+			what = "bootstrap, %d resampled histories of reference workers"
+		}
+		how = fmt.Sprintf(what+", standard error %.2f years (%.1f%% of target), limit ±%.3f", r.Paths, r.SE, 100*r.SE/target, r.SEH)
 	}
 	fmt.Fprintf(e.stderr, "limit %.4f: average time to a false signal %.2f years at a mean gap of %.2f years; %s\n", r.H, r.ATS, r.MeanGap, how)
 }
@@ -294,7 +303,7 @@ func runDelay(e *env, args []string) error {
 		if err != nil {
 			return err
 		}
-		describeLimit(e, r, *target)
+		describeLimit(e, r, *target, monitor.Method(cf.method))
 		h = r.H
 	}
 	d, err := monitor.Delay(c, h, *shift, *onset)

@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"errors"
 	"flag"
 	"fmt"
 	"math"
@@ -14,7 +13,6 @@ import (
 	"veer/functions/chart"
 	"veer/functions/monitor"
 	"veer/functions/published"
-	"veer/functions/refcurve"
 	"veer/functions/screening"
 	"veer/internal/atomicfile"
 	"veer/internal/table"
@@ -77,33 +75,6 @@ func (l covariateList) match(want []string) ([]string, error) {
 		}
 	}
 	return refs, nil
-}
-
-// readCovariates reads the covariate columns named by cols (in the
-// reference's order) and returns each row's values. A blank or
-// non-numeric cell is an error naming the row and column.
-func readCovariates(t *table.Table, path string, cols []string) ([][]float64, error) {
-	if len(cols) == 0 {
-		return nil, nil
-	}
-	vals := make([][]float64, len(cols))
-	for k, c := range cols {
-		ci, err := t.Column(c)
-		if err != nil {
-			return nil, fmt.Errorf("%s: --covariate: %v", path, err)
-		}
-		if vals[k], err = t.Floats(ci); err != nil {
-			return nil, fmt.Errorf("%s: %v", path, err)
-		}
-	}
-	out := make([][]float64, len(t.Rows))
-	for i := range out {
-		out[i] = make([]float64, len(cols))
-		for k := range cols {
-			out[i][k] = vals[k][i]
-		}
-	}
-	return out, nil
 }
 
 // readLMSTable reads an LMS centile table: a CSV file with the columns
@@ -202,7 +173,7 @@ func (p *publishedFlags) wanted() bool { return p.table != "" || p.equations != 
 
 // runFitPublished builds a model on a published reference: the serial
 // model from the workforce's exams (--in), or set by hand.
-func runFitPublished(e *env, p *publishedFlags, in, name, out string, cols examColumns) error {
+func runFitPublished(e *env, p *publishedFlags, in, sheet, name, out string, cols examColumns) error {
 	if p.table != "" && p.equations != "" {
 		return usagef("give one of --lms-table and --equations")
 	}
@@ -260,25 +231,29 @@ func runFitPublished(e *env, p *publishedFlags, in, name, out string, cols examC
 		return err
 	}
 	var exams []screening.Exam
-	var covCols, covNames []string
+	var x *examTable
 	if in != "" {
-		t, err := loadTable(in)
+		t, err := readInput(in, sheet, "--sheet")
 		if err != nil {
 			return err
 		}
-		if exams, covCols, err = readExams(t, in, cols, p.covariates, ref.Covariates()); err != nil {
+		if err := refuseOwnSheet(t); err != nil {
 			return err
 		}
-		for _, c := range ref.Covariates() {
-			covNames = append(covNames, c.Name)
+		if x, err = readExamsCov(t, in, cols, p.covariates, ref.Covariates()); err != nil {
+			return err
 		}
+		if pr := x.problems(); pr.Len() > 0 {
+			return fmt.Errorf("%s: %v\nnothing was written", in, pr)
+		}
+		exams = x.exams
 	} else if len(p.covariates) > 0 {
 		return usagef("--covariate names columns of --in")
 	}
 	m, err := screening.FitPublished(context.Background(), ref, exams, opt)
 	if err != nil {
-		if in != "" {
-			return rowsError(err, in, cols, covCols, covNames)
+		if x != nil {
+			return fmt.Errorf("%s: %v\nnothing was written", in, x.examsError(err))
 		}
 		return err
 	}
@@ -294,34 +269,19 @@ func runFitPublished(e *env, p *publishedFlags, in, name, out string, cols examC
 	return nil
 }
 
-// readExams reads exam rows with their covariates (in the reference's
-// order).
-// It returns the exams and the covariates' columns.
-func readExams(t *table.Table, path string, cols examColumns, covs covariateList, want []published.Covariate) ([]screening.Exam, []string, error) {
-	rows, err := readRows(t, path, cols)
-	if err != nil {
-		return nil, nil, err
-	}
+// readExamsCov reads the exam rows of t with the covariates the reference
+// wants, in its order, from the columns --covariate names; a blank
+// covariate is NaN, for the reference to refuse in its row.
+func readExamsCov(t *table.Table, path string, cols examColumns, covs covariateList, want []published.Covariate) (*examTable, error) {
 	names := make([]string, len(want))
 	for i, c := range want {
 		names[i] = c.Name
 	}
 	covCols, err := covs.match(names)
 	if err != nil {
-		return nil, nil, err
+		return nil, err
 	}
-	cv, err := readCovariates(t, path, covCols)
-	if err != nil {
-		return nil, nil, err
-	}
-	exams := make([]screening.Exam, len(rows))
-	for i, r := range rows {
-		exams[i] = screening.Exam{Worker: r.Worker, Group: r.Group, Time: r.Time, Value: r.Value}
-		if cv != nil {
-			exams[i].Covariates = cv[i]
-		}
-	}
-	return exams, covCols, nil
+	return readExamTableCov(t, path, cols, covCols, names)
 }
 
 // describePublished says on stderr what the model stands on, and which
@@ -367,56 +327,4 @@ func describePublished(e *env, m *screening.Model, source string) {
 	} else {
 		fmt.Fprintln(e.stderr, "no exam histories: give the planned gap between exams (--gap) and --horizon long when computing limits")
 	}
-}
-
-// rowsError words a failure to score some exams by the data rows and
-// columns of the user's file: the reading's column for a reading the
-// reference cannot take, the covariate's column for a blank or unusable
-// covariate, the age's for an age outside the reference, the group's for
-// an unknown group. Other errors are prefixed with the file.
-func rowsError(err error, path string, cols examColumns, covCols, covNames []string) error {
-	var se *refcurve.ScoreErrors
-	if !errors.As(err, &se) {
-		return fmt.Errorf("%s: %v", path, err)
-	}
-	column := func(e error) string {
-		var ce *published.CovariateError
-		var re *published.RangeError
-		switch {
-		case errors.As(e, &ce):
-			return covColumn(ce.Name, covCols, covNames)
-		case errors.As(e, &re) && re.Name != "age":
-			return covColumn(re.Name, covCols, covNames)
-		case errors.Is(e, refcurve.ErrOutsideRange):
-			return cols.time
-		case errors.Is(e, refcurve.ErrUnknownGroup):
-			return cols.group
-		}
-		return cols.value
-	}
-	var b strings.Builder
-	if se.Count == 1 {
-		b.WriteString(path + ": ")
-	} else {
-		fmt.Fprintf(&b, "%s: %d of %d rows cannot be scored against the reference: ", path, se.Count, se.Total)
-	}
-	for k, f := range se.First {
-		if k > 0 {
-			b.WriteString("; ")
-		}
-		fmt.Fprintf(&b, "data row %d (line %d), column %q: %v", f.Index+1, f.Index+2, column(f.Err), f.Err)
-	}
-	if se.Count > len(se.First) {
-		fmt.Fprintf(&b, "; and %d more", se.Count-len(se.First))
-	}
-	return errors.New(b.String())
-}
-
-func covColumn(name string, covCols, covNames []string) string {
-	for i, n := range covNames {
-		if n == name && i < len(covCols) {
-			return covCols[i]
-		}
-	}
-	return name
 }

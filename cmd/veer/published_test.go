@@ -145,8 +145,8 @@ func TestCLIPublishedBadInput(t *testing.T) {
 	for _, c := range []struct {
 		name, edit, want string
 	}{
-		{"reading 0", "fev1", `bad.csv: data row 3 (line 4), column "fev1": the reading 0 is not positive`},
-		{"blank height", "height", `data row 3 (line 4), column "height": the cell is empty`},
+		{"reading 0", "fev1", `bad.csv: line 4, column "fev1": the reading 0 is not positive`},
+		{"blank height", "height", `line 4, column "height": the height is missing`},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			bad := append([]string(nil), lines...)
@@ -251,8 +251,8 @@ func TestCLIScreenRowsNamed(t *testing.T) {
 	f := fixture(t)
 	in := writeFile(t, filepath.Join(t.TempDir(), "old.csv"), []byte("worker,group,age,sbp\nA,tower,40,120\nA,tower,99,130\nB,nowhere,40,120\n"))
 	code, _, errs := cli("screen", "--model", f.model, "--in", in, "--id", "worker", "--time", "age", "--value", "sbp", "--group", "group", "--limit", "4")
-	for _, want := range []string{"2 of 3 rows cannot be scored", `data row 2 (line 3), column "age": time 99 is outside`, `data row 3 (line 4), column "group": unknown group "nowhere"`} {
-		if code != 1 || !strings.Contains(errs, want) {
+	for _, want := range []string{"2 rows not screened", `line 3, column "age": age 99 is`, `line 4, column "group": unknown group "nowhere"`} {
+		if code != exitSkipped || !strings.Contains(errs, want) {
 			t.Errorf("%d %s: lacks %q", code, errs, want)
 		}
 	}

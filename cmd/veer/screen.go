@@ -21,6 +21,7 @@ import (
 	"veer/internal/flagged"
 	"veer/internal/report"
 	"veer/internal/table"
+	"veer/internal/version"
 	"veer/internal/workbook"
 )
 
@@ -32,7 +33,8 @@ type screenFlags struct {
 	in, sheet  string
 	target     float64
 	limit      float64
-	extrap     bool
+	reach      reachFlags
+	strict     bool
 	rules      ruleList
 	rulesFile  string
 	covariates covariateList
@@ -46,7 +48,8 @@ func (f *screenFlags) register(fs *flag.FlagSet) {
 	fs.StringVar(&f.sheet, "sheet", "", "sheet of the .xlsx workbook holding the exams (default: the first sheet)")
 	fs.Float64Var(&f.target, "target", 0, "average years to a false signal for a healthy worker; the limit is computed from the model")
 	fs.Float64Var(&f.limit, "limit", 0, "control limit to use instead of --target")
-	fs.BoolVar(&f.extrap, "extrapolate", false, "allow exams at ages outside the reference range (curves held at their ends)")
+	f.reach.register(fs)
+	fs.BoolVar(&f.strict, "strict", false, "all or nothing: when any exam row cannot be screened (outside the reference ages, unknown or blank group, a cell that is not a number, a repeated exam), write nothing and list the rows; without it such rows get a status saying why and the rest is screened")
 	fs.Var(&f.rules, "rule", "alert rule NAME=EXPRESSION in CEL, adds a column NAME (repeatable), e.g. --rule 'high=chart > limit || centile > 99.0'")
 	fs.StringVar(&f.rulesFile, "rules", "", "file of alert rules, one 'name = expression' per line, each adds a column")
 	fs.Var(&f.covariates, "covariate", "for a model on reference equations: NAME=COLUMN, the column holding a covariate the equations use, e.g. height=height (repeatable)")
@@ -54,15 +57,28 @@ func (f *screenFlags) register(fs *flag.FlagSet) {
 
 // screenJob is a screened sheet with everything needed to write it out.
 type screenJob struct {
-	input     *table.Table
-	isXLSX    bool
-	model     *screening.Model
-	settings  screening.Settings
-	limit     monitor.LimitResult
-	target    float64
-	exams     []screening.Exam
-	results   []screening.Result
-	ruleSet   rules.RuleSet
+	input    *table.Table
+	isXLSX   bool
+	model    *screening.Model
+	settings screening.Settings
+	limit    monitor.LimitResult
+	target   float64
+	x        *examTable
+	// all holds one result per data row of input (Skipped set for the rows
+	// not screened) and status the row's status.
+	all    []screening.Result
+	status []rowStatus
+	counts statusCounts
+	// exams and results are the screened rows only, in input order; rowOf
+	// gives each one's data row.
+	exams   []screening.Exam
+	results []screening.Result
+	rowOf   []int
+	// problems are the rows not screened for a fault, placed and worded.
+	problems *table.Problems
+	ruleSet  rules.RuleSet
+	// ruleNames and ruleCols: one column per rule, one cell per data row
+	// of input ("" where the row was not screened).
 	ruleNames []string
 	ruleCols  [][]string
 }
@@ -90,8 +106,8 @@ func readInput(path, sheet, sheetFlag string) (*table.Table, error) {
 	return t, nil
 }
 
-// runScreenJob reads the exams, computes the limit, screens and evaluates
-// the rules.
+// runScreenJob reads the exams, computes the limit, screens every row that
+// can be screened and evaluates the rules.
 func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 	if err := required("model", f.model, "in", f.in); err != nil {
 		return nil, err
@@ -103,7 +119,9 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 	if err != nil {
 		return nil, err
 	}
-	s.Extrapolate = f.extrap
+	if s.Extrapolate, err = f.reach.value(); err != nil {
+		return nil, err
+	}
 	rs, err := collectRules(f.rules, f.rulesFile)
 	if err != nil {
 		return nil, err
@@ -112,7 +130,8 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 	if err != nil {
 		return nil, err
 	}
-	covCols, err := f.covariates.match(m.Reference().Covariates())
+	covNames := m.Reference().Covariates()
+	covCols, err := f.covariates.match(covNames)
 	if err != nil {
 		return nil, err
 	}
@@ -120,13 +139,26 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 	if j.input, err = readInput(f.in, f.sheet, "--sheet"); err != nil {
 		return nil, err
 	}
-	rows, err := readRows(j.input, f.in, f.cols)
-	if err != nil {
+	if err := refuseOwnSheet(j.input); err != nil {
 		return nil, err
 	}
-	cov, err := readCovariates(j.input, f.in, covCols)
-	if err != nil {
+	if j.x, err = readExamTableCov(j.input, f.in, f.cols, covCols, covNames); err != nil {
 		return nil, err
+	}
+	if len(j.x.exams) == 0 {
+		return nil, j.nothingScreened(f.in)
+	}
+	if f.strict {
+		// Find every row that cannot be screened before the limit is
+		// computed (which rows can does not depend on the limit).
+		res, err := m.ScreenEach(j.x.exams, s, 1)
+		if err != nil {
+			return nil, fmt.Errorf("%s: %v", f.in, err)
+		}
+		j.sort(res)
+		if j.problems.Len() > 0 {
+			return nil, strictError(f.in, j.problems)
+		}
 	}
 	h := f.limit
 	j.limit = monitor.LimitResult{H: h}
@@ -137,42 +169,68 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 		if err != nil {
 			return nil, err
 		}
-		describeLimit(e, j.limit, f.target)
+		describeLimit(e, j.limit, f.target, monitor.Method(f.chart.method))
 		h = j.limit.H
 	}
-	j.exams = make([]screening.Exam, len(rows))
-	for i, r := range rows {
-		j.exams[i] = screening.Exam{Worker: r.Worker, Group: r.Group, Time: r.Time, Value: r.Value}
-		if cov != nil {
-			j.exams[i].Covariates = cov[i]
-		}
+	res, err := m.ScreenEach(j.x.exams, s, h)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %v", f.in, err)
 	}
-	if j.results, err = m.Screen(j.exams, s, h); err != nil {
-		return nil, rowsError(err, f.in, f.cols, covCols, m.Reference().Covariates())
+	j.sort(res)
+	if j.problems.Len() > 0 && f.strict {
+		return nil, strictError(f.in, j.problems)
 	}
-	if j.ruleNames, j.ruleCols, err = evalRules(context.Background(), rs, j.exams, j.results, h); err != nil {
+	if len(j.exams) == 0 {
+		return nil, j.nothingScreened(f.in)
+	}
+	ruleNames, ruleCols, err := evalRules(context.Background(), rs, j.exams, j.results, h)
+	if err != nil {
 		return nil, err
+	}
+	j.ruleNames = ruleNames
+	for _, col := range ruleCols {
+		full := make([]string, len(j.all))
+		for k, v := range col {
+			full[j.rowOf[k]] = v
+		}
+		j.ruleCols = append(j.ruleCols, full)
 	}
 	return j, nil
 }
 
-// flaggedRules are the job's rules for package flagged.
-func (j *screenJob) flaggedRules() []flagged.Rule {
+// flaggedRules are the job's rules for package flagged, over the rows
+// screened (compact) or over every input row (!compact).
+func (j *screenJob) flaggedRules(compact bool) []flagged.Rule {
 	rs := make([]flagged.Rule, len(j.ruleNames))
 	for k, n := range j.ruleNames {
-		rs[k] = flagged.Rule{Name: n, Severity: j.ruleSet.Rules[k].Severity, Fired: fired(j.ruleCols[k])}
+		col := j.ruleCols[k]
+		if compact {
+			col = j.screenedCol(k)
+		}
+		rs[k] = flagged.Rule{Name: n, Severity: j.ruleSet.Rules[k].Severity, Fired: fired(col)}
 	}
 	return rs
+}
+
+// screenedCol is rule k's column over the rows screened only.
+func (j *screenJob) screenedCol(k int) []string {
+	col := make([]string, len(j.rowOf))
+	for s, i := range j.rowOf {
+		col[s] = j.ruleCols[k][i]
+	}
+	return col
 }
 
 // summary prints what was screened on stderr, each count labelled with
 // what it counts (the same counts as the workbook's summary and the
 // report).
 func (j *screenJob) summary(e *env) {
-	rs := j.flaggedRules()
+	rs := j.flaggedRules(true)
 	c := flagged.Count(flagged.Workers(j.exams, j.results, rs, j.limit.H), rs)
-	fmt.Fprintf(e.stderr, "screened %d exams of %d workers at limit %.4f\n", len(j.results), c.Workers, j.limit.H)
+	fmt.Fprintf(e.stderr, "screened %s of %s rows (%s) at limit %.4f\n",
+		plural(len(j.results), "exam", "exams"), fmtInt(len(j.all)), plural(c.Workers, "worker", "workers"), j.limit.H)
 	printCounts(e, c, rs)
+	j.rowSummary(e)
 	fmt.Fprintln(e.stderr, screening.Caution)
 }
 
@@ -190,6 +248,137 @@ func printCounts(e *env, c flagged.Counts, rs []flagged.Rule) {
 	}
 }
 
+// strictError is the failure of --strict when rows cannot be screened.
+func strictError(path string, p *table.Problems) error {
+	return fmt.Errorf("%s: %v\nnothing was written (--strict); without --strict these rows are set aside with a status saying why and the rest is screened", path, p)
+}
+
+// nothingScreened is the error when no row of the sheet can be screened.
+func (j *screenJob) nothingScreened(path string) error {
+	p := j.x.problems()
+	if j.problems != nil {
+		p = j.problems
+	}
+	if p.Len() == 0 {
+		return fmt.Errorf("%s: no row has a reading for --value %q, so there is nothing to screen", path, j.x.cols.value)
+	}
+	return fmt.Errorf("%s: no exam row can be screened:\n%v", path, p)
+}
+
+// sort spreads the results of the rows screened over the rows of the
+// input, and gives every row its status.
+func (j *screenJob) sort(res []screening.Result) {
+	x := j.x
+	n := len(x.t.Rows)
+	j.all = make([]screening.Result, n)
+	j.status = make([]rowStatus, n)
+	j.counts = statusCounts{}
+	j.problems = &table.Problems{}
+	why := make([]error, n)
+	copy(why, x.why)
+	nan := math.NaN()
+	for i := range j.all {
+		j.all[i] = screening.Result{Mean: nan, SD: nan, Z: nan, Centile: nan, Innovation: nan, Up: nan, Down: nan, Stat: nan, Gap: nan, FirstSignal: nan}
+	}
+	extrap := map[int]string{}
+	j.exams = make([]screening.Exam, 0, len(res))
+	j.results = make([]screening.Result, 0, len(res))
+	j.rowOf = make([]int, 0, len(res))
+	for k, r := range res {
+		i := x.rowOf[k]
+		j.all[i] = r
+		if r.Skipped != nil {
+			why[i] = r.Skipped
+			continue
+		}
+		if r.Extrapolated() {
+			extrap[i] = j.extrapolatedNote(x.exams[k])
+		}
+		j.exams = append(j.exams, x.exams[k])
+		j.results = append(j.results, r)
+		j.rowOf = append(j.rowOf, i)
+	}
+	for i := range j.all {
+		if why[i] != nil {
+			j.all[i].Skipped = why[i]
+		}
+		r := &j.all[i]
+		st := rowStatus{status: statusOf(why[i], r.Extrapolated())}
+		switch {
+		case why[i] != nil:
+			placed := x.placed(i, why[i])
+			st.note = placed.Err.Error()
+			if isFault(st.status) {
+				j.problems.Add(placed)
+			}
+		case st.status == statusExtrapolated:
+			st.note = extrap[i]
+		}
+		j.status[i] = st
+		j.counts[st.status]++
+	}
+}
+
+// extrapolatedNote says how far outside the reference range the age of an
+// extrapolated exam lies.
+func (j *screenJob) extrapolatedNote(e screening.Exam) string {
+	lo, hi, err := j.model.Curves.Range(e.Group)
+	if err != nil {
+		return ""
+	}
+	g := "the reference data"
+	if e.Group != "" {
+		g = fmt.Sprintf("group %q", e.Group)
+	}
+	side, d := "above", e.Time-hi
+	if e.Time < lo {
+		side, d = "below", lo-e.Time
+	}
+	return fmt.Sprintf("age %s is %s years %s the reference range %s–%s of %s; screened against the curves' end values",
+		fmtNum(e.Time), fmtYears(d), side, fmtNum(round2(lo)), fmtNum(round2(hi)), g)
+}
+
+// rowSummary prints on stderr the rows extrapolated, without a reading,
+// and not screened, with the first problems at their places.
+func (j *screenJob) rowSummary(e *env) {
+	if n := j.counts[statusExtrapolated]; n > 0 {
+		fmt.Fprintf(e.stderr, "  %s extrapolated: at ages up to %g years outside the reference range, against the curves' end values (status %q)\n",
+			plural(n, "exam", "exams"), j.settings.Extrapolate, statusExtrapolated)
+	}
+	if n := j.counts[statusNoReading]; n > 0 {
+		fmt.Fprintf(e.stderr, "  %s without a reading: missing exams, left out of the charts (status %q)\n", plural(n, "row", "rows"), statusNoReading)
+	}
+	if n := j.counts.faults(); n > 0 {
+		fmt.Fprintf(e.stderr, "  %s not screened (the status column says why): %s\n", plural(n, "row", "rows"), j.counts.describe(statusScreened, statusExtrapolated, statusNoReading))
+		for k, p := range j.problems.List() {
+			if k == table.MaxListed {
+				fmt.Fprintf(e.stderr, "    and %d more\n", j.problems.Len()-table.MaxListed)
+				break
+			}
+			fmt.Fprintf(e.stderr, "    %v\n", p)
+		}
+	}
+}
+
+// done is what a command that screened returns: nil, or rowsSkipped when
+// some rows could not be screened (exit code exitSkipped).
+func (j *screenJob) done() error {
+	if n := j.counts.faults(); n > 0 {
+		return rowsSkipped{n}
+	}
+	return nil
+}
+
+// plural writes n with the singular or plural noun.
+func plural(n int, one, many string) string {
+	if n == 1 {
+		return "1 " + one
+	}
+	return fmtInt(n) + " " + many
+}
+
+func fmtInt(n int) string { return fmt.Sprint(n) }
+
 // fired turns a rule column into true/false per row (a label counts as
 // fired unless it is empty, "none", "0" or "false").
 func fired(col []string) []bool {
@@ -205,7 +394,17 @@ func fired(col []string) []bool {
 }
 
 func (j *screenJob) markerResults(name string) workbook.MarkerResults {
-	return workbook.MarkerResults{Name: name, Exams: j.exams, Results: j.results, Limit: j.limit.H, Rules: j.flaggedRules()}
+	exams := make([]screening.Exam, len(j.all))
+	for k, i := range j.x.rowOf {
+		exams[i] = j.x.exams[k]
+	}
+	mr := workbook.MarkerResults{Name: name, Exams: exams, Results: j.all, Limit: j.limit.H}
+	for _, st := range j.status {
+		mr.Status = append(mr.Status, st.status)
+		mr.Notes = append(mr.Notes, st.note)
+	}
+	mr.Rules = j.flaggedRules(false)
+	return mr
 }
 
 func (j *screenJob) reportSection(marker, unit string) report.Section {
@@ -215,7 +414,7 @@ func (j *screenJob) reportSection(marker, unit string) report.Section {
 	}
 	for k, n := range j.ruleNames {
 		r := j.ruleSet.Rules[k]
-		sec.Rules = append(sec.Rules, report.Rule{Name: n, Expr: r.Expr, Severity: r.Severity, Fired: fired(j.ruleCols[k])})
+		sec.Rules = append(sec.Rules, report.Rule{Name: n, Expr: r.Expr, Severity: r.Severity, Fired: fired(j.screenedCol(k))})
 	}
 	return sec
 }
@@ -228,7 +427,14 @@ func runScreen(e *env, args []string) error {
 	rep := fs.String("report", "", "also write an HTML report to this file")
 	var panels panelChoice
 	panels.register(fs)
+	var cf csvFormatFlags
+	cf.register(fs)
+	fs.Usage = screenUsage(e, fs)
 	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	format, err := cf.format()
+	if err != nil {
 		return err
 	}
 	if jm, ok, err := jointModelFile(sf.model); err != nil || ok {
@@ -270,17 +476,23 @@ func runScreen(e *env, args []string) error {
 			return fmt.Errorf("%s: %v", dst, err)
 		}
 		fmt.Fprintf(e.stderr, "wrote the sheets %q and %q into %s (previous file kept as %s)\n", workbook.DefaultResultsSheet, workbook.DefaultSummarySheet, dst, workbook.BackupPath(dst))
-	case *out == "":
-		if err := j.table().write(e.stdout); err != nil {
+	default:
+		st, err := j.table(format(j.input))
+		if err != nil {
 			return err
 		}
-	default:
+		if *out == "" {
+			if err := st.write(e.stdout); err != nil {
+				return err
+			}
+			break
+		}
 		f, err := atomicfile.New(*out, outputPerm)
 		if err != nil {
 			return err
 		}
 		defer f.Abort()
-		if err := j.table().write(f); err != nil {
+		if err := st.write(f); err != nil {
 			return fmt.Errorf("cannot write %s: %v", *out, err)
 		}
 		if err := f.Commit(); err != nil {
@@ -294,7 +506,20 @@ func runScreen(e *env, args []string) error {
 		fmt.Fprintf(e.stderr, "report written to %s\n", *rep)
 	}
 	j.summary(e)
-	return nil
+	return j.done()
+}
+
+// screenUsage is screen's --help: the flags, then the output columns, the
+// row statuses and the exit codes.
+func screenUsage(e *env, fs *flag.FlagSet) func() {
+	base := fs.Usage
+	return func() {
+		base()
+		fmt.Fprintf(e.stderr, "\nOutput: every input column, then %s, then one column per rule.\n", strings.Join(screenColumns, ", "))
+		fmt.Fprintf(e.stderr, "\nThe status column says what happened to each exam row:\n%s", statusLegend())
+		fmt.Fprintf(e.stderr, "\nExit codes: 0 every row with a reading was screened; %d the output was written but some rows could not be screened (their status says why); 1 the work failed (nothing written); 2 a wrong command line.\n", exitSkipped)
+		fmt.Fprintln(e.stderr, screening.Caution)
+	}
 }
 
 func runReport(e *env, args []string) error {
@@ -342,7 +567,7 @@ func runReport(e *env, args []string) error {
 	if ev != nil {
 		ev.describe(e.stderr)
 	}
-	return nil
+	return j.done()
 }
 
 // panelChoice is --workers: how many flagged workers get a panel in the
@@ -394,6 +619,7 @@ func writeReport(path, source string, panels panelChoice, secs []report.Section)
 	d := report.Data{
 		Title:     "Health surveillance screening",
 		Generated: time.Now().Format("2 January 2006"),
+		Version:   version.String(),
 		Source:    filepath.Base(source),
 		Sections:  secs,
 		MaxPanels: panels.max,
@@ -406,69 +632,199 @@ func writeReport(path, source string, panels panelChoice, secs []report.Section)
 }
 
 // screenColumns are the columns screen adds to the input's.
-var screenColumns = []string{"mean", "sd", "z", "centile", "innovation", "chart_up", "chart_down", "chart", "limit", "signal", "exam", "first_signal"}
+var screenColumns = []string{"mean", "sd", "z", "centile", "innovation", "chart_up", "chart_down", "chart", "limit", "signal", "exam", "first_signal", "status", "status_note"}
 
-// screenTable is what screen writes: every input column, the screening
-// columns at limit h, and one column per rule.
+// screenTable is what screen writes: the input columns it keeps, the
+// screening columns at limit h, and one column per rule.
 type screenTable struct {
-	input     *table.Table
+	input *table.Table
+	// keep lists the input columns copied (nil: all).
+	keep      []int
 	results   []screening.Result
+	status    []rowStatus
 	limit     float64
 	ruleNames []string
 	ruleCols  [][]string
+	format    table.Format
 }
 
-// table is the job's output table.
-func (j *screenJob) table() screenTable {
-	return screenTable{input: j.input, results: j.results, limit: j.limit.H, ruleNames: j.ruleNames, ruleCols: j.ruleCols}
+// table is the job's output table in format f. The input's own columns
+// that bear the name of a column screen writes are replaced when the input
+// is a screened file, and refused otherwise (see resultColumns).
+func (j *screenJob) table(f table.Format) (screenTable, error) {
+	keep, err := keptColumns(j.input, j.ruleNames)
+	if err != nil {
+		return screenTable{}, err
+	}
+	return screenTable{input: j.input, keep: keep, results: j.all, status: j.status, limit: j.limit.H,
+		ruleNames: j.ruleNames, ruleCols: j.ruleCols, format: f}, nil
+}
+
+// keptColumns returns the input columns screen copies to its output. An
+// input that holds every column screen writes is a screened file: its
+// result columns and the columns named like this run's rules are left out,
+// to be written afresh. Otherwise an input column named like a column
+// screen writes is an error, as the output would hold two columns of that
+// name.
+func keptColumns(t *table.Table, ruleNames []string) ([]int, error) {
+	ours := map[string]bool{}
+	for _, c := range screenColumns {
+		ours[c] = true
+	}
+	screened := true
+	for _, c := range screenColumns {
+		if c == "status" || c == "status_note" {
+			continue // files screened before these columns existed
+		}
+		if _, err := t.Column(c); err != nil {
+			screened = false
+			break
+		}
+	}
+	rulesLower := map[string]bool{}
+	for _, r := range ruleNames {
+		rulesLower[strings.ToLower(r)] = true
+	}
+	var keep []int
+	for c, h := range t.Header {
+		name := strings.ToLower(strings.TrimSpace(h))
+		clash := ours[name] || rulesLower[name]
+		switch {
+		case clash && screened:
+			continue
+		case ours[name]:
+			return nil, fmt.Errorf("the input has a column %q, the name of a column veer screen writes; rename that column", h)
+		case rulesLower[name]:
+			return nil, fmt.Errorf("the input has a column %q, the name of a rule; give the rule another name or rename the column", h)
+		}
+		keep = append(keep, c)
+	}
+	return keep, nil
 }
 
 // write writes the table as CSV to out.
 func (st screenTable) write(out io.Writer) error {
-	t, res, h, ruleNames, ruleCols := st.input, st.results, st.limit, st.ruleNames, st.ruleCols
-	w := table.NewWriter(out)
-	for _, hd := range t.Header {
-		w.Text(hd)
+	t, res, h := st.input, st.results, st.limit
+	keep := st.keep
+	if keep == nil {
+		keep = make([]int, len(t.Header))
+		for c := range keep {
+			keep[c] = c
+		}
+	}
+	w := table.NewFormatWriter(out, st.format)
+	text, num, endRow := w.Text, w.Float, w.EndRow
+	for _, c := range keep {
+		text(t.Header[c])
 	}
 	for _, hd := range screenColumns {
-		w.Text(hd)
+		text(hd)
 	}
-	for _, hd := range ruleNames {
-		w.Text(hd)
+	for _, hd := range st.ruleNames {
+		text(hd)
 	}
-	if err := w.EndRow(); err != nil {
+	if err := endRow(); err != nil {
 		return err
 	}
+	nan := math.NaN()
 	for i, r := range res {
-		for _, c := range t.Rows[i] {
-			w.Text(c)
+		for _, c := range keep {
+			text(t.Rows[i][c])
 		}
-		w.Float(r.Mean, 6)
-		w.Float(r.SD, 6)
-		w.Float(r.Z, 4)
-		w.Float(r.Centile, 2)
-		w.Float(r.Innovation, 4)
-		w.Float(r.Up, 4)
-		w.Float(r.Down, 4)
-		w.Float(r.Stat, 4)
-		w.Float(h, 4)
-		if r.Signal {
-			w.Text("1")
-		} else {
-			w.Text("0")
+		screened := r.Skipped == nil
+		num(r.Mean, 6)
+		num(r.SD, 6)
+		num(r.Z, 4)
+		num(r.Centile, 2)
+		num(r.Innovation, 4)
+		num(r.Up, 4)
+		num(r.Down, 4)
+		num(r.Stat, 4)
+		switch {
+		case !screened:
+			num(nan, 4)
+			text("")
+			text("")
+		case r.Signal:
+			num(h, 4)
+			text("1")
+			num(float64(r.Exam), 0)
+		default:
+			num(h, 4)
+			text("0")
+			num(float64(r.Exam), 0)
 		}
-		w.Float(float64(r.Exam), 0)
-		if math.IsNaN(r.FirstSignal) {
-			w.Text("")
-		} else {
-			w.Float(r.FirstSignal, -1)
+		num(r.FirstSignal, -1)
+		var st2 rowStatus
+		if i < len(st.status) {
+			st2 = st.status[i]
 		}
-		for _, col := range ruleCols {
-			w.Text(col[i])
+		text(st2.status)
+		text(st2.note)
+		for _, col := range st.ruleCols {
+			text(col[i])
 		}
-		if err := w.EndRow(); err != nil {
+		if err := endRow(); err != nil {
 			return err
 		}
 	}
 	return w.Flush()
+}
+
+// csvFormatFlags choose how screen writes CSV: by default as the input
+// file is written (delimiter, decimal mark, byte-order mark, line ends).
+type csvFormatFlags struct {
+	separator, decimal string
+}
+
+func (c *csvFormatFlags) register(fs *flag.FlagSet) {
+	fs.StringVar(&c.separator, "separator", "", "delimiter of the CSV written: comma, semicolon or tab (default: the input file's)")
+	fs.StringVar(&c.decimal, "decimal", "", "decimal mark of the numbers written: point or comma (default: the input file's; comma needs a semicolon or tab delimiter)")
+}
+
+// format returns a function giving the output format for an input table.
+func (c *csvFormatFlags) format() (func(*table.Table) table.Format, error) {
+	var comma rune
+	switch strings.ToLower(c.separator) {
+	case "":
+	case "comma", ",":
+		comma = ','
+	case "semicolon", ";":
+		comma = ';'
+	case "tab", "\t":
+		comma = '\t'
+	default:
+		return nil, usagef("--separator must be comma, semicolon or tab, not %q", c.separator)
+	}
+	dec := 0
+	switch strings.ToLower(c.decimal) {
+	case "":
+	case "point", ".":
+		dec = 1
+	case "comma", ",":
+		dec = 2
+	default:
+		return nil, usagef("--decimal must be point or comma, not %q", c.decimal)
+	}
+	if comma == ',' && dec == 2 {
+		return nil, usagef("--decimal comma needs --separator semicolon or tab (a comma cannot be both)")
+	}
+	return func(t *table.Table) table.Format {
+		f := t.Format()
+		if comma != 0 {
+			f.Comma = comma
+		}
+		switch dec {
+		case 1:
+			f.DecimalComma = false
+		case 2:
+			f.DecimalComma = true
+		}
+		if f.DecimalComma && f.Comma == ',' {
+			// The input's decimal commas with a comma delimiter asked
+			// for: numbers with a point, or they could not be read back.
+			f.DecimalComma = false
+		}
+		return f
+	}, nil
 }

@@ -6,6 +6,8 @@ import (
 	"fmt"
 	"regexp"
 	"strings"
+
+	"veer/internal/version"
 )
 
 // Shape is the shape of a function's result.
@@ -197,6 +199,8 @@ type FuncInfo struct {
 
 // Listing is the JSON document served at GET /v1/functions.
 type Listing struct {
+	// Version is veer's version (internal/version.String).
+	Version   string     `json:"version"`
 	Functions []FuncInfo `json:"functions"`
 	// Codes lists the error codes cells may show and what they mean.
 	Codes map[Code]string `json:"codes"`
@@ -218,7 +222,7 @@ func (f *Func) Info() FuncInfo {
 
 // Listing returns the catalogue's listing.
 func (c *Catalogue) Listing() Listing {
-	l := Listing{Functions: []FuncInfo{}, Codes: CodeMeanings()}
+	l := Listing{Version: version.String(), Functions: []FuncInfo{}, Codes: CodeMeanings()}
 	for _, f := range c.Funcs() {
 		l.Functions = append(l.Functions, f.Info())
 	}

@@ -36,6 +36,9 @@ type Data struct {
 	// (rather than the report reading the clock) so the same inputs always
 	// give the same file.
 	Generated string
+	// Version is the version of veer that made the report (shown beside
+	// the date; the caller gives it, like Generated).
+	Version string
 	// Source optionally says where the exams came from, e.g. "workforce.csv".
 	Source string
 	// Sections holds one screened marker each.
@@ -170,9 +173,9 @@ type kv struct{ Label, Value string }
 type ruleRow struct{ Name, Severity, Expr string }
 
 type page struct {
-	Title, Generated, Source, Caution string
-	Signal                            string // screening.Caution, beside the flagged workers
-	Sections                          []*sectionView
+	Title, Generated, Source, Version, Caution string
+	Signal                                     string // screening.Caution, beside the flagged workers
+	Sections                                   []*sectionView
 }
 
 type figure struct {
@@ -238,7 +241,7 @@ func sectionRules(s *Section) []flagged.Rule {
 }
 
 func buildPage(d Data) (*page, error) {
-	p := &page{Title: d.Title, Generated: d.Generated, Source: d.Source, Caution: Caution, Signal: screening.Caution}
+	p := &page{Title: d.Title, Generated: d.Generated, Source: d.Source, Version: d.Version, Caution: Caution, Signal: screening.Caution}
 	if p.Title == "" {
 		p.Title = "veer screening report"
 	}

@@ -63,7 +63,7 @@ var pageTemplate = template.Must(template.New("report").Parse(`<!DOCTYPE html>
 <body>
 <header>
 <h1>{{.Title}}</h1>
-<p class="meta">Generated {{.Generated}}{{if .Source}} · exams from {{.Source}}{{end}} · made with veer</p>
+<p class="meta">Generated {{.Generated}}{{if .Source}} · exams from {{.Source}}{{end}} · made with veer{{if .Version}} {{.Version}}{{end}}</p>
 <div class="caution" role="note" id="caution"><strong>Screening aid — not a diagnosis.</strong> {{.Caution}}</div>
 </header>
 <nav aria-label="Contents">
