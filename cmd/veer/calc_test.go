@@ -671,8 +671,8 @@ func screenLikeCalc(t *testing.T, ls *liveServer, blocks []calcBlock) float64 {
 				sval = strconv.FormatFloat(f, 'g', -1, 64)
 			}
 			flagName := map[string]string{"target": "target", "limit": "limit", "chart": "chart", "side": "side", "allowance": "allowance",
-				"lambda": "lambda", "unit": "unit", "serial": "serial", "method": "method", "gap": "gap", "seed": "seed", "reps": "paths",
-				"headstart": "head-start", "restart": "restart", "extrapolate": "extrapolate"}[name]
+				"lambda": "lambda", "unit": "unit", "serial": "serial", "method": "method", "gap": "gap", "seed": "seed", "reps": "reps",
+				"headstart": "headstart", "restart": "restart", "extrapolate": "extrapolate"}[name]
 			if flagName == "" {
 				t.Fatalf("VEER.CHART option %q has no veer screen flag in this test", name)
 			}

@@ -402,6 +402,12 @@ func TestMessagesSayWhatToDo(t *testing.T) {
 	if code, stderr = fit(lone, "--minworkers", "1"); code != 2 || !strings.Contains(stderr, "--minworkers must be at least 3") {
 		t.Errorf("--minworkers 1: exit %d:\n%s", code, stderr)
 	}
+	// A model with groups screened without --group: said once, naming it.
+	f := fixture(t)
+	code, _, stderr = cli("screen", "--model", f.model, "--in", f.workCSV, "--id", "worker", "--time", "age", "--value", "sbp", "--limit", "4")
+	if code != 2 || !strings.Contains(stderr, `the model has groups "tower", "workshop": name the column holding each exam's group with --group`) {
+		t.Errorf("no --group: exit %d:\n%s", code, stderr)
+	}
 	// No Go package names in messages; "1 year", not "1 years".
 	code, _, stderr = cli("limit", "--target", "0.5", "--gap", "1")
 	if code != 1 || regexp.MustCompile(`\b(monitor|limit|chart|screening|refcurve): `).MatchString(strings.TrimPrefix(stderr, "veer limit: ")) || strings.Contains(stderr, "1 years") {
@@ -490,5 +496,90 @@ func TestVersion(t *testing.T) {
 			t.Errorf("the summary of %s starts at column %d, the others at %d:\n%s", name, at, col, help)
 		}
 		col = at
+	}
+}
+
+// CSV in, CSV out: screen writes in the input's delimiter, decimal mark,
+// byte-order mark and line ends unless told otherwise; a screened file
+// screened again has its result columns replaced, not doubled; a clash
+// with a column screen writes is refused with a message.
+func TestScreenCSVFormat(t *testing.T) {
+	f := fixture(t)
+	comma := workLines(t, 40)
+	// The same exams as a spreadsheet in a decimal-comma locale saves them.
+	var euro []string
+	for _, l := range comma {
+		cells := strings.Split(l, ",")
+		for k := range cells {
+			cells[k] = strings.Replace(cells[k], ".", ",", 1)
+		}
+		euro = append(euro, strings.Join(cells, ";"))
+	}
+	euroIn := writeFile(t, filepath.Join(t.TempDir(), "euro.csv"), []byte("\xEF\xBB\xBF"+strings.Join(euro, "\r\n")+"\r\n"))
+	commaIn := csvLines(comma).write(t, "comma.csv")
+	outEuro := filepath.Join(t.TempDir(), "euro.out.csv")
+	outComma := filepath.Join(t.TempDir(), "comma.out.csv")
+	for _, c := range [][]string{screenArgsFor(t, euroIn, outEuro, "--rule", "r=chart > 1.0"), screenArgsFor(t, commaIn, outComma, "--rule", "r=chart > 1.0")} {
+		if code, _, stderr := cli(c...); code != 0 {
+			t.Fatalf("exit %d: %s", code, stderr)
+		}
+	}
+	raw, _ := os.ReadFile(outEuro)
+	if !bytes.HasPrefix(raw, []byte("\xEF\xBB\xBFworker;group;age;sbp;mean;")) || !bytes.Contains(raw, []byte("\r\n")) || bytes.Contains(bytes.ReplaceAll(raw, []byte("\r\n"), nil), []byte("\n")) {
+		t.Fatalf("not written as read (BOM, ';', CR LF): %q", raw[:min(200, len(raw))])
+	}
+	eu, col := readOut(t, outEuro)
+	co, _ := readOut(t, outComma)
+	if eu.Format() != (table.Format{Comma: ';', DecimalComma: true, BOM: true, CRLF: true}) {
+		t.Errorf("output format %+v", eu.Format())
+	}
+	for i := range eu.Rows {
+		for _, c := range []string{"mean", "z", "chart", "limit", "first_signal"} {
+			want := strings.Replace(co.Rows[i][col[c]], ".", ",", 1)
+			if eu.Rows[i][col[c]] != want {
+				t.Fatalf("row %d %s = %q; the comma file gives %q", i+1, c, eu.Rows[i][col[c]], co.Rows[i][col[c]])
+			}
+		}
+	}
+	// Told otherwise: comma and point.
+	out := filepath.Join(t.TempDir(), "o.csv")
+	if code, _, stderr := cli(screenArgsFor(t, euroIn, out, "--separator", "comma", "--decimal", "point")...); code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	if o, _ := readOut(t, out); o.Comma != ',' || o.DecimalComma {
+		t.Errorf("--separator comma --decimal point wrote %q", o.Comma)
+	}
+	if code, _, stderr := cli(screenArgsFor(t, euroIn, out, "--separator", "comma", "--decimal", "comma")...); code != 2 || !strings.Contains(stderr, "--decimal comma needs") {
+		t.Errorf("a decimal comma with a comma delimiter: exit %d, %s", code, stderr)
+	}
+
+	// Screening the screened file again: the same columns, once each, the
+	// same results.
+	again := filepath.Join(t.TempDir(), "again.csv")
+	if code, _, stderr := cli(screenArgsFor(t, outComma, again, "--rule", "r=chart > 1.0")...); code != 0 {
+		t.Fatalf("re-screen: exit %d: %s", code, stderr)
+	}
+	ag, _ := readOut(t, again)
+	if strings.Join(ag.Header, ",") != strings.Join(co.Header, ",") {
+		t.Errorf("re-screened header\n %s\nwant\n %s", strings.Join(ag.Header, ","), strings.Join(co.Header, ","))
+	}
+	for i := range ag.Rows {
+		if strings.Join(ag.Rows[i], ",") != strings.Join(co.Rows[i], ",") {
+			t.Fatalf("row %d re-screened %v; first screening %v", i+1, ag.Rows[i], co.Rows[i])
+		}
+	}
+	// A column of the input named like one screen writes, or like a rule.
+	clash := csvLines(comma)
+	clash[0] = strings.Replace(clash[0], "group", "z", 1)
+	clash[0] = strings.Replace(clash[0], "worker", "group", 1)
+	args := []string{"screen", "--model", f.model, "--in", clash.write(t, "clash.csv"), "--id", "group", "--time", "age", "--value", "sbp", "--group", "z", "--limit", "4", "--out", out}
+	if code, _, stderr := cli(args...); code != 1 || !strings.Contains(stderr, `the input has a column "z"`) {
+		t.Errorf("input column z: exit %d, %s", code, stderr)
+	}
+	if code, _, stderr := cli(screenArgsFor(t, commaIn, out, "--rule", "group=chart > 1.0")...); code != 1 || !strings.Contains(stderr, `column "group", the name of a rule`) {
+		t.Errorf("a rule named like an input column: exit %d, %s", code, stderr)
+	}
+	if code, _, stderr := cli(screenArgsFor(t, commaIn, out, "--rule", "limit=chart > 1.0")...); code != 2 || !strings.Contains(stderr, `"limit"`) {
+		t.Errorf("a rule named like a result column: exit %d, %s", code, stderr)
 	}
 }

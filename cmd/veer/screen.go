@@ -10,6 +10,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -126,6 +127,11 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 	if err != nil {
 		return nil, err
 	}
+	for _, r := range rs.Rules {
+		if slices.Contains(screenColumns, strings.ToLower(r.Name)) {
+			return nil, usagef("a rule cannot be called %q: veer screen writes a column of that name; give the rule another name", r.Name)
+		}
+	}
 	m, err := loadModel(f.model)
 	if err != nil {
 		return nil, err
@@ -141,6 +147,19 @@ func runScreenJob(e *env, f *screenFlags) (*screenJob, error) {
 	}
 	if err := refuseOwnSheet(j.input); err != nil {
 		return nil, err
+	}
+	if !j.isXLSX {
+		// A clash of the input's columns with the output's is known now.
+		names := make([]string, len(rs.Rules))
+		for k, r := range rs.Rules {
+			names[k] = r.Name
+		}
+		if _, err := keptColumns(j.input, names); err != nil {
+			return nil, fmt.Errorf("%s: %v", f.in, err)
+		}
+	}
+	if groups := m.Reference().Groups(); f.cols.group == "" && !(len(groups) == 1 && groups[0] == "") {
+		return nil, usagef("the model has groups %s: name the column holding each exam's group with --group", quoteList(groups))
 	}
 	if j.x, err = readExamTableCov(j.input, f.in, f.cols, covCols, covNames); err != nil {
 		return nil, err
@@ -246,6 +265,15 @@ func printCounts(e *env, c flagged.Counts, rs []flagged.Rule) {
 		}
 		fmt.Fprintf(e.stderr, "  %d of %d workers for whom rule %s%s fired\n", c.Rules[k], c.Workers, r.Name, sev)
 	}
+}
+
+// quoteList writes names quoted, comma-separated.
+func quoteList(names []string) string {
+	q := make([]string, len(names))
+	for i, n := range names {
+		q[i] = strconv.Quote(n)
+	}
+	return strings.Join(q, ", ")
 }
 
 // strictError is the failure of --strict when rows cannot be screened.
