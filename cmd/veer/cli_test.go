@@ -493,7 +493,7 @@ func TestCLIScreen(t *testing.T) {
 	}
 	// Without --out the table goes to stdout and the talk to stderr.
 	code, stdout, stderr := cli("screen", "--model", f.model, "--in", in, "--id", "worker", "--time", "age", "--value", "sbp", "--group", "group", "--limit", "4")
-	if code != 0 || !strings.HasPrefix(stdout, "worker,group,age,sbp,mean") || strings.Contains(stdout, "signalled") || !strings.Contains(stderr, "signalled") {
+	if code != 0 || !strings.HasPrefix(stdout, "worker,group,age,sbp,mean") || strings.Contains(stdout, "workers flagged") || !strings.Contains(stderr, "workers flagged") {
 		t.Errorf("screen to stdout: exit %d, stdout starts %.60q, stderr %q", code, stdout, stderr)
 	}
 }

@@ -33,7 +33,7 @@ func TestExpectedLevels(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, idx := range groupByWorker(ex) {
+	for _, idx := range groupByWorker(ex, func(int) bool { return true }) {
 		n := len(idx)
 		times, z := make([]float64, n), make([]float64, n)
 		mine := make([]Exam, n)
